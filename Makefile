@@ -1,0 +1,30 @@
+# Two entry points: `make demo` runs the bundled invented demo, `make test` runs lint and the tests.
+# Both create the virtual environment .venv on first use.
+PYTHON ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.installed
+
+.PHONY: demo test lint bench clean
+
+$(STAMP): pyproject.toml
+	test -d $(VENV) || $(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -e '.[test]'
+	touch $(STAMP)
+
+demo: $(STAMP)
+	$(BIN)/tubewright simulate studies/demo/oxidation.toml --out demo-output/oxidation
+	$(BIN)/tubewright simulate studies/demo/coil.toml --out demo-output/coil
+
+lint: $(STAMP)
+	$(BIN)/ruff check models optimizer tests
+
+test: lint
+	$(BIN)/python -m pytest -q
+
+bench: $(STAMP)
+	$(BIN)/python tests/benchmarks/bench_simulate.py
+
+clean:
+	rm -rf $(VENV) demo-output .pytest_cache

@@ -1,0 +1,159 @@
+"""The axial balances of one tube of a multitubular reactor: species, energy, momentum, coolant.
+
+Written once against the math backend ``m`` so that the simulator (numpy; arrays of many samples too) and
+the collocation model (Pyomo expressions) share one source of truth. Coordinate z [m] from the tube inlet.
+
+    dF_i/dz   = A_c w sum_j nu_ij r_j                        w = 1 (rate per bed volume) or rho_bed
+    dT/dz     = (A_c w sum_j (-dH_j) r_j + U pi d (Tc - T)) / sum_i F_i cp_i
+    dP/dz     = -(Ergun or Darcy-Weisbach gradient)
+    dTc/dz    = +-N U pi d (T - Tc) / (m_c cp_c)             (+ co-current, - counter-current, 0 otherwise)
+    dQ/dz     = N U pi d (T - Tc)                            (heat to the coolant, whole reactor)
+    dtau/dz   = A_c e / V_dot                                 (residence time in the fluid volume)
+
+Isothermal mode holds dT/dz = 0 and removes the heat of reaction: dQ/dz = -N A_c w sum_j dH_j r_j.
+F_i [mol/s] are per tube; Q covers all tubes.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from . import correlations as corr
+from .reactions import heat_of_reaction, reaction_rate
+from .thermo import R_GAS
+
+
+@dataclass
+class Local:
+    """Local properties at one axial position."""
+
+    total_flow: object
+    mass_flow: object  # kg/s per tube
+    density: object
+    volumetric_flow: object
+    concentration: dict  # mol/m^3
+    partial_pressure: dict  # Pa (gas phase only)
+    cp_molar_flow: object  # sum F_i cp_i, W/K
+    cp_mass: object  # J/(kg K)
+
+
+def local_properties(m, case, F, T, P) -> Local:
+    species = case.species
+    total = 0.0
+    mass = 0.0
+    cpf = 0.0
+    for sp, f in zip(species, F):
+        total = total + f
+        mass = mass + f * sp.molar_mass
+        cpf = cpf + f * sp.cp(m, T)
+    if case.phase == "gas":
+        density = P * mass / (total * R_GAS * T)
+        vdot = total * R_GAS * T / P
+    else:
+        density = case.feed.density
+        vdot = mass / density
+    conc = {sp.name: f / vdot for sp, f in zip(species, F)}
+    pp = {sp.name: f * P / total for sp, f in zip(species, F)} if case.phase == "gas" else {}
+    return Local(total, mass, density, vdot, conc, pp, cpf, cpf / mass)
+
+
+def rates(m, case, T, local: Local) -> list:
+    """Rates of every reaction per unit bed (or tube) volume, mol/(m^3 s)."""
+    out = []
+    species = case.species_map
+    for rx in case.reactions:
+        drive = local.partial_pressure if rx.driving == "partial_pressure" else local.concentration
+        r = reaction_rate(m, rx, species, T, drive)
+        if rx.basis == "catalyst_mass":
+            r = r * case.bed.density
+        out.append(r)
+    return out
+
+
+def overall_u(m, case, local: Local):
+    """U [W/(m^2 K)] on the inner area: given, or from the inside correlation, the wall and the coolant side."""
+    ht = case.heat_transfer
+    if case.coolant.mode in ("adiabatic", "isothermal"):
+        return 0.0
+    if ht.overall is not None:
+        return ht.overall * ht.multiplier
+    tube, feed = case.tube, case.feed
+    flux = local.mass_flow / tube.area
+    k_f = feed.thermal_conductivity
+    if ht.inside == "leva":
+        re_p = case.bed.particle_diameter * flux / feed.viscosity
+        nu = corr.leva_cooling_wall_nusselt(m, re_p, case.bed.particle_diameter / tube.inner_diameter)
+    else:
+        re = flux * tube.inner_diameter / feed.viscosity
+        pr = local.cp_mass * feed.viscosity / k_f
+        if ht.inside == "gnielinski":
+            nu = corr.gnielinski_nusselt(m, re, pr, corr.petukhov_friction(m, re))
+        elif ht.inside == "dittus_boelter":
+            nu = corr.dittus_boelter_nusselt(m, re, pr, heating=False)
+        else:
+            nu = corr.laminar_nusselt(m, re, pr)
+    h_i = nu * k_f / tube.inner_diameter
+    u = corr.overall_coefficient(m, h_i, ht.outside, tube.inner_diameter, tube.wall_thickness,
+                                 tube.wall_conductivity)
+    return u * ht.multiplier
+
+
+def pressure_gradient(m, case, local: Local):
+    """dP/dz [Pa/m] (negative)."""
+    tube = case.tube
+    flux = local.mass_flow / tube.area
+    if case.bed is not None:
+        return -corr.ergun_pressure_gradient(m, flux, local.density, case.feed.viscosity,
+                                             case.bed.particle_diameter, case.bed.voidage)
+    re = flux * tube.inner_diameter / case.feed.viscosity
+    f = corr.churchill_1977_friction(m, re, tube.roughness / tube.inner_diameter)
+    return -corr.darcy_weisbach_gradient(m, f, flux, local.density, tube.inner_diameter)
+
+
+@dataclass
+class Derivatives:
+    dF: list
+    dT: object
+    dP: object
+    dTc: object
+    dQ: object
+    dtau: object
+
+
+def axial_derivatives(m, case, F, T, P, Tc) -> Derivatives:
+    """d/dz of the state (F_i, T, P, Tc, Q, tau) of one tube at one position. See module docstring."""
+    tube = case.tube
+    local = local_properties(m, case, F, T, P)
+    r = rates(m, case, T, local)
+    area = tube.area
+    dF = []
+    for sp in case.species:
+        total = 0.0
+        for rx, rj in zip(case.reactions, r):
+            nu = rx.nu.get(sp.name)
+            if nu:
+                total = total + nu * rj
+        dF.append(area * total)
+    heat_generation = 0.0  # W/m per tube
+    for rx, rj in zip(case.reactions, r):
+        heat_generation = heat_generation - area * heat_of_reaction(m, rx, case.species_map, T) * rj
+    mode = case.coolant.mode
+    u = overall_u(m, case, local)
+    perimeter = math.pi * tube.inner_diameter
+    to_coolant = u * perimeter * (T - Tc)  # W/m per tube
+    if mode == "isothermal":
+        dT = 0.0 * T
+        dQ = tube.count * heat_generation
+    else:
+        dT = (heat_generation - to_coolant) / local.cp_molar_flow
+        dQ = tube.count * to_coolant
+    if mode == "cocurrent":
+        dTc = tube.count * to_coolant / (case.coolant.mass_flow * case.coolant.cp)
+    elif mode == "countercurrent":
+        dTc = -tube.count * to_coolant / (case.coolant.mass_flow * case.coolant.cp)
+    else:
+        dTc = 0.0 * Tc
+    void = case.bed.voidage if case.bed is not None else 1.0
+    dtau = area * void / local.volumetric_flow
+    return Derivatives(dF, dT, pressure_gradient(m, case, local), dTc, dQ, dtau)

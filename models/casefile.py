@@ -1,0 +1,511 @@
+"""Reading case files: TOML with units as strings, includes, overrides, and checks that name the file and key.
+
+The keys are documented in docs/case-reference.md; this module is the one place that enforces them."""
+
+from __future__ import annotations
+
+import copy
+import sys
+from pathlib import Path
+
+from . import case as C
+from .elements import molar_mass as formula_mass
+from .elements import parse_formula
+from .errors import CaseError, suggest
+from .reactions import Adsorption, Reaction, parse_equation
+from .thermo import ConstantCp, Nasa7, Shomate, Species, cp_problem
+from .units import quantity, to_si
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
+
+SECTIONS = ("title", "note", "include", "chemistry", "feed", "tube", "bed", "coolant", "heat_transfer",
+            "limits", "numerics", "design", "goal", "costs", "uncertain")
+# Sections read by the verbs of later stages (optimisation, screening); kept in Case.raw.
+PASS_THROUGH = ("design", "goal", "costs", "uncertain")
+
+
+def read_toml(path: Path) -> dict:
+    try:
+        with open(path, "rb") as fh:
+            return tomllib.load(fh)
+    except FileNotFoundError as err:
+        raise CaseError(path, "", "file not found") from err
+    except tomllib.TOMLDecodeError as err:
+        raise CaseError(path, "", f"not valid TOML: {err}") from err
+
+
+def deep_merge(base: dict, top: dict) -> dict:
+    out = copy.deepcopy(base)
+    for key, value in top.items():
+        if isinstance(value, dict) and isinstance(out.get(key), dict):
+            out[key] = deep_merge(out[key], value)
+        else:
+            out[key] = copy.deepcopy(value)
+    return out
+
+
+def resolve_includes(path: Path, seen: tuple = ()) -> dict:
+    """The TOML tables of ``path`` merged on top of the file it includes (``include = "base.toml"``,
+    relative to the including file), recursively."""
+    path = Path(path).resolve()
+    if path in seen:
+        raise CaseError(path, "include", "includes itself (a cycle of includes)")
+    data = read_toml(path)
+    inc = data.pop("include", None)
+    if inc is None:
+        return data
+    if not isinstance(inc, str):
+        raise CaseError(path, "include", "must be a file name string")
+    base_path = (path.parent / inc).resolve()
+    if not base_path.exists():
+        raise CaseError(path, "include", f'included file "{inc}" not found (looked at {base_path})')
+    return deep_merge(resolve_includes(base_path, seen + (path,)), data)
+
+
+def apply_overrides(data: dict, overrides: dict, source: str) -> dict:
+    """Overrides as {"tube.length": "7 m", ...}; the key must exist in the merged case."""
+    out = copy.deepcopy(data)
+    for dotted, value in (overrides or {}).items():
+        parts = dotted.split(".")
+        node = out
+        for depth, part in enumerate(parts):
+            if not isinstance(node, dict):
+                raise CaseError(source, dotted, f'"{".".join(parts[:depth])}" is not a table')
+            last = depth == len(parts) - 1
+            if part not in node and not last:
+                raise CaseError(source, dotted, f'no table "{part}"{suggest(part, node)}')
+            if last:
+                node[part] = value
+            else:
+                node = node[part]
+    return out
+
+
+class Table:
+    """One TOML table being read: typed getters that raise CaseError, and a final check for unknown keys."""
+
+    def __init__(self, data, source: str, name: str, allowed=None):
+        if not isinstance(data, dict):
+            raise CaseError(source, name, "must be a table")
+        self.data, self.source, self.name = data, source, name
+        self.allowed = set(allowed) if allowed is not None else None
+        self.used: set[str] = set()
+
+    def key(self, key: str) -> str:
+        return f"{self.name}.{key}" if self.name else key
+
+    def has(self, key: str) -> bool:
+        return key in self.data
+
+    def raw(self, key: str, default=None, required=False):
+        self.used.add(key)
+        if key not in self.data:
+            if required:
+                pool = self.allowed or self.data.keys()
+                near = [k for k in self.data if k not in pool]
+                hint = f'; found "{near[0]}"' if near and suggest(near[0], [key]) else ""
+                raise CaseError(self.source, self.key(key), f"missing (required){hint}")
+            return default
+        return self.data[key]
+
+    def quantity(self, key, dimension, default=None, required=True, positive=True, minimum=None):
+        value = self.raw(key, required=required and default is None)
+        if value is None:
+            return default
+        si = quantity(value, dimension, self.source, self.key(key))
+        if positive and not si > 0:
+            raise CaseError(self.source, self.key(key), f"must be greater than zero, got {value!r}")
+        if minimum is not None and si < minimum:
+            raise CaseError(self.source, self.key(key), f"must be at least {minimum}, got {value!r}")
+        return si
+
+    def number(self, key, default=None, required=True, low=None, high=None, integer=False):
+        value = self.raw(key, required=required and default is None)
+        if value is None:
+            return default
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise CaseError(self.source, self.key(key), f"must be a number, got {value!r}")
+        if integer and (not float(value).is_integer()):
+            raise CaseError(self.source, self.key(key), f"must be a whole number, got {value!r}")
+        if (low is not None and value < low) or (high is not None and value > high):
+            raise CaseError(self.source, self.key(key), f"must lie in [{low}, {high}], got {value!r}")
+        return int(value) if integer else float(value)
+
+    def choice(self, key, options, default=None):
+        value = self.raw(key, required=default is None)
+        if value is None:
+            return default
+        if value not in options:
+            allowed = ", ".join(f'"{o}"' for o in options)
+            raise CaseError(self.source, self.key(key), f'"{value}" is not allowed{suggest(str(value), options)}; '
+                            f"allowed: {allowed}")
+        return value
+
+    def text(self, key, default=None):
+        value = self.raw(key, required=default is None)
+        if value is not None and not isinstance(value, str):
+            raise CaseError(self.source, self.key(key), f"must be a string, got {value!r}")
+        return value
+
+    def sub(self, key, allowed=None, required=True):
+        value = self.raw(key, required=required)
+        if value is None:
+            return None
+        return Table(value, self.source, self.key(key), allowed)
+
+    def finish(self):
+        pool = self.allowed if self.allowed is not None else self.used
+        for key in self.data:
+            if key not in pool:
+                raise CaseError(self.source, self.key(key), f"unknown key{suggest(key, pool)}; allowed: "
+                                f"{', '.join(sorted(pool))}")
+
+
+def load_case(path, overrides: dict | None = None) -> C.Case:
+    """Read, merge, override and validate a case file. Raises CaseError for any bad input."""
+    path = Path(path)
+    source = str(path)
+    data = apply_overrides(resolve_includes(path), overrides or {}, source)
+    return build_case(data, source)
+
+
+def build_case(data: dict, source: str) -> C.Case:
+    top = Table(data, source, "", SECTIONS)
+    top.finish()
+    title = top.text("title", default=Path(source).stem)
+    chem = top.sub("chemistry", {"phase", "key_reactant", "product", "species", "reactions"})
+    phase = chem.choice("phase", ("gas", "liquid"))
+    species = _species(chem.sub("species"), source)
+    names = [s.name for s in species]
+    reactions = _reactions(chem.sub("reactions"), species, phase, "bed" in data, source)
+    key = chem.text("key_reactant")
+    if key not in names:
+        raise CaseError(source, "chemistry.key_reactant", f'"{key}" is not a species{suggest(key, names)}')
+    product = chem.text("product", default="")
+    if product and product not in names:
+        raise CaseError(source, "chemistry.product", f'"{product}" is not a species{suggest(product, names)}')
+    chem.finish()
+
+    feed = _feed(top.sub("feed"), species, phase, source)
+    tube_t = top.sub("tube", {"inner_diameter", "length", "count", "wall_thickness", "wall_conductivity",
+                              "roughness"})
+    tube = C.Tube(
+        inner_diameter=tube_t.quantity("inner_diameter", "length"),
+        length=tube_t.quantity("length", "length"),
+        count=tube_t.number("count", default=1, low=1, integer=True),
+        wall_thickness=tube_t.quantity("wall_thickness", "length", default=2.0e-3),
+        wall_conductivity=tube_t.quantity("wall_conductivity", "thermal_conductivity", default=16.0),
+        roughness=tube_t.quantity("roughness", "length", default=4.5e-5, positive=False, minimum=0.0),
+    )
+    tube_t.finish()
+    bed = None
+    if top.has("bed"):
+        bed_t = top.sub("bed", {"particle_diameter", "voidage", "density"})
+        bed = C.Bed(bed_t.quantity("particle_diameter", "length"),
+                    bed_t.number("voidage", low=0.2, high=0.95), bed_t.quantity("density", "density"))
+        bed_t.finish()
+        if bed.particle_diameter >= tube.inner_diameter:
+            raise CaseError(source, "bed.particle_diameter", "must be smaller than tube.inner_diameter")
+    coolant = _coolant(top.sub("coolant"), feed, source)
+    heat = _heat_transfer(top.sub("heat_transfer", required=False), coolant, bed, feed, source)
+    limits = _limits(top.sub("limits", required=False))
+    num_t = top.sub("numerics", {"rtol", "atol", "method", "temperature_ceiling", "min_pressure",
+                                 "finite_elements", "collocation_points", "verify_tolerance"}, required=False)
+    numerics = C.Numerics()
+    if num_t is not None:
+        numerics = C.Numerics(
+            rtol=num_t.number("rtol", default=numerics.rtol, low=1e-13, high=1e-2),
+            atol=num_t.number("atol", default=numerics.atol, low=1e-16, high=1.0),
+            method=num_t.choice("method", ("Radau", "BDF", "LSODA"), default=numerics.method),
+            temperature_ceiling=num_t.quantity("temperature_ceiling", "temperature",
+                                               default=numerics.temperature_ceiling),
+            min_pressure=num_t.quantity("min_pressure", "pressure", default=numerics.min_pressure),
+        )
+    return C.Case(source=source, title=title, phase=phase, species=tuple(species), reactions=tuple(reactions),
+                  key_reactant=key, product=product or None, feed=feed, tube=tube, bed=bed, coolant=coolant,
+                  heat_transfer=heat, numerics=numerics, limits=limits,
+                  raw={k: copy.deepcopy(data[k]) for k in PASS_THROUGH if k in data} | {"all": data})
+
+
+def _cp_model(value, source, key):
+    if isinstance(value, str):
+        return ConstantCp(quantity(value, "molar_heat_capacity", source, key))
+    t = Table(value, source, key, {"constant", "nasa7", "shomate", "t_min", "t_max"})
+    kinds = [k for k in ("constant", "nasa7", "shomate") if t.has(k)]
+    if len(kinds) != 1:
+        raise CaseError(source, key, 'give exactly one of "constant", "nasa7", "shomate" (or a string such '
+                        'as "30 J/mol/K")')
+    kind = kinds[0]
+    if kind == "constant":
+        model = ConstantCp(t.quantity("constant", "molar_heat_capacity"),
+                           t.quantity("t_min", "temperature", default=200.0),
+                           t.quantity("t_max", "temperature", default=3000.0))
+    elif kind == "nasa7":
+        n = t.sub("nasa7", {"low", "high", "t_mid", "t_min", "t_max"})
+        low, high = (_coefficients(n.raw(k, required=True), 7, source, n.key(k)) for k in ("low", "high"))
+        model = Nasa7(low, high, n.quantity("t_mid", "temperature", default=1000.0),
+                      n.quantity("t_min", "temperature", default=300.0),
+                      n.quantity("t_max", "temperature", default=5000.0))
+        n.finish()
+    else:
+        rows = t.raw("shomate")
+        if not isinstance(rows, list) or not rows:
+            raise CaseError(source, f"{key}.shomate", "must be a list of {t_min, t_max, coefficients} tables")
+        ranges = []
+        for i, row in enumerate(rows):
+            r = Table(row, source, f"{key}.shomate[{i}]", {"t_min", "t_max", "coefficients"})
+            ranges.append((r.quantity("t_min", "temperature"), r.quantity("t_max", "temperature"),
+                           _coefficients(r.raw("coefficients", required=True), 8, source, r.key("coefficients"))))
+        for (lo1, hi1, _), (lo2, _hi2, _) in zip(ranges, ranges[1:]):
+            if abs(hi1 - lo2) > 1e-6:
+                raise CaseError(source, f"{key}.shomate", "ranges must be ascending and touch")
+        model = Shomate(tuple(ranges))
+    t.finish()
+    problem = cp_problem(model)
+    if problem:
+        raise CaseError(source, key, f"non-physical heat capacity: {problem}")
+    return model
+
+
+def _coefficients(value, count, source, key):
+    if (not isinstance(value, list) or len(value) != count
+            or not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in value)):
+        raise CaseError(source, key, f"must be a list of {count} numbers")
+    return tuple(float(v) for v in value)
+
+
+def _species(table: Table, source):
+    out = []
+    for name, spec in table.data.items():
+        table.used.add(name)
+        t = Table(spec, source, f"chemistry.species.{name}",
+                  {"formula", "molar_mass", "heat_of_formation", "entropy", "cp"})
+        elements = {}
+        formula = t.text("formula", default="")
+        if formula:
+            try:
+                elements = parse_formula(formula)
+            except ValueError as err:
+                raise CaseError(source, t.key("formula"), str(err)) from err
+        if t.has("molar_mass"):
+            mm = t.quantity("molar_mass", "molar_mass")
+        elif elements:
+            mm = formula_mass(elements)
+        else:
+            raise CaseError(source, t.key("molar_mass"), "missing: give molar_mass or formula")
+        hf = t.quantity("heat_of_formation", "molar_energy", default=0.0, positive=False)
+        s0 = t.quantity("entropy", "molar_entropy", default=None, required=False)
+        cp_value = t.raw("cp", required=True)
+        cp = _cp_model(cp_value, source, t.key("cp"))
+        t.finish()
+        out.append(Species(name, mm, hf, cp, elements, s0))
+    if not out:
+        raise CaseError(source, "chemistry.species", "no species given")
+    return out
+
+
+def _rate_units(basis: str, driving: str, order: float) -> str:
+    rate = "mol/m^3/s" if basis == "volume" else "mol/kg/s"
+    drive = "mol/m^3" if driving == "concentration" else "Pa"
+    return f"({rate}) / ({drive})**{order!r}" if order else rate
+
+
+def _reactions(table: Table, species, phase, has_bed, source):
+    names = [s.name for s in species]
+    smap = {s.name: s for s in species}
+    out = []
+    for rname, spec in table.data.items():
+        table.used.add(rname)
+        t = Table(spec, source, f"chemistry.reactions.{rname}",
+                  {"equation", "k_ref", "activation_energy", "t_ref", "orders", "driving", "basis",
+                   "heat_of_reaction", "equilibrium_constant", "adsorption", "inhibition_exponent"})
+        eq = t.text("equation")
+        try:
+            nu, reversible = parse_equation(eq)
+        except ValueError as err:
+            raise CaseError(source, t.key("equation"), str(err)) from err
+        for s in nu:
+            if s not in smap:
+                raise CaseError(source, t.key("equation"), f'unknown species "{s}"{suggest(s, names)}; '
+                                f"species are: {', '.join(names)}")
+        if all(smap[s].elements for s in nu):
+            for el in sorted({e for s in nu for e in smap[s].elements}):
+                balance = sum(n * smap[s].elements.get(el, 0) for s, n in nu.items())
+                if abs(balance) > 1e-9:
+                    raise CaseError(source, t.key("equation"),
+                                    f'"{eq}" does not balance: element {el} changes by {balance:+g} per reaction')
+        driving = t.choice("driving", ("concentration", "partial_pressure"), default="concentration")
+        if phase == "liquid" and driving == "partial_pressure":
+            raise CaseError(source, t.key("driving"), 'a liquid-phase case allows only "concentration"')
+        basis = t.choice("basis", ("volume", "catalyst_mass"), default="volume")
+        if basis == "catalyst_mass" and not has_bed:
+            raise CaseError(source, t.key("basis"), '"catalyst_mass" needs a [bed] section')
+        orders_raw = t.raw("orders", required=True)
+        if not isinstance(orders_raw, dict):
+            raise CaseError(source, t.key("orders"), "must be a table such as { A = 1, B = 0.5 }")
+        orders = {}
+        for s, o in orders_raw.items():
+            if s not in smap:
+                raise CaseError(source, f"{t.key('orders')}.{s}", f'order for a species that is not in '
+                                f"[chemistry.species]{suggest(s, names)}")
+            if isinstance(o, bool) or not isinstance(o, (int, float)) or o < 0:
+                raise CaseError(source, f"{t.key('orders')}.{s}", f"must be a number >= 0, got {o!r}")
+            orders[s] = float(o)
+        if reversible:
+            for s in set(orders) | set(nu):
+                if orders.get(s, 0.0) + nu.get(s, 0.0) < -1e-12:
+                    raise CaseError(source, f"{t.key('orders')}.{s}",
+                                    f"reverse order = order + stoichiometric coefficient = "
+                                    f"{orders.get(s, 0.0) + nu.get(s, 0.0):g} < 0; raise the forward order of {s}")
+        total_order = sum(orders.values())
+        k_ref = to_si(t.raw("k_ref", required=True), _rate_units(basis, driving, total_order), source, t.key("k_ref"))
+        if not k_ref > 0:
+            raise CaseError(source, t.key("k_ref"), "must be greater than zero")
+        ea = t.quantity("activation_energy", "molar_energy", positive=False, minimum=0.0)
+        t_ref = t.quantity("t_ref", "temperature")
+        dh = t.quantity("heat_of_reaction", "molar_energy", default=None, required=False, positive=False)
+        k_eq = None
+        if t.has("equilibrium_constant"):
+            if not reversible:
+                raise CaseError(source, t.key("equilibrium_constant"), 'only for reversible reactions ("<=>")')
+            dn = sum(nu.values())
+            unit = ("mol/m^3" if driving == "concentration" else "Pa")
+            k_eq = to_si(t.raw("equilibrium_constant"), f"({unit})**{dn!r}" if dn else "", source,
+                         t.key("equilibrium_constant"))
+        elif reversible:
+            missing = [s for s in nu if smap[s].entropy is None]
+            if missing or phase == "liquid":
+                why = (f"species without entropy: {', '.join(missing)}" if missing
+                       else "thermochemical K is for the gas phase")
+                raise CaseError(source, t.key("equilibrium_constant"),
+                                f"missing: a reversible reaction needs equilibrium_constant ({why})")
+        ads = []
+        for i, row in enumerate(t.raw("adsorption", default=[]) or []):
+            a = Table(row, source, f"{t.key('adsorption')}[{i}]", {"species", "k_ref", "heat", "exponent"})
+            s = a.text("species")
+            if s not in smap:
+                raise CaseError(source, a.key("species"), f'unknown species "{s}"{suggest(s, names)}')
+            n = a.number("exponent", default=1.0, low=0.0)
+            unit = ("mol/m^3" if driving == "concentration" else "Pa")
+            ads.append(Adsorption(s, to_si(a.raw("k_ref", required=True), f"1/({unit})**{n!r}", source,
+                                           a.key("k_ref")),
+                                  a.quantity("heat", "molar_energy", default=0.0, positive=False), n))
+            a.finish()
+        inhibition = t.number("inhibition_exponent", default=1.0, low=0.0)
+        t.finish()
+        out.append(Reaction(rname, eq, nu, reversible, k_ref, ea, t_ref, orders, driving, basis, tuple(ads),
+                            inhibition, k_eq, dh))
+    if not out:
+        raise CaseError(source, "chemistry.reactions", "no reactions given")
+    return out
+
+
+def _feed(t: Table, species, phase, source):
+    t.allowed = {"molar_flow", "mass_flow", "composition", "molar_flows", "temperature", "pressure",
+                 "viscosity", "thermal_conductivity", "density", "diffusivity"}
+    names = [s.name for s in species]
+    flows = [0.0] * len(species)
+    if t.has("molar_flows"):
+        table = t.sub("molar_flows", set(names))
+        for name in table.data:
+            if name not in names:
+                raise CaseError(source, table.key(name), f"not a species{suggest(name, names)}")
+            flows[names.index(name)] = table.quantity(name, "molar_flow", positive=False, minimum=0.0)
+    else:
+        comp = t.sub("composition")
+        fractions = [0.0] * len(species)
+        for name, y in comp.data.items():
+            if name not in names:
+                raise CaseError(source, comp.key(name), f"not a species{suggest(name, names)}")
+            if isinstance(y, bool) or not isinstance(y, (int, float)) or y < 0:
+                raise CaseError(source, comp.key(name), f"mole fraction must be a number >= 0, got {y!r}")
+            fractions[names.index(name)] = float(y)
+        total = sum(fractions)
+        if abs(total - 1.0) > 1e-3:
+            raise CaseError(source, comp.key(""), f"mole fractions sum to {total:.6g}; allowed: 1 within 0.001")
+        fractions = [y / total for y in fractions]
+        if t.has("molar_flow"):
+            ft = t.quantity("molar_flow", "molar_flow")
+        else:
+            mdot = t.quantity("mass_flow", "mass_flow")
+            ft = mdot / sum(y * s.molar_mass for y, s in zip(fractions, species))
+        flows = [y * ft for y in fractions]
+    if not sum(flows) > 0:
+        raise CaseError(source, "feed", "total feed flow must be greater than zero")
+    density = t.quantity("density", "density", default=None, required=phase == "liquid")
+    feed = C.Feed(tuple(flows), t.quantity("temperature", "temperature"), t.quantity("pressure", "pressure"),
+                  t.quantity("viscosity", "viscosity"),
+                  t.quantity("thermal_conductivity", "thermal_conductivity", default=None, required=False),
+                  density, t.quantity("diffusivity", "diffusivity", default=None, required=False))
+    t.finish()
+    return feed
+
+
+def _coolant(t: Table, feed, source):
+    t.allowed = {"mode", "temperature", "mass_flow", "cp", "pressure"}
+    mode = t.choice("mode", C.COOLANT_MODES)
+    temperature = mass_flow = cp = pressure = None
+    if mode in ("constant", "cocurrent", "countercurrent"):
+        temperature = t.quantity("temperature", "temperature")
+    if mode in ("cocurrent", "countercurrent"):
+        mass_flow = t.quantity("mass_flow", "mass_flow")
+        cp = t.quantity("cp", "specific_heat_capacity")
+    if mode == "boiling_water":
+        from .correlations import water_saturation_temperature
+
+        pressure = t.quantity("pressure", "pressure")
+        try:
+            temperature = water_saturation_temperature(pressure)
+        except ValueError as err:
+            raise CaseError(source, "coolant.pressure", str(err)) from err
+    if mode == "isothermal":
+        temperature = feed.temperature
+    t.finish()
+    return C.Coolant(mode, temperature, mass_flow, cp, pressure)
+
+
+def _heat_transfer(t: Table | None, coolant, bed, feed, source):
+    if coolant.mode in ("adiabatic", "isothermal"):
+        if t is not None:
+            t.allowed = {"overall", "inside", "outside", "multiplier"}
+            t.finish()
+        return C.HeatTransfer()
+    if t is None:
+        raise CaseError(source, "heat_transfer", f'missing: coolant mode "{coolant.mode}" needs heat_transfer.overall '
+                        "or heat_transfer.outside (with the inside correlation)")
+    t.allowed = {"overall", "inside", "outside", "multiplier"}
+    multiplier = t.number("multiplier", default=1.0, low=0.0)
+    if t.has("overall"):
+        ht = C.HeatTransfer(overall=t.quantity("overall", "heat_transfer_coefficient"), multiplier=multiplier)
+    else:
+        default = "leva" if bed is not None else "gnielinski"
+        inside = t.choice("inside", C.INSIDE_CORRELATIONS, default=default)
+        if (inside == "leva") != (bed is not None):
+            raise CaseError(source, "heat_transfer.inside", '"leva" is for packed beds only; empty tubes allow '
+                            '"gnielinski", "dittus_boelter", "laminar"')
+        if feed.thermal_conductivity is None:
+            raise CaseError(source, "feed.thermal_conductivity", "missing: needed by the inside heat-transfer "
+                            "correlation")
+        ht = C.HeatTransfer(inside=inside, outside=t.quantity("outside", "heat_transfer_coefficient"),
+                            multiplier=multiplier)
+    t.finish()
+    return ht
+
+
+LIMIT_KEYS = {"max_temperature": "temperature", "max_pressure_drop": "pressure"}
+
+
+def _limits(t: Table | None) -> dict:
+    if t is None:
+        return {}
+    out = {}
+    for key in t.data:
+        if key in LIMIT_KEYS:
+            out[key] = t.quantity(key, LIMIT_KEYS[key])
+        else:
+            t.used.add(key)  # limits of the optimiser are read there; kept raw
+    return out
+

@@ -1,0 +1,257 @@
+"""Validity and safety checks reported with every simulation.
+
+Each check returns Findings; level "warning" means the ideal plug-flow screening model or the design is
+questionable there, "info" reports a figure that passed. Criteria and thresholds are named in each function.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from . import correlations as corr
+from .summary import heat_generation_profile
+from .thermo import R_GAS
+
+RUNAWAY_SENSITIVITY_LIMIT = 5.0  # our threshold on the normalised sensitivity (see runaway_sensitivity)
+
+
+@dataclass(frozen=True)
+class Finding:
+    code: str
+    level: str  # "info" | "warning"
+    message: str
+    value: float | None = None
+    limit: float | None = None
+
+    def as_dict(self) -> dict:
+        return {"code": self.code, "level": self.level, "message": self.message, "value": self.value,
+                "limit": self.limit}
+
+
+def _flux(case):
+    return sum(f * s.molar_mass for f, s in zip(case.feed.molar_flows, case.species)) / (
+        case.tube.count * case.tube.area)
+
+
+def reynolds(case) -> float:
+    """Tube Reynolds number G d/mu (empty tube) or particle Reynolds number G d_p/mu (packed bed)."""
+    d = case.bed.particle_diameter if case.bed is not None else case.tube.inner_diameter
+    return _flux(case) * d / case.feed.viscosity
+
+
+def flow_regime(case) -> list[Finding]:
+    re = reynolds(case)
+    if case.bed is not None:
+        return [Finding("flow_regime", "info", f"particle Reynolds number {re:.4g}", re)]
+    if re < 2300:
+        return [Finding("flow_regime", "warning", f"laminar flow (Re = {re:.4g} < 2300): radial velocity and "
+                        "temperature profiles are not flat, so plug flow overstates conversion control", re, 2300)]
+    if re < 1.0e4:
+        return [Finding("flow_regime", "warning", f"transitional flow (Re = {re:.4g}); correlations are "
+                        "uncertain between 2300 and 10^4", re, 1.0e4)]
+    return [Finding("flow_regime", "info", f"turbulent flow, Re = {re:.4g}", re)]
+
+
+def tube_to_particle(case) -> list[Finding]:
+    """d_t/d_p >= 10 keeps wall channelling and the voidage rise at the wall small (common practice)."""
+    if case.bed is None:
+        return []
+    ratio = case.tube.inner_diameter / case.bed.particle_diameter
+    level = "warning" if ratio < 10 else "info"
+    return [Finding("tube_to_particle", level, f"tube-to-particle diameter ratio {ratio:.3g} (want >= 10)",
+                    ratio, 10.0)]
+
+
+def axial_dispersion(case, result) -> list[Finding]:
+    """Mears-type criterion for neglecting axial dispersion (Mears, Chem. Eng. Sci. 26, 1971, 1361-1366,
+    as commonly restated): L/d > (20 n / Pe) ln(1/(1 - X)), with d the particle (bed) or tube diameter,
+    n the reaction order of the key reactant and Pe = u d / D_ax. Pe = 2 for gases in packed beds
+    (Re_p > 10; from memory, common practice); for empty tubes D_ax from Wen and Fan (1975, from memory):
+    D_ax/(u d) = 3e7/Re^2.1 + 1.35/Re^0.125 (turbulent) or Taylor-Aris D_m + u^2 d^2/(192 D_m) (laminar)."""
+    x = result.summary["conversion"]
+    if not 0.0 < x < 1.0:
+        return []
+    order = max([rx.orders.get(case.key_reactant, 0.0) for rx in case.reactions] + [1.0])
+    length = result.summary["length_m"]
+    if case.bed is not None:
+        d, pe = case.bed.particle_diameter, 2.0
+    else:
+        d = case.tube.inner_diameter
+        re = reynolds(case)
+        if re >= 2300:
+            pe = 1.0 / (3.0e7 / re**2.1 + 1.35 / re**0.125)
+        elif case.feed.diffusivity is not None:
+            u = length / max(result.summary["residence_time_s"], 1e-30)
+            dm = case.feed.diffusivity
+            pe = u * d / (dm + u**2 * d**2 / (192.0 * dm))
+        else:
+            return [Finding("axial_dispersion", "warning", "laminar flow and no feed.diffusivity: axial "
+                            "dispersion not assessed")]
+    need = 20.0 * order / pe * math.log(1.0 / (1.0 - x))
+    have = length / d
+    level = "warning" if have < need else "info"
+    return [Finding("axial_dispersion", level, f"L/d = {have:.4g}, Mears-type minimum {need:.4g}", have, need)]
+
+
+def radial_gradient(case, result) -> list[Finding]:
+    """Radial temperature non-uniformity at the hot spot, for a uniformly heated cylinder (analytic):
+    dT_r = q''' R^2 / (4 lambda_er). The one-dimensional model holds while the rate varies little over the
+    radius, E dT_r / (R T^2) < 0.05 (linearised Arrhenius; in the spirit of Mears, Ind. Eng. Chem. Process
+    Des. Dev. 10, 1971, 541). lambda_er = lambda_f (5 + 0.1 Re_p Pr) for packed beds (from memory, a
+    common-practice estimate); empty tubes are checked by their flow regime instead."""
+    if case.bed is None or case.feed.thermal_conductivity is None or case.coolant.mode == "adiabatic":
+        return []
+    cols = result.columns
+    q = heat_generation_profile(case, cols)
+    i = int(np.argmax(q))
+    T = float(cols["T_K"][i])
+    lam_f = case.feed.thermal_conductivity
+    cp_mass = _cp_mass(case, T)
+    pr = cp_mass * case.feed.viscosity / lam_f
+    lam_er = lam_f * (5.0 + 0.1 * reynolds(case) * pr)
+    radius = case.tube.inner_diameter / 2.0
+    dT = float(q[i]) * radius**2 / (4.0 * lam_er)
+    e_a = max(rx.activation_energy for rx in case.reactions)
+    group = e_a * dT / (R_GAS * T**2)
+    level = "warning" if group > 0.05 else "info"
+    return [Finding("radial_gradient", level, f"estimated centre-to-wall temperature difference {dT:.3g} K at "
+                    f"z = {cols['z_m'][i]:.3g} m; E dT/(R T^2) = {group:.3g} (limit 0.05)", group, 0.05)]
+
+
+def _cp_mass(case, T):
+    from .backend import NUMPY
+
+    f = np.array(case.feed.molar_flows)
+    cp = sum(fi * s.cp(NUMPY, T) for fi, s in zip(f, case.species))
+    return float(cp / sum(fi * s.molar_mass for fi, s in zip(f, case.species)))
+
+
+def temperature_limit(case, result) -> list[Finding]:
+    limit = case.limits.get("max_temperature")
+    if limit is None:
+        return []
+    tmax = result.summary["max_temperature_K"]
+    margin = limit - tmax
+    if margin < 0:
+        return [Finding("temperature_limit", "warning", f"hot spot {tmax:.1f} K exceeds the limit {limit:.1f} K "
+                        f"by {-margin:.1f} K", tmax, limit)]
+    level = "warning" if margin < 10.0 else "info"
+    return [Finding("temperature_limit", level, f"hot spot {tmax:.1f} K is {margin:.1f} K below the limit "
+                    f"{limit:.1f} K", tmax, limit)]
+
+
+def pressure_limit(case, result) -> list[Finding]:
+    limit = case.limits.get("max_pressure_drop")
+    if limit is None:
+        return []
+    dp = result.summary["pressure_drop_Pa"]
+    level = "warning" if dp > limit else "info"
+    return [Finding("pressure_limit", level, f"pressure drop {dp:.4g} Pa, limit {limit:.4g} Pa", dp, limit)]
+
+
+def runaway_sensitivity(case, result, step: float = 0.5) -> list[Finding]:
+    """Normalised sensitivity of the hot-spot temperature T* to a parameter phi (Morbidelli and Varma,
+    AIChE J. 28, 1982, 705-713): s(T*; phi) = (phi / T*) dT*/dphi, by central differences of re-simulations
+    (step in K). Their runaway boundary is where s peaks as phi varies; as a single-point screen we flag
+    s > 5 (our threshold: a reactor far from runaway has s near 1, as T* follows the coolant)."""
+    out = []
+    targets = []
+    if case.coolant.mode not in ("adiabatic", "isothermal"):
+        targets.append(("coolant temperature", "coolant"))
+    if case.coolant.mode != "isothermal":
+        targets.append(("feed temperature", "feed"))
+    from .simulate import simulate
+
+    tstar = result.summary["max_temperature_K"]
+    for label, which in targets:
+        values = []
+        for sign in (-1.0, 1.0):
+            if which == "coolant":
+                c = replace(case, coolant=replace(case.coolant, temperature=case.coolant.temperature + sign * step))
+                phi = case.coolant.temperature
+            else:
+                c = replace(case, feed=replace(case.feed, temperature=case.feed.temperature + sign * step))
+                phi = case.feed.temperature
+            r = simulate(c, checks=False, coolant_guess=float(result.columns["Tc_K"][0]))
+            values.append(r.summary.get("max_temperature_K", float("nan")) if r.ok else float("nan"))
+        s = phi / tstar * (values[1] - values[0]) / (2.0 * step)
+        if not np.isfinite(s):
+            out.append(Finding("runaway_sensitivity", "warning", f"hot-spot sensitivity to {label} could not "
+                               "be computed: a perturbed simulation stopped (runaway or pressure floor)"))
+            continue
+        level = "warning" if s > RUNAWAY_SENSITIVITY_LIMIT else "info"
+        out.append(Finding(f"runaway_sensitivity_{which}", level, f"normalised hot-spot sensitivity to {label} "
+                           f"s = {s:.3g} (flag above {RUNAWAY_SENSITIVITY_LIMIT:g})", s,
+                           RUNAWAY_SENSITIVITY_LIMIT))
+    return out
+
+
+def semenov_bound(case, result) -> list[Finding]:
+    """Quick runaway screen in the spirit of van Welsenaere and Froment (Chem. Eng. Sci. 25, 1970, 1503):
+    the hot spot should stay within about R Tc^2 / E of the coolant temperature, the Semenov-type critical
+    temperature rise of an Arrhenius heat source (from memory). E is that of the reaction releasing the
+    most heat at the hot spot."""
+    if case.coolant.mode in ("adiabatic", "isothermal"):
+        return []
+    tc = case.coolant.temperature
+    cols = result.columns
+    e_a = _dominant_activation_energy(case, cols, int(np.argmax(cols["T_K"])))
+    bound = R_GAS * tc**2 / e_a
+    rise = result.summary["max_temperature_K"] - tc
+    level = "warning" if rise > bound else "info"
+    return [Finding("semenov_bound", level, f"hot spot {rise:.1f} K above the coolant; bound R Tc^2/E = "
+                    f"{bound:.1f} K", rise, bound)]
+
+
+def _dominant_activation_energy(case, cols, i):
+    from .backend import NUMPY
+    from .balances import local_properties, rates
+    from .reactions import heat_of_reaction
+
+    n_t = case.tube.count
+    F = [float(cols[f"F_{name}_mol_s"][i]) / n_t for name in case.names]
+    T, P = float(cols["T_K"][i]), float(cols["P_Pa"][i])
+    local = local_properties(NUMPY, case, F, T, P)
+    heats = [-heat_of_reaction(NUMPY, rx, case.species_map, T) * r
+             for rx, r in zip(case.reactions, rates(NUMPY, case, T, local))]
+    return case.reactions[int(np.argmax(heats))].activation_energy or 1.0
+
+
+def correlation_ranges(case, result) -> list[Finding]:
+    """Validity ranges of the correlations and cp polynomials at the visited states, as warnings."""
+    msgs = []
+    re = reynolds(case)
+    ht = case.heat_transfer
+    if case.bed is not None:
+        msgs += corr.out_of_range(corr.ergun_pressure_gradient, Re_p=(re, re), voidage=(case.bed.voidage,) * 2)
+        if ht.inside == "leva":
+            r = case.bed.particle_diameter / case.tube.inner_diameter
+            msgs += corr.out_of_range(corr.leva_cooling_wall_nusselt, Re_p=(re, re), dp_dt=(r, r))
+    else:
+        msgs += corr.out_of_range(corr.churchill_1977_friction, Re=(re, re))
+        fn = {"gnielinski": corr.gnielinski_nusselt, "dittus_boelter": corr.dittus_boelter_nusselt,
+              "laminar": corr.laminar_nusselt}.get(ht.inside)
+        if fn is not None:
+            msgs += corr.out_of_range(fn, Re=(re, re))
+    t = result.columns["T_K"]
+    for sp in case.species:
+        lo, hi = sp.cp_model.t_min, sp.cp_model.t_max
+        if t.min() < lo or t.max() > hi:
+            msgs.append(f"cp of {sp.name}: temperatures {t.min():.1f}..{t.max():.1f} K leave its range "
+                        f"{lo:.1f}..{hi:.1f} K")
+    return [Finding("correlation_range", "warning", m) for m in msgs]
+
+
+def run_checks(case, result) -> list[Finding]:
+    out = []
+    for check in (flow_regime, tube_to_particle):
+        out += check(case)
+    for check in (axial_dispersion, radial_gradient, temperature_limit, pressure_limit, correlation_ranges):
+        out += check(case, result)
+    if result.ok:
+        out += runaway_sensitivity(case, result)
+        out += semenov_bound(case, result)
+    return out

@@ -4,6 +4,6 @@ Public API: ``load_case(path, overrides=None)`` -> Case, ``simulate(case)`` -> S
 
 from .casefile import load_case
 from .errors import CaseError
-from .simulate import SimulationResult, simulate
+from .simulator import SimulationResult, simulate
 
 __all__ = ["load_case", "simulate", "CaseError", "SimulationResult"]

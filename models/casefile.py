@@ -337,6 +337,11 @@ def _reactions(table: Table, species, phase, has_bed, source):
                 if abs(balance) > 1e-9:
                     raise CaseError(source, t.key("equation"),
                                     f'"{eq}" does not balance: element {el} changes by {balance:+g} per reaction')
+        mass_change = sum(n * smap[s].molar_mass for s, n in nu.items())
+        scale = sum(abs(n) * smap[s].molar_mass for s, n in nu.items())
+        if abs(mass_change) > 1e-6 * scale:
+            raise CaseError(source, t.key("equation"), f'"{eq}" does not conserve mass: the molar masses give '
+                            f"{mass_change * 1e3:+.6g} g per mole of reaction")
         driving = t.choice("driving", ("concentration", "partial_pressure"), default="concentration")
         if phase == "liquid" and driving == "partial_pressure":
             raise CaseError(source, t.key("driving"), 'a liquid-phase case allows only "concentration"')

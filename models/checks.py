@@ -152,36 +152,32 @@ def pressure_limit(case, result) -> list[Finding]:
     return [Finding("pressure_limit", level, f"pressure drop {dp:.4g} Pa, limit {limit:.4g} Pa", dp, limit)]
 
 
-def runaway_sensitivity(case, result, step: float = 0.5) -> list[Finding]:
+def runaway_sensitivity(case, result, step: float = 1.0) -> list[Finding]:
     """Normalised sensitivity of the hot-spot temperature T* to a parameter phi (Morbidelli and Varma,
-    AIChE J. 28, 1982, 705-713): s(T*; phi) = (phi / T*) dT*/dphi, by central differences of re-simulations
-    (step in K). Their runaway boundary is where s peaks as phi varies; as a single-point screen we flag
-    s > 5 (our threshold: a reactor far from runaway has s near 1, as T* follows the coolant)."""
+    AIChE J. 28, 1982, 705-713): s(T*; phi) = (phi / T*) dT*/dphi, by a forward difference of one
+    re-simulation with phi + step (step in K). Their runaway boundary is where s peaks as phi varies; as a
+    single-point screen we flag s > 5 (our threshold: a reactor far from runaway has s near 1 or below, as
+    T* follows the coolant)."""
+    from .simulator import simulate
+
     out = []
+    tstar = result.summary["max_temperature_K"]
     targets = []
     if case.coolant.mode not in ("adiabatic", "isothermal"):
-        targets.append(("coolant temperature", "coolant"))
+        targets.append(("coolant temperature", "coolant", case.coolant.temperature))
     if case.coolant.mode != "isothermal":
-        targets.append(("feed temperature", "feed"))
-    from .simulate import simulate
-
-    tstar = result.summary["max_temperature_K"]
-    for label, which in targets:
-        values = []
-        for sign in (-1.0, 1.0):
-            if which == "coolant":
-                c = replace(case, coolant=replace(case.coolant, temperature=case.coolant.temperature + sign * step))
-                phi = case.coolant.temperature
-            else:
-                c = replace(case, feed=replace(case.feed, temperature=case.feed.temperature + sign * step))
-                phi = case.feed.temperature
-            r = simulate(c, checks=False, coolant_guess=float(result.columns["Tc_K"][0]))
-            values.append(r.summary.get("max_temperature_K", float("nan")) if r.ok else float("nan"))
-        s = phi / tstar * (values[1] - values[0]) / (2.0 * step)
-        if not np.isfinite(s):
-            out.append(Finding("runaway_sensitivity", "warning", f"hot-spot sensitivity to {label} could not "
-                               "be computed: a perturbed simulation stopped (runaway or pressure floor)"))
+        targets.append(("feed temperature", "feed", case.feed.temperature))
+    for label, which, phi in targets:
+        if which == "coolant":
+            moved = replace(case, coolant=replace(case.coolant, temperature=phi + step))
+        else:
+            moved = replace(case, feed=replace(case.feed, temperature=phi + step))
+        r = simulate(moved, checks=False, coolant_guess=float(result.columns["Tc_K"][0]))
+        if not r.ok:
+            out.append(Finding(f"runaway_sensitivity_{which}", "warning", f"raising the {label} by {step:g} K "
+                               f"stops the simulation ({r.reason}): runaway-sensitive"))
             continue
+        s = phi / tstar * (r.summary["max_temperature_K"] - tstar) / step
         level = "warning" if s > RUNAWAY_SENSITIVITY_LIMIT else "info"
         out.append(Finding(f"runaway_sensitivity_{which}", level, f"normalised hot-spot sensitivity to {label} "
                            f"s = {s:.3g} (flag above {RUNAWAY_SENSITIVITY_LIMIT:g})", s,

@@ -144,7 +144,7 @@ def reaction_rate(m, rx: Reaction, species: dict, T, drive: dict):
     rate = forward
     if rx.reversible:
         backward = k / equilibrium_constant(m, rx, species, T)
-        for name in set(rx.orders) | set(rx.nu):
+        for name in sorted(set(rx.orders) | set(rx.nu)):
             backward = backward * _power(drive[name], rx.orders.get(name, 0.0) + rx.nu.get(name, 0.0))
         rate = forward - backward
     if rx.adsorption:

@@ -95,7 +95,7 @@ def _coolant_outlet(case, y) -> float | None:
 
 
 def build_result(case, sol, status, reason, t0):
-    from .simulate import PROFILE_POINTS, SimulationResult
+    from .simulator import PROFILE_POINTS, SimulationResult
 
     elapsed = time.perf_counter() - t0
     if sol is None or getattr(sol, "t", None) is None or len(sol.t) < 2:

@@ -1,0 +1,1 @@
+"""tubewright design layer: command line, plots and reports (optimisation, screening and studies grow here)."""

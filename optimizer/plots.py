@@ -1,0 +1,36 @@
+"""Axial-profile plot of a simulation: temperatures (gas, coolant, limit), conversion, pressure."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+
+def plot_profiles(case, result, path: Path) -> Path:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    cols = result.columns
+    z = cols["z_m"]
+    fig, axes = plt.subplots(3, 1, figsize=(7.0, 8.0), sharex=True)
+    ax = axes[0]
+    ax.plot(z, cols["T_K"], label="fluid")
+    if case.coolant.mode not in ("adiabatic", "isothermal"):
+        ax.plot(z, cols["Tc_K"], "--", label="coolant")
+    if "max_temperature" in case.limits:
+        ax.axhline(case.limits["max_temperature"], color="red", lw=0.8, ls=":", label="temperature limit")
+    ax.set_ylabel("temperature [K]")
+    ax.legend(loc="best", fontsize=8)
+    axes[1].plot(z, cols["conversion"])
+    axes[1].set_ylabel(f"conversion of {case.key_reactant} [-]")
+    axes[2].plot(z, cols["P_Pa"] / 1e5)
+    axes[2].set_ylabel("pressure [bar]")
+    axes[2].set_xlabel("axial position z [m]")
+    fig.suptitle(case.title, fontsize=9)
+    fig.text(0.01, 0.005, "Screening estimate only - verify before use.", fontsize=7, color="gray")
+    fig.tight_layout(rect=(0, 0.02, 1, 0.97))
+    path = Path(path)
+    fig.savefig(path, dpi=110)
+    plt.close(fig)
+    return path

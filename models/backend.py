@@ -1,10 +1,11 @@
 """The small math backend that every balance and correlation is written against.
 
-A backend is a namespace with ``exp``, ``log``, ``sqrt`` and ``where(condition, a, b)``. Arithmetic operators (``+ - * / **``) are used
-directly. With ``NUMPY`` the physics yields numbers (scalars, or arrays for many samples at once); with
-``pyomo_backend()`` the same functions yield Pyomo expressions for the collocation model. No physics function
-may branch on the value of a state variable with ``if``: such branches would differ between the two backends;
-piecewise physics (two-range heat-capacity polynomials) goes through ``where``.
+A backend is a namespace with ``exp``, ``log``, ``sqrt`` and ``where(condition, a, b)``. Arithmetic
+operators (``+ - * / **``) are used directly. With ``NUMPY`` the physics yields numbers (scalars, or arrays
+for many samples at once); with ``pyomo_backend()`` the same functions yield Pyomo expressions for the
+collocation model. No physics function may branch on the value of a state variable with ``if``: such
+branches would differ between the two backends; piecewise physics (two-range heat-capacity polynomials)
+goes through ``where``.
 """
 
 from __future__ import annotations

@@ -75,6 +75,8 @@ def apply_overrides(data: dict, overrides: dict, source: str) -> dict:
             if not isinstance(node, dict):
                 raise CaseError(source, dotted, f'"{".".join(parts[:depth])}" is not a table')
             last = depth == len(parts) - 1
+            if part not in node and not last and depth == 0 and part in SECTIONS:
+                node[part] = {}
             if part not in node and not last:
                 raise CaseError(source, dotted, f'no table "{part}"{suggest(part, node)}')
             if last:
@@ -259,7 +261,7 @@ def _cp_model(value, source, key):
             r = Table(row, source, f"{key}.shomate[{i}]", {"t_min", "t_max", "coefficients"})
             ranges.append((r.quantity("t_min", "temperature"), r.quantity("t_max", "temperature"),
                            _coefficients(r.raw("coefficients", required=True), 8, source, r.key("coefficients"))))
-        for (lo1, hi1, _), (lo2, _hi2, _) in zip(ranges, ranges[1:]):
+        for (_, hi1, _), (lo2, _, _) in zip(ranges, ranges[1:]):
             if abs(hi1 - lo2) > 1e-6:
                 raise CaseError(source, f"{key}.shomate", "ranges must be ascending and touch")
         model = Shomate(tuple(ranges))

@@ -115,7 +115,7 @@ class Shomate:
 
     def _piecewise(self, fn, m, T):
         expr = fn(self.ranges[-1][2], T) if fn is self._cp else fn(self.ranges[-1][2], m, T)
-        for lo, hi, c in reversed(self.ranges[:-1]):
+        for _, hi, c in reversed(self.ranges[:-1]):
             piece = fn(c, T) if fn is self._cp else fn(c, m, T)
             expr = m.where(T <= hi, piece, expr)
         return expr

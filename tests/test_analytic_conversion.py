@@ -8,6 +8,7 @@ import pytest
 from models import simulate
 from tests.conftest import liquid_case, make
 
+
 def _space_time(case):
     mass = sum(f * s.molar_mass for f, s in zip(case.feed.molar_flows, case.species))
     return case.tube.area * case.tube.length * case.tube.count / (mass / case.feed.density)

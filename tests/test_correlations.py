@@ -54,7 +54,8 @@ def test_leva_wall_coefficient_hand_evaluation():
     # Leva and Grummer (1948) cooling correlation, Nu = 3.50 Re_p^0.7 exp(-4.6 dp/dt), evaluated by hand at
     # Re_p = 1000, dp/dt = 0.1: 3.50 * 125.89254 * 0.63128364 = 278.159 (regression of the printed equation;
     # no worked value from the original paper was available to us).
-    assert corr.leva_cooling_wall_nusselt(m, 1000.0, 0.1) == pytest.approx(3.50 * 1000**0.7 * math.exp(-0.46), rel=1e-14)
+    nu = corr.leva_cooling_wall_nusselt(m, 1000.0, 0.1)
+    assert nu == pytest.approx(3.50 * 1000**0.7 * math.exp(-0.46), rel=1e-14)
     assert corr.leva_cooling_wall_nusselt(m, 1000.0, 0.1) == pytest.approx(278.159, rel=1e-5)
 
 

@@ -1,0 +1,87 @@
+"""Typed outcomes: stopped simulations keep their profile; the CLI prints the summary and JSON fields."""
+
+import json
+
+import numpy as np
+import pytest
+
+from models import load_case, simulate
+from optimizer.cli import main
+from tests.conftest import DEMO, liquid_case, make
+
+BRIEF_FIELDS = ["max_temperature_K", "max_temperature_position_m", "pressure_drop_Pa", "conversion",
+                "selectivity", "outlet_molar_flow_mol_s", "heat_removed_W", "coolant_outlet_temperature_K",
+                "length_m", "inner_diameter_m", "tube_count", "inlet_temperature_K", "residence_time_s"]
+
+
+def test_pressure_floor_stops_with_profile():
+    case = load_case(DEMO / "oxidation.toml", {"bed.particle_diameter": "0.3 mm", "tube.inner_diameter": "25.4 mm"})
+    r = simulate(case, checks=False)
+    assert r.status == "stopped" and "pressure fell" in r.reason
+    assert r.summary["length_m"] < case.tube.length
+    z = r.columns["z_m"]
+    assert z[-1] == pytest.approx(r.summary["length_m"]) and len(z) > 10
+
+
+def test_runaway_past_ceiling_stops_with_profile():
+    case = load_case(DEMO / "oxidation.toml", {"coolant.pressure": "140 bar", "numerics.temperature_ceiling": "900 K"})
+    r = simulate(case)
+    assert r.status == "stopped" and "ceiling" in r.reason
+    assert np.max(r.columns["T_K"]) == pytest.approx(900.0, abs=1e-3)
+    assert any(f.code == "temperature_limit" and f.level == "warning" for f in r.findings)
+
+
+def test_runaway_sensitivity_rises_towards_runaway():
+    # Morbidelli-Varma normalised sensitivity: larger closer to the runaway boundary (hotter coolant).
+    def s_of(p):
+        r = simulate(load_case(DEMO / "oxidation.toml", {"coolant.pressure": p}))
+        return next(f.value for f in r.findings if f.code == "runaway_sensitivity_coolant")
+    assert s_of("100 bar") < s_of("110 bar") < s_of("115 bar")
+
+
+def test_reversible_reaction_reaches_given_equilibrium():
+    # Analytic: a long isothermal reactor with A <=> D ends at c_D/c_A = K.
+    data = liquid_case(**{"tube.length": "200 m"})
+    data["chemistry"]["reactions"]["r1"].update({"equation": "A <=> D", "equilibrium_constant": "3"})
+    r = simulate(make(data), checks=False)
+    f = r.summary["outlet_molar_flow_mol_s"]
+    assert f["D"] / f["A"] == pytest.approx(3.0, rel=1e-6)
+
+
+def test_lhhw_inhibition_slows_the_rate():
+    base = make(liquid_case())
+    data = liquid_case()
+    data["chemistry"]["reactions"]["r1"]["adsorption"] = [{"species": "A", "k_ref": "0.05 m^3/mol"}]
+    slow = make(data)
+    x0 = simulate(base, checks=False).summary["conversion"]
+    x1 = simulate(slow, checks=False).summary["conversion"]
+    assert x1 < x0
+
+
+def test_cli_json_has_the_brief_fields(capsys):
+    assert main(["simulate", str(DEMO / "oxidation.toml"), "--json"]) == 0
+    answer = json.loads(capsys.readouterr().out)
+    for key in BRIEF_FIELDS:
+        assert key in answer["summary"], key
+    assert answer["status"] == "ok" and "Screening estimate" in answer["caution"]
+    assert {f["code"] for f in answer["findings"]} >= {"flow_regime", "runaway_sensitivity_coolant", "semenov_bound"}
+
+
+def test_cli_table_and_files(tmp_path, capsys):
+    out = tmp_path / "run"
+    assert main(["simulate", str(DEMO / "coil.toml"), "--out", str(out)]) == 0
+    text = capsys.readouterr().out
+    assert "hot-spot temperature [K]" in text and "CAUTION" in text
+    import pandas as pd
+
+    frame = pd.read_csv(out / "profiles.csv")
+    assert {"z_m", "T_K", "P_Pa", "conversion"} <= set(frame.columns)
+    assert (out / "profiles.png").stat().st_size > 10_000
+    assert json.loads((out / "summary.json").read_text())["status"] == "ok"
+
+
+def test_boiling_water_coolant_temperature_from_pressure():
+    case = load_case(DEMO / "oxidation.toml")
+    from models.correlations import water_saturation_temperature
+
+    assert case.coolant.temperature == pytest.approx(water_saturation_temperature(110e5))

@@ -153,7 +153,7 @@ def shoot_countercurrent(case, guess: float | None = None):
 
     start = tc_in + 1.0 if guess is None else guess
     try:
-        secant = root_scalar(residual, x0=start, x1=start + 0.5, method="secant", xtol=1e-6, maxiter=20)
+        secant = root_scalar(residual, x0=start, x1=start + 0.5, method="secant", xtol=1e-5, maxiter=20)
         if secant.converged and np.isfinite(secant.root):
             return secant.root, "converged"
     except (ValueError, ArithmeticError):

@@ -83,7 +83,7 @@ class Case:
     heat_transfer: HeatTransfer
     numerics: Numerics
     limits: dict = field(default_factory=dict)  # name -> SI value
-    raw: dict = field(default_factory=dict)  # the merged TOML tables, for the verbs of other modules
+    raw: dict = field(default_factory=dict)  # the merged TOML tables ([design], [goal] ... are read elsewhere)
 
     @property
     def names(self) -> list[str]:

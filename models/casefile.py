@@ -23,8 +23,6 @@ else:  # pragma: no cover
 
 SECTIONS = ("title", "note", "include", "chemistry", "feed", "tube", "bed", "coolant", "heat_transfer",
             "limits", "numerics", "design", "goal", "costs", "uncertain")
-# Sections read by the verbs of later stages (optimisation, screening); kept in Case.raw.
-PASS_THROUGH = ("design", "goal", "costs", "uncertain")
 
 
 def read_toml(path: Path) -> dict:
@@ -229,7 +227,7 @@ def build_case(data: dict, source: str) -> C.Case:
     return C.Case(source=source, title=title, phase=phase, species=tuple(species), reactions=tuple(reactions),
                   key_reactant=key, product=product or None, feed=feed, tube=tube, bed=bed, coolant=coolant,
                   heat_transfer=heat, numerics=numerics, limits=limits,
-                  raw={k: copy.deepcopy(data[k]) for k in PASS_THROUGH if k in data} | {"all": data})
+                  raw=copy.deepcopy(data))
 
 
 def _cp_model(value, source, key):

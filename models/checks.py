@@ -12,7 +12,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from . import correlations as corr
-from .summary import heat_generation_profile
+from .summary import reaction_heats
 from .thermo import R_GAS
 
 RUNAWAY_SENSITIVITY_LIMIT = 5.0  # our threshold on the normalised sensitivity (see runaway_sensitivity)
@@ -105,7 +105,7 @@ def radial_gradient(case, result) -> list[Finding]:
     if case.bed is None or case.feed.thermal_conductivity is None or case.coolant.mode == "adiabatic":
         return []
     cols = result.columns
-    q = heat_generation_profile(case, cols)
+    q = reaction_heats(case, cols).sum(axis=0)
     i = int(np.argmax(q))
     T = float(cols["T_K"][i])
     lam_f = case.feed.thermal_conductivity
@@ -196,26 +196,13 @@ def semenov_bound(case, result) -> list[Finding]:
         return []
     tc = case.coolant.temperature
     cols = result.columns
-    e_a = _dominant_activation_energy(case, cols, int(np.argmax(cols["T_K"])))
+    heats = reaction_heats(case, cols)[:, int(np.argmax(cols["T_K"]))]
+    e_a = case.reactions[int(np.argmax(heats))].activation_energy or 1.0
     bound = R_GAS * tc**2 / e_a
     rise = result.summary["max_temperature_K"] - tc
     level = "warning" if rise > bound else "info"
     return [Finding("semenov_bound", level, f"hot spot {rise:.1f} K above the coolant; bound R Tc^2/E = "
                     f"{bound:.1f} K", rise, bound)]
-
-
-def _dominant_activation_energy(case, cols, i):
-    from .backend import NUMPY
-    from .balances import local_properties, rates
-    from .reactions import heat_of_reaction
-
-    n_t = case.tube.count
-    F = [float(cols[f"F_{name}_mol_s"][i]) / n_t for name in case.names]
-    T, P = float(cols["T_K"][i]), float(cols["P_Pa"][i])
-    local = local_properties(NUMPY, case, F, T, P)
-    heats = [-heat_of_reaction(NUMPY, rx, case.species_map, T) * r
-             for rx, r in zip(case.reactions, rates(NUMPY, case, T, local))]
-    return case.reactions[int(np.argmax(heats))].activation_energy or 1.0
 
 
 def correlation_ranges(case, result) -> list[Finding]:

@@ -116,13 +116,11 @@ def build_result(case, sol, status, reason, t0):
     return SimulationResult(status, reason, summary, columns, [], {"simulate_s": elapsed})
 
 
-def heat_generation_profile(case, columns) -> np.ndarray:
-    """Volumetric heat generation [W/m^3 of bed] along the profile columns (radial-gradient check)."""
+def reaction_heats(case, columns) -> np.ndarray:
+    """Heat released by each reaction [W/m^3 of bed] along the profile columns: shape (reactions, points)."""
     n_t = case.tube.count
-    F = [columns[f"F_{name}_mol_s"] / n_t for name in case.names]
-    T, P = columns["T_K"], columns["P_Pa"]
+    F = [np.asarray(columns[f"F_{name}_mol_s"]) / n_t for name in case.names]
+    T, P = np.asarray(columns["T_K"]), np.asarray(columns["P_Pa"])
     local = local_properties(NUMPY, case, F, T, P)
-    out = 0.0
-    for rx, r in zip(case.reactions, rates(NUMPY, case, T, local)):
-        out = out - heat_of_reaction(NUMPY, rx, case.species_map, T) * r
-    return np.asarray(out)
+    return np.array([-heat_of_reaction(NUMPY, rx, case.species_map, T) * r
+                     for rx, r in zip(case.reactions, rates(NUMPY, case, T, local))])

@@ -85,3 +85,30 @@ def test_boiling_water_coolant_temperature_from_pressure():
     from models.correlations import water_saturation_temperature
 
     assert case.coolant.temperature == pytest.approx(water_saturation_temperature(110e5))
+
+
+def test_equilibrium_constant_from_gibbs_energy():
+    # Analytic: with constant cp and zero delta-cp, K_a = exp(-(dH - T dS)/(R T)); for A <=> 2 B driven by
+    # partial pressures K_p = K_a * P°^(dn), P° = 1 bar, and a long isothermal reactor ends at p_B^2/p_A = K_p.
+    import math
+
+    data = liquid_case(**{
+        "chemistry.phase": "gas",
+        "feed.molar_flows": None, "feed.density": None,
+        "feed.molar_flow": "0.02 mol/s", "feed.composition": {"A": 0.3, "S": 0.7},
+        "feed.viscosity": "1e-12 Pa*s", "tube.roughness": "0 m", "tube.length": "400 m",
+        "chemistry.species.A.entropy": "250 J/mol/K", "chemistry.species.B.entropy": "160 J/mol/K",
+        "chemistry.species.B.cp": "75 J/mol/K", "chemistry.species.A.cp": "150 J/mol/K",
+        "chemistry.species.B.heat_of_formation": "-40 kJ/mol",
+    })
+    data["chemistry"]["reactions"]["r1"] = {"equation": "A <=> 2 B", "orders": {"A": 1}, "k_ref": "1e-5 mol/m^3/s/Pa",
+                                            "activation_energy": "50 kJ/mol", "t_ref": "350 K",
+                                            "driving": "partial_pressure"}
+    case = make(data)
+    r = simulate(case, checks=False)
+    f = r.summary["outlet_molar_flow_mol_s"]
+    total = sum(f.values())
+    p = r.summary["outlet_pressure_Pa"]
+    dh, ds, T = 2 * -40e3 - -100e3, 2 * 160.0 - 250.0, 350.0
+    k_p = math.exp(-(dh - T * ds) / (8.314462618 * T)) * 1e5
+    assert (f["B"] * p / total) ** 2 / (f["A"] * p / total) == pytest.approx(k_p, rel=1e-5)

@@ -107,8 +107,19 @@ def cmd_simulate(args) -> int:
     return EXIT_OK if result.ok else EXIT_NOT_OK
 
 
+def _finite(value):
+    """NaN and infinity are not JSON: they become null."""
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_finite(v) for v in value]
+    return value
+
+
 def _json_answer(case, result, files) -> dict:
-    return {
+    return _finite({
         "case": case.source,
         "title": case.title,
         "status": result.status,
@@ -118,7 +129,7 @@ def _json_answer(case, result, files) -> dict:
         "timings_s": result.timings,
         "files": files,
         "caution": CAUTION,
-    }
+    })
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -112,3 +112,18 @@ def test_equilibrium_constant_from_gibbs_energy():
     dh, ds, T = 2 * -40e3 - -100e3, 2 * 160.0 - 250.0, 350.0
     k_p = math.exp(-(dh - T * ds) / (8.314462618 * T)) * 1e5
     assert (f["B"] * p / total) ** 2 / (f["A"] * p / total) == pytest.approx(k_p, rel=1e-5)
+
+
+def test_cli_set_overrides_and_strict_json(capsys):
+    # --set overrides reach the case; the JSON is strict (no NaN or Infinity constants).
+    assert main(["simulate", str(DEMO / "oxidation.toml"), "--json", "--set", "tube.length=2.5 m",
+                 "--set", "tube.count=3000"]) == 0
+    answer = json.loads(capsys.readouterr().out, parse_constant=lambda c: pytest.fail(f"non-JSON constant {c}"))
+    assert answer["summary"]["length_m"] == pytest.approx(2.5)
+    assert answer["summary"]["tube_count"] == 3000
+
+
+def test_json_answer_turns_nan_into_null():
+    from optimizer.cli import _finite
+
+    assert _finite({"a": float("nan"), "b": [1.0, float("inf")], "c": "x"}) == {"a": None, "b": [1.0, None], "c": "x"}

@@ -106,7 +106,7 @@ class Table:
             if required:
                 pool = self.allowed or self.data.keys()
                 near = [k for k in self.data if k not in pool]
-                hint = f'; found "{near[0]}"' if near and suggest(near[0], [key]) else ""
+                hint = f'; found "{near[0]}" (misspelled?)' if near and suggest(near[0], [key]) else ""
                 raise CaseError(self.source, self.key(key), f"missing (required){hint}")
             return default
         return self.data[key]
@@ -131,7 +131,9 @@ class Table:
         if integer and (not float(value).is_integer()):
             raise CaseError(self.source, self.key(key), f"must be a whole number, got {value!r}")
         if (low is not None and value < low) or (high is not None and value > high):
-            raise CaseError(self.source, self.key(key), f"must lie in [{low}, {high}], got {value!r}")
+            allowed = (f"between {low} and {high}" if low is not None and high is not None
+                       else f"at least {low}" if low is not None else f"at most {high}")
+            raise CaseError(self.source, self.key(key), f"must be {allowed}, got {value!r}")
         return int(value) if integer else float(value)
 
     def choice(self, key, options, default=None):

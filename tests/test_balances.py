@@ -161,3 +161,13 @@ def test_cocurrent_against_independent_integration():
     assert ref.y[n + 2, -1] == pytest.approx(r.summary["coolant_outlet_temperature_K"], abs=1e-6)
     i = case.index(case.key_reactant)
     assert 1 - ref.y[i, -1] / y0[i] == pytest.approx(r.summary["conversion"], abs=1e-8)
+
+
+def test_countercurrent_fallback_bracketing_finds_the_same_root():
+    # The bracketing fallback (used when the secant iteration fails) must land on the secant's answer.
+    from models.simulator import shoot_countercurrent
+
+    case = load_case(DEMO / "coil.toml")
+    secant, _ = shoot_countercurrent(case)
+    bracketed, why = shoot_countercurrent(case, guess=float("nan"))
+    assert why == "converged" and bracketed == pytest.approx(secant, abs=1e-4)

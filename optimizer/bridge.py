@@ -1,0 +1,400 @@
+"""The Pyomo-to-cyipopt bridge: a Pyomo NLP in, IPOPT (through cyipopt) out, without the PyNumero ASL library.
+
+Compilation, once per model:
+1. Every active constraint body is printed as numpy code with its unfixed variables and its inputs (mutable
+   Params, fixed Vars) replaced by numbered placeholders. That text is the constraint's *form*: the many
+   constraints of a collocation model share a few dozen forms.
+2. One representative per form is differentiated with Pyomo's reverse symbolic differentiation (first and
+   second derivatives, lower triangle); each derivative is printed with the same placeholders and compiled.
+3. Every form is then evaluated vectorised over all its members with numpy. Repeated Hessian coordinates
+   are merged once, at build time, through an index for ``numpy.bincount``.
+
+Inputs (mutable Params and fixed Vars), variable bounds and constraint bounds are read at each ``solve``,
+so a changed parameter is re-solved without recompiling. Changing which variables are fixed needs a new
+``CompiledNLP``.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+import pyomo.core.expr as EXPR
+import pyomo.core.expr.calculus.diff_with_pyomo as _diff
+from pyomo.core.base.constraint import Constraint
+from pyomo.core.base.objective import Objective, maximize
+from pyomo.core.expr.calculus.derivatives import differentiate
+from pyomo.environ import Expr_if, value
+
+INFINITY = 1.0e19
+
+IPOPT_STATUS = {
+    0: "optimal", 1: "acceptable", 2: "infeasible", 3: "search direction too small", 4: "diverging iterates",
+    5: "user stop", 6: "feasible point found", -1: "maximum iterations", -2: "restoration failed",
+    -3: "error in step computation", -4: "maximum CPU time", -5: "maximum wall time",
+    -10: "not enough degrees of freedom",
+    -11: "invalid problem definition", -12: "invalid option", -13: "invalid number detected",
+    -100: "unrecoverable exception", -101: "non-IPOPT exception", -102: "insufficient memory", -199: "internal error",
+}
+
+
+# Pyomo's symbolic differentiation has no rule for Expr_if (used for piecewise cp polynomials): the
+# derivative of Expr_if(c, a, b) is Expr_if(c, da, db), and a condition contributes no derivative.
+def _diff_expr_if(node, val_dict, der_dict):
+    der = der_dict[node]
+    cond, then, other = node.args
+    der_dict[then] += der * Expr_if(IF=cond, THEN=1.0, ELSE=0.0)
+    der_dict[other] += der * Expr_if(IF=cond, THEN=0.0, ELSE=1.0)
+
+
+def _diff_nothing(node, val_dict, der_dict):
+    return None
+
+
+_diff._diff_map.setdefault(EXPR.Expr_ifExpression, _diff_expr_if)
+for _rel in (EXPR.InequalityExpression, EXPR.EqualityExpression, EXPR.RangedExpression):
+    _diff._diff_map.setdefault(_rel, _diff_nothing)
+
+
+class _Printer:
+    """Prints a Pyomo expression as numpy code; collects its variables and inputs in order of appearance."""
+
+    def __init__(self):
+        self.vars: list = []
+        self.inputs: list = []
+        self._var_slot: dict = {}
+        self._input_slot: dict = {}
+
+    def leaf(self, node) -> str:
+        if node.is_variable_type():
+            if node.fixed:
+                return self._input(node)
+            slot = self._var_slot.get(id(node))
+            if slot is None:
+                slot = self._var_slot[id(node)] = len(self.vars)
+                self.vars.append(node)
+            return f"x{slot}"
+        if node.is_parameter_type() and node.mutable:
+            return self._input(node)
+        return repr(float(value(node)))
+
+    def _input(self, node) -> str:
+        slot = self._input_slot.get(id(node))
+        if slot is None:
+            slot = self._input_slot[id(node)] = len(self.inputs)
+            self.inputs.append(node)
+        return f"p{slot}"
+
+    def text(self, node) -> str:
+        if node.__class__ in EXPR.native_numeric_types:
+            return repr(float(node))
+        if not node.is_expression_type():
+            return self.leaf(node)
+        if node.is_named_expression_type():
+            return self.text(node.expr)
+        args = [self.text(a) for a in node.args]
+        if isinstance(node, EXPR.Expr_ifExpression):
+            return f"np.where({args[0]}, {args[1]}, {args[2]})"
+        if isinstance(node, EXPR.InequalityExpression):
+            return f"(({args[0]}) {'<' if node.strict else '<='} ({args[1]}))"
+        if isinstance(node, (EXPR.SumExpression, EXPR.LinearExpression)):
+            return "(" + " + ".join(args) + ")"
+        if isinstance(node, (EXPR.ProductExpression, EXPR.MonomialTermExpression)):
+            return f"({args[0]})*({args[1]})"
+        if isinstance(node, EXPR.DivisionExpression):
+            return f"({args[0]})/({args[1]})"
+        if isinstance(node, EXPR.PowExpression):
+            return f"({args[0]})**({args[1]})"
+        if isinstance(node, EXPR.NegationExpression):
+            return f"(-({args[0]}))"
+        if isinstance(node, EXPR.AbsExpression):
+            return f"np.abs({args[0]})"
+        if isinstance(node, EXPR.UnaryFunctionExpression):
+            return f"np.{node.getname()}({args[0]})"
+        raise TypeError(f"the bridge cannot print expressions of type {type(node).__name__}")
+
+
+@dataclass
+class _Form:
+    """One form: compiled value, gradient and Hessian functions, and the index matrices of its members."""
+
+    members: list  # row numbers (constraints) or [0] for the objective
+    var_index: np.ndarray  # (members, local vars) -> global variable index
+    input_index: np.ndarray  # (members, local inputs) -> global input index
+    fn: object
+    grad: object
+    hess: object
+    pairs: list  # (a, b) local pairs of the Hessian lower triangle, a >= b
+
+
+def _compile_function(name: str, body: list[str], nx: int, npar: int):
+    args = ", ".join([f"x{i}" for i in range(nx)] + [f"p{i}" for i in range(npar)])
+    src = f"def {name}({args}):\n    return [{', '.join(body)}]\n"
+    namespace = {"np": np}
+    exec(compile(src, f"<bridge {name}>", "exec"), namespace)  # code printed from the model, not user text
+    return namespace[name]
+
+
+def _build_form(rep_expr, printer: _Printer, members, var_rows, input_rows) -> _Form:
+    local_vars = printer.vars
+    nx, npar = len(local_vars), len(printer.inputs)
+    body = printer.text(rep_expr)  # re-print with the same placeholders (printer state is the representative's)
+    grads = differentiate(rep_expr, wrt_list=local_vars, mode=differentiate.Modes.reverse_symbolic) if nx else []
+    grad_text = [printer.text(g) if not isinstance(g, (int, float)) else repr(float(g)) for g in grads]
+    pairs, hess_text = [], []
+    for a, g in enumerate(grads):
+        if isinstance(g, (int, float)):
+            continue
+        second = differentiate(g, wrt_list=local_vars[: a + 1], mode=differentiate.Modes.reverse_symbolic)
+        for b, h in enumerate(second):
+            if isinstance(h, (int, float)) and h == 0:
+                continue
+            pairs.append((a, b))
+            hess_text.append(printer.text(h) if not isinstance(h, (int, float)) else repr(float(h)))
+    if len(printer.vars) != nx:
+        raise RuntimeError("a derivative introduced a variable absent from its expression")
+    return _Form(members, np.asarray(var_rows, dtype=np.int64).reshape(len(members), nx),
+                 np.asarray(input_rows, dtype=np.int64).reshape(len(members), npar),
+                 _compile_function("value", [body], nx, npar),
+                 _compile_function("gradient", grad_text or ["0.0"], nx, npar),
+                 _compile_function("hessian", hess_text or ["0.0"], nx, npar), pairs)
+
+
+@dataclass
+class SolveOutcome:
+    """Typed result of one IPOPT solve."""
+
+    status: int
+    status_name: str
+    message: str
+    success: bool
+    iterations: int
+    objective: float
+    constraint_violation: float
+    x: np.ndarray
+    multipliers: np.ndarray  # per constraint row, IPOPT's sign convention (Lagrangian f + lambda^T g)
+    bound_multipliers_lower: np.ndarray
+    bound_multipliers_upper: np.ndarray
+    times: dict = field(default_factory=dict)
+
+    def as_dict(self) -> dict:
+        return {"status": self.status, "status_name": self.status_name, "message": self.message,
+                "success": self.success, "iterations": self.iterations, "objective": self.objective,
+                "constraint_violation": self.constraint_violation, "times_s": self.times}
+
+
+class CompiledNLP:
+    """A Pyomo model compiled once for IPOPT. ``solve()`` reads inputs and bounds anew each time."""
+
+    def __init__(self, model):
+        t0 = time.perf_counter()
+        self.model = model
+        objectives = list(model.component_data_objects(Objective, active=True, descend_into=True))
+        if len(objectives) != 1:
+            raise ValueError(f"the model needs exactly one active objective, found {len(objectives)}")
+        self.objective = objectives[0]
+        self.constraints = list(model.component_data_objects(Constraint, active=True, descend_into=True))
+        self.variables: list = []
+        self.inputs: list = []
+        var_ids, input_ids = {}, {}
+        groups: dict[str, list] = {}
+
+        def register(printer):
+            vrows = []
+            for v in printer.vars:
+                k = var_ids.get(id(v))
+                if k is None:
+                    k = var_ids[id(v)] = len(self.variables)
+                    self.variables.append(v)
+                vrows.append(k)
+            prow = []
+            for p in printer.inputs:
+                k = input_ids.get(id(p))
+                if k is None:
+                    k = input_ids[id(p)] = len(self.inputs)
+                    self.inputs.append(p)
+                prow.append(k)
+            return vrows, prow
+
+        for row, con in enumerate(self.constraints):
+            printer = _Printer()
+            key = printer.text(con.body)
+            vrows, prow = register(printer)
+            group = groups.get(key)
+            if group is None:
+                groups[key] = [con.body, printer, [row], [vrows], [prow]]
+            else:
+                group[2].append(row)
+                group[3].append(vrows)
+                group[4].append(prow)
+        obj_printer = _Printer()
+        obj_printer.text(self.objective.expr)
+        ovars, oinputs = register(obj_printer)
+        t_forms = time.perf_counter()
+        self.forms = [_build_form(body, printer, rows, vr, pr) for body, printer, rows, vr, pr in groups.values()]
+        self.objective_form = _build_form(self.objective.expr, obj_printer, [0], [ovars], [oinputs])
+        self.sign = -1.0 if self.objective.sense == maximize else 1.0
+        self._structure()
+        self.n, self.m = len(self.variables), len(self.constraints)
+        self.times = {"compile_s": time.perf_counter() - t0, "differentiate_s": time.perf_counter() - t_forms,
+                      "forms": len(self.forms)}
+        self._warm = None
+
+    def _structure(self):
+        jr, jc = [], []
+        for f in self.forms:
+            rows = np.repeat(np.asarray(f.members), f.var_index.shape[1])
+            jr.append(rows)
+            jc.append(f.var_index.reshape(-1))
+        self.jac_rows = np.concatenate(jr) if jr else np.zeros(0, dtype=np.int64)
+        self.jac_cols = np.concatenate(jc) if jc else np.zeros(0, dtype=np.int64)
+        coords = []
+        for f in [*self.forms, self.objective_form]:
+            for a, b in f.pairs:
+                i, j = f.var_index[:, a], f.var_index[:, b]
+                coords.append(np.stack([np.maximum(i, j), np.minimum(i, j)], axis=1))
+        allc = np.concatenate(coords) if coords else np.zeros((0, 2), dtype=np.int64)
+        unique, self._hess_inverse = np.unique(allc, axis=0, return_inverse=True)
+        self._hess_inverse = self._hess_inverse.reshape(-1)
+        self.hess_rows, self.hess_cols = unique[:, 0], unique[:, 1]
+
+    # --- evaluation -------------------------------------------------------------------------------------
+    def _args(self, form, x):
+        return [x[form.var_index[:, k]] for k in range(form.var_index.shape[1])] + [
+            self._p[form.input_index[:, k]] for k in range(form.input_index.shape[1])]
+
+    def _obj(self, x):
+        f = self.objective_form
+        return self.sign * float(np.asarray(f.fn(*self._args(f, x))[0]).reshape(-1)[0])
+
+    def _grad(self, x):
+        f = self.objective_form
+        g = np.zeros(self.n)
+        vals = f.grad(*self._args(f, x))
+        for k, v in enumerate(vals[: f.var_index.shape[1]]):
+            g[f.var_index[0, k]] += float(np.asarray(v).reshape(-1)[0])
+        return self.sign * g
+
+    def _cons(self, x):
+        out = np.empty(self.m)
+        for f in self.forms:
+            out[f.members] = np.broadcast_to(f.fn(*self._args(f, x))[0], (len(f.members),))
+        return out
+
+    def _jac(self, x):
+        parts = []
+        for f in self.forms:
+            vals = f.grad(*self._args(f, x))[: f.var_index.shape[1]]
+            parts.append(np.stack([np.broadcast_to(v, (len(f.members),)) for v in vals], axis=1).reshape(-1))
+        return np.concatenate(parts) if parts else np.zeros(0)
+
+    def _hess(self, x, lagrange, obj_factor):
+        parts = []
+        for f in self.forms:
+            if not f.pairs:
+                continue
+            vals = f.hess(*self._args(f, x))
+            w = lagrange[f.members]
+            # (pair, member) order, as the coordinates were stacked in _structure
+            parts.append((np.stack([np.broadcast_to(v, (len(f.members),)) for v in vals], axis=0) * w).reshape(-1))
+        f = self.objective_form
+        if f.pairs:
+            vals = f.hess(*self._args(f, x))
+            parts.append(np.array([float(np.asarray(v).reshape(-1)[0]) for v in vals]) * obj_factor * self.sign)
+        if not parts:
+            return np.zeros(len(self.hess_rows))
+        return np.bincount(self._hess_inverse, weights=np.concatenate(parts), minlength=len(self.hess_rows))
+
+    # --- solving ----------------------------------------------------------------------------------------
+    def refresh(self):
+        """Read inputs, variable bounds and constraint bounds from the model."""
+        self._p = np.array([value(p) for p in self.inputs], dtype=float)
+        self.x_lb = np.array([-INFINITY if v.lb is None else v.lb for v in self.variables], dtype=float)
+        self.x_ub = np.array([INFINITY if v.ub is None else v.ub for v in self.variables], dtype=float)
+        self.g_lb = np.array([-INFINITY if c.lower is None else value(c.lower) for c in self.constraints], dtype=float)
+        self.g_ub = np.array([INFINITY if c.upper is None else value(c.upper) for c in self.constraints], dtype=float)
+
+    def current_point(self) -> np.ndarray:
+        x = np.array([0.0 if v.value is None else v.value for v in self.variables], dtype=float)
+        return np.clip(x, self.x_lb, self.x_ub)
+
+    def solve(self, options: dict | None = None, warm_start: bool = False, scaling=None) -> SolveOutcome:
+        """Solve from the model's current variable values. ``warm_start`` reuses the multipliers of the
+        previous solve. ``scaling``: (objective factor, variable factors, constraint factors) or None.
+        Writes the solution back into the model's variables."""
+        import cyipopt
+
+        t0 = time.perf_counter()
+        self.refresh()
+        timer = {"callbacks_s": 0.0}
+        outer = self
+        iterations = [0]
+
+        def timed(fn):
+            def wrapper(*args):
+                t = time.perf_counter()
+                try:
+                    return fn(*args)
+                finally:
+                    timer["callbacks_s"] += time.perf_counter() - t
+            return wrapper
+
+        class _Problem:
+            objective = staticmethod(timed(outer._obj))
+            gradient = staticmethod(timed(outer._grad))
+            constraints = staticmethod(timed(outer._cons))
+            jacobian = staticmethod(timed(outer._jac))
+            hessian = staticmethod(timed(outer._hess))
+
+            def jacobianstructure(self):
+                return outer.jac_rows, outer.jac_cols
+
+            def hessianstructure(self):
+                return outer.hess_rows, outer.hess_cols
+
+            def intermediate(self, alg_mod, iter_count, *args):
+                iterations[0] = iter_count
+                return True
+
+        problem = cyipopt.Problem(n=self.n, m=self.m, problem_obj=_Problem(), lb=self.x_lb, ub=self.x_ub,
+                                  cl=self.g_lb, cu=self.g_ub)
+        opts = {"print_level": 0, "sb": "yes", "tol": 1e-8, "max_iter": 3000}
+        if scaling is not None:
+            obj_s, x_s, g_s = scaling
+            problem.set_problem_scaling(obj_scaling=obj_s, x_scaling=np.asarray(x_s, float),
+                                        g_scaling=np.asarray(g_s, float))
+            opts["nlp_scaling_method"] = "user-scaling"
+        kwargs = {}
+        if warm_start and self._warm is not None:
+            opts.update({"warm_start_init_point": "yes", "warm_start_bound_push": 1e-9,
+                         "warm_start_mult_bound_push": 1e-9, "mu_init": 1e-6})
+            kwargs = {"lagrange": self._warm[0], "zl": self._warm[1], "zu": self._warm[2]}
+        opts.update(options or {})
+        for key, val in opts.items():
+            problem.add_option(key, val)
+        x0 = self.current_point()
+        try:
+            x, info = problem.solve(x0, **kwargs)
+        finally:
+            problem.close()
+        total = time.perf_counter() - t0
+        for v, xv in zip(self.variables, x):
+            v.set_value(float(xv), skip_validation=True)
+        g = info["g"]
+        viol = float(np.max(np.concatenate([[0.0], self.g_lb - g, g - self.g_ub]))) if self.m else 0.0
+        status = int(info["status"])
+        self._warm = (info["mult_g"], info["mult_x_L"], info["mult_x_U"])
+        msg = info["status_msg"]
+        return SolveOutcome(
+            status=status, status_name=IPOPT_STATUS.get(status, "unknown"),
+            message=msg.decode() if isinstance(msg, bytes) else str(msg), success=status in (0, 1),
+            iterations=iterations[0], objective=self.sign * float(info["obj_val"]), constraint_violation=viol,
+            x=np.asarray(x), multipliers=np.asarray(info["mult_g"]),
+            bound_multipliers_lower=np.asarray(info["mult_x_L"]), bound_multipliers_upper=np.asarray(info["mult_x_U"]),
+            times={"compile_s": self.times["compile_s"], "callbacks_s": timer["callbacks_s"],
+                   "ipopt_s": total - timer["callbacks_s"], "solve_s": total})
+
+    def multiplier(self, constraint) -> float:
+        """IPOPT's multiplier of one constraint after a solve (Lagrangian f + lambda^T g)."""
+        return float(self._warm[0][self.constraints.index(constraint)])

@@ -16,7 +16,6 @@ def registry():
         ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True, cache_folder=":auto:")
     except Exception:  # an unwritable cache is no reason to fail
         ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
-    ureg.define("tonne_per_year = 1000 kg / (365.25 * 86400 s) = t/year")
     return ureg
 
 

@@ -58,13 +58,18 @@ for _rel in (EXPR.InequalityExpression, EXPR.EqualityExpression, EXPR.RangedExpr
 
 
 class _Printer:
-    """Prints a Pyomo expression as numpy code; collects its variables and inputs in order of appearance."""
+    """Prints Pyomo expressions as numpy code, one assignment per distinct node (shared subtrees, which the
+    balances and Pyomo's derivatives produce in plenty, are evaluated once). Collects the unfixed variables
+    and the inputs in order of first appearance: they become the placeholders x0.. and p0.."""
 
     def __init__(self):
         self.vars: list = []
         self.inputs: list = []
         self._var_slot: dict = {}
         self._input_slot: dict = {}
+        self._lines: list[str] = []
+        self._memo: dict = {}
+        self._keep: list = []  # holds printed nodes so that their ids stay unique while memoised
 
     def leaf(self, node) -> str:
         if node.is_variable_type():
@@ -75,7 +80,7 @@ class _Printer:
                 slot = self._var_slot[id(node)] = len(self.vars)
                 self.vars.append(node)
             return f"x{slot}"
-        if node.is_parameter_type() and node.mutable:
+        if node.is_parameter_type() and not node.is_constant():  # a mutable Param
             return self._input(node)
         return repr(float(value(node)))
 
@@ -86,33 +91,51 @@ class _Printer:
             self.inputs.append(node)
         return f"p{slot}"
 
-    def text(self, node) -> str:
+    def source(self, name: str, exprs) -> str:
+        """Source of ``def name(x0.., p0..): ...; return [values of exprs]``; placeholders are numbered
+        across calls, so call ``source`` for the value first."""
+        self._lines, self._memo, self._keep = [], {}, []
+        outs = [self.atom(e) for e in exprs]
+        return "\n".join(self._lines + [f"return [{', '.join(outs)}]"])
+
+    def atom(self, node) -> str:
         if node.__class__ in EXPR.native_numeric_types:
             return repr(float(node))
         if not node.is_expression_type():
             return self.leaf(node)
         if node.is_named_expression_type():
-            return self.text(node.expr)
-        args = [self.text(a) for a in node.args]
-        if isinstance(node, EXPR.Expr_ifExpression):
-            return f"np.where({args[0]}, {args[1]}, {args[2]})"
-        if isinstance(node, EXPR.InequalityExpression):
-            return f"(({args[0]}) {'<' if node.strict else '<='} ({args[1]}))"
-        if isinstance(node, (EXPR.SumExpression, EXPR.LinearExpression)):
-            return "(" + " + ".join(args) + ")"
-        if isinstance(node, (EXPR.ProductExpression, EXPR.MonomialTermExpression)):
-            return f"({args[0]})*({args[1]})"
-        if isinstance(node, EXPR.DivisionExpression):
-            return f"({args[0]})/({args[1]})"
-        if isinstance(node, EXPR.PowExpression):
-            return f"({args[0]})**({args[1]})"
-        if isinstance(node, EXPR.NegationExpression):
-            return f"(-({args[0]}))"
-        if isinstance(node, EXPR.AbsExpression):
-            return f"np.abs({args[0]})"
-        if isinstance(node, EXPR.UnaryFunctionExpression):
-            return f"np.{node.getname()}({args[0]})"
-        raise TypeError(f"the bridge cannot print expressions of type {type(node).__name__}")
+            return self.atom(node.expr)
+        name = self._memo.get(id(node))
+        if name is not None:
+            return name
+        args = [self.atom(a) for a in node.args]
+        name = f"t{len(self._lines)}"
+        self._lines.append(f"{name} = {_operation(node, args)}")
+        self._memo[id(node)] = name
+        self._keep.append(node)
+        return name
+
+
+def _operation(node, args) -> str:
+    if isinstance(node, EXPR.Expr_ifExpression):
+        return f"np.where({args[0]}, {args[1]}, {args[2]})"
+    if isinstance(node, EXPR.InequalityExpression):
+        return f"{args[0]} {'<' if node.strict else '<='} {args[1]}"
+    if isinstance(node, (EXPR.SumExpression, EXPR.LinearExpression)):
+        return " + ".join(args)
+    if isinstance(node, (EXPR.ProductExpression, EXPR.MonomialTermExpression)):
+        return f"{args[0]} * {args[1]}"
+    if isinstance(node, EXPR.DivisionExpression):
+        return f"{args[0]} / {args[1]}"
+    if isinstance(node, EXPR.PowExpression):
+        return f"{args[0]} ** {args[1]}"
+    if isinstance(node, EXPR.NegationExpression):
+        return f"-{args[0]}"
+    if isinstance(node, EXPR.AbsExpression):
+        return f"np.abs({args[0]})"
+    if isinstance(node, EXPR.UnaryFunctionExpression):
+        return f"np.{node.getname()}({args[0]})"
+    raise TypeError(f"the bridge cannot print expressions of type {type(node).__name__}")
 
 
 @dataclass
@@ -128,37 +151,37 @@ class _Form:
     pairs: list  # (a, b) local pairs of the Hessian lower triangle, a >= b
 
 
-def _compile_function(name: str, body: list[str], nx: int, npar: int):
+def _compile_function(name: str, body: str, nx: int, npar: int):
     args = ", ".join([f"x{i}" for i in range(nx)] + [f"p{i}" for i in range(npar)])
-    src = f"def {name}({args}):\n    return [{', '.join(body)}]\n"
+    src = f"def {name}({args}):\n" + "\n".join("    " + line for line in body.split("\n")) + "\n"
     namespace = {"np": np}
     exec(compile(src, f"<bridge {name}>", "exec"), namespace)  # code printed from the model, not user text
     return namespace[name]
 
 
-def _build_form(rep_expr, printer: _Printer, members, var_rows, input_rows) -> _Form:
-    local_vars = printer.vars
+def _build_form(rep_expr, printer: _Printer, value_source: str, members, var_rows, input_rows) -> _Form:
+    local_vars = list(printer.vars)
     nx, npar = len(local_vars), len(printer.inputs)
-    body = printer.text(rep_expr)  # re-print with the same placeholders (printer state is the representative's)
     grads = differentiate(rep_expr, wrt_list=local_vars, mode=differentiate.Modes.reverse_symbolic) if nx else []
-    grad_text = [printer.text(g) if not isinstance(g, (int, float)) else repr(float(g)) for g in grads]
-    pairs, hess_text = [], []
+    pairs, second = [], []
     for a, g in enumerate(grads):
-        if isinstance(g, (int, float)):
+        if g.__class__ in EXPR.native_numeric_types:
             continue
-        second = differentiate(g, wrt_list=local_vars[: a + 1], mode=differentiate.Modes.reverse_symbolic)
-        for b, h in enumerate(second):
-            if isinstance(h, (int, float)) and h == 0:
+        column = differentiate(g, wrt_list=local_vars[: a + 1], mode=differentiate.Modes.reverse_symbolic)
+        for b, h in enumerate(column):
+            if h.__class__ in EXPR.native_numeric_types and h == 0:
                 continue
             pairs.append((a, b))
-            hess_text.append(printer.text(h) if not isinstance(h, (int, float)) else repr(float(h)))
-    if len(printer.vars) != nx:
-        raise RuntimeError("a derivative introduced a variable absent from its expression")
+            second.append(h)
+    grad_source = printer.source("gradient", grads or [0.0])
+    hess_source = printer.source("hessian", second or [0.0])
+    if len(printer.vars) != nx or len(printer.inputs) != npar:
+        raise RuntimeError("a derivative introduced a variable or input absent from its expression")
     return _Form(members, np.asarray(var_rows, dtype=np.int64).reshape(len(members), nx),
                  np.asarray(input_rows, dtype=np.int64).reshape(len(members), npar),
-                 _compile_function("value", [body], nx, npar),
-                 _compile_function("gradient", grad_text or ["0.0"], nx, npar),
-                 _compile_function("hessian", hess_text or ["0.0"], nx, npar), pairs)
+                 _compile_function("value", value_source, nx, npar),
+                 _compile_function("gradient", grad_source, nx, npar),
+                 _compile_function("hessian", hess_source, nx, npar), pairs)
 
 
 @dataclass
@@ -219,21 +242,21 @@ class CompiledNLP:
 
         for row, con in enumerate(self.constraints):
             printer = _Printer()
-            key = printer.text(con.body)
+            key = printer.source("value", [con.body])
             vrows, prow = register(printer)
             group = groups.get(key)
             if group is None:
-                groups[key] = [con.body, printer, [row], [vrows], [prow]]
+                groups[key] = [con.body, printer, key, [row], [vrows], [prow]]
             else:
-                group[2].append(row)
-                group[3].append(vrows)
-                group[4].append(prow)
+                group[3].append(row)
+                group[4].append(vrows)
+                group[5].append(prow)
         obj_printer = _Printer()
-        obj_printer.text(self.objective.expr)
+        obj_source = obj_printer.source("value", [self.objective.expr])
         ovars, oinputs = register(obj_printer)
         t_forms = time.perf_counter()
-        self.forms = [_build_form(body, printer, rows, vr, pr) for body, printer, rows, vr, pr in groups.values()]
-        self.objective_form = _build_form(self.objective.expr, obj_printer, [0], [ovars], [oinputs])
+        self.forms = [_build_form(*group) for group in groups.values()]
+        self.objective_form = _build_form(self.objective.expr, obj_printer, obj_source, [0], [ovars], [oinputs])
         self.sign = -1.0 if self.objective.sense == maximize else 1.0
         self._structure()
         self.n, self.m = len(self.variables), len(self.constraints)

@@ -1,0 +1,149 @@
+"""The collocation model of the tube: pyomo.dae, Radau collocation on the normalised axial coordinate
+xi = z / L (so that the length can be a decision variable), built from the same balance functions as the
+simulator (``models.balances.axial_derivatives`` through the Pyomo backend).
+
+States per tube: F_i(xi), T, P, Tc, Q (heat to the coolant, whole reactor), tau. For each state X:
+dX/dxi = L * f_X(state). Design quantities are Pyomo Vars when free and mutable Params when fixed; kinetic
+parameters (k_ref, E_a per reaction) and the U multiplier are mutable Params, so a study changes them and
+re-solves without rebuilding.
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+import pyomo.dae as dae
+import pyomo.environ as pyo
+
+from models.backend import NUMPY, pyomo_backend
+from models.balances import axial_derivatives
+
+from .design import DESIGN_KEYS, case_value
+
+STATES = ("T", "P", "Tc", "Q", "tau")
+
+
+def _design_component(model, name, spec, value):
+    """A free design quantity becomes a Var within its bounds, a fixed one a mutable Param."""
+    if name in spec.free:
+        fv = spec.free[name]
+        comp = pyo.Var(bounds=(fv.lower, fv.upper), initialize=fv.start)
+    else:
+        comp = pyo.Param(mutable=True, initialize=spec.fixed.get(name, value))
+    model.add_component(f"design_{name}", comp)
+    return comp
+
+
+def parametrised_case(model, case, spec):
+    """The case with every design quantity, kinetic parameter and the U multiplier replaced by Pyomo
+    components of ``model``."""
+    d = {}
+    for name in DESIGN_KEYS:
+        value = case_value(case, name)
+        if value is None:
+            continue  # e.g. no coolant flow in a boiling-water case
+        d[name] = _design_component(model, name, spec, value)
+    model.design = d
+    n_rx = len(case.reactions)
+    model.k_ref = pyo.Param(range(n_rx), mutable=True, initialize={j: rx.k_ref for j, rx in enumerate(case.reactions)})
+    model.e_act = pyo.Param(range(n_rx), mutable=True,
+                            initialize={j: rx.activation_energy for j, rx in enumerate(case.reactions)})
+    model.u_multiplier = pyo.Param(mutable=True, initialize=case.heat_transfer.multiplier)
+    tube = replace(case.tube, length=d["length"], inner_diameter=d["inner_diameter"], count=d["tube_count"])
+    feed = replace(case.feed, temperature=d["inlet_temperature"], pressure=d["inlet_pressure"])
+    coolant = case.coolant
+    if "coolant_temperature" in d:
+        coolant = replace(coolant, temperature=d["coolant_temperature"])
+    if "coolant_flow" in d:
+        coolant = replace(coolant, mass_flow=d["coolant_flow"])
+    reactions = tuple(replace(rx, k_ref=model.k_ref[j], activation_energy=model.e_act[j])
+                      for j, rx in enumerate(case.reactions))
+    heat = replace(case.heat_transfer, multiplier=model.u_multiplier)
+    return replace(case, tube=tube, feed=feed, coolant=coolant, reactions=reactions, heat_transfer=heat)
+
+
+def build_tube_model(case, spec, nfe: int = 40, ncp: int = 3):
+    """The discretised Pyomo model (without objective or limits). Returns (model, parametrised case)."""
+    m = pyo.ConcreteModel(name="tube")
+    pcase = parametrised_case(m, case, spec)
+    names = case.names
+    m.S = pyo.Set(initialize=names, ordered=True)
+    m.xi = dae.ContinuousSet(bounds=(0.0, 1.0))
+    m.F = pyo.Var(m.S, m.xi, bounds=(0.0, None), initialize=1e-3)
+    m.T = pyo.Var(m.xi, bounds=(150.0, case.numerics.temperature_ceiling), initialize=case.feed.temperature)
+    m.P = pyo.Var(m.xi, bounds=(case.numerics.min_pressure, None), initialize=case.feed.pressure)
+    m.Tc = pyo.Var(m.xi, bounds=(100.0, None), initialize=case.coolant.temperature or case.feed.temperature)
+    m.Q = pyo.Var(m.xi, initialize=0.0)
+    m.tau = pyo.Var(m.xi, initialize=0.0)
+    m.dF = dae.DerivativeVar(m.F, wrt=m.xi)
+    m.dT = dae.DerivativeVar(m.T, wrt=m.xi)
+    m.dP = dae.DerivativeVar(m.P, wrt=m.xi)
+    m.dTc = dae.DerivativeVar(m.Tc, wrt=m.xi)
+    m.dQ = dae.DerivativeVar(m.Q, wrt=m.xi)
+    m.dtau = dae.DerivativeVar(m.tau, wrt=m.xi)
+    pyo.TransformationFactory("dae.collocation").apply_to(m, wrt=m.xi, nfe=nfe, ncp=ncp, scheme="LAGRANGE-RADAU")
+
+    pm = pyomo_backend()
+    L = pcase.tube.length
+    points = [x for x in m.xi if x > 0.0]
+    m.ode_F = pyo.Constraint(m.S, points)
+    m.ode = pyo.Constraint(STATES, points)
+    for x in points:
+        d = axial_derivatives(pm, pcase, [m.F[s, x] for s in names], m.T[x], m.P[x], m.Tc[x])
+        for s, rate in zip(names, d.dF):
+            m.ode_F[s, x] = m.dF[s, x] == L * rate
+        for state, rhs in zip(STATES, (d.dT, d.dP, d.dTc, d.dQ, d.dtau)):
+            var = getattr(m, f"d{state}")[x]
+            m.ode[state, x] = var == L * rhs
+    N = pcase.tube.count
+    m.inlet_F = pyo.Constraint(m.S, rule=lambda m, s: m.F[s, 0.0] * N == case.feed.molar_flows[names.index(s)])
+    m.inlet_T = pyo.Constraint(expr=m.T[0.0] == pcase.feed.temperature)
+    m.inlet_P = pyo.Constraint(expr=m.P[0.0] == pcase.feed.pressure)
+    m.inlet_Q = pyo.Constraint(expr=m.Q[0.0] == 0.0)
+    m.inlet_tau = pyo.Constraint(expr=m.tau[0.0] == 0.0)
+    coolant_end = 1.0 if case.coolant.mode == "countercurrent" else 0.0
+    tc_in = pcase.coolant.temperature if pcase.coolant.temperature is not None else pcase.feed.temperature
+    m.coolant_in = pyo.Constraint(expr=m.Tc[coolant_end] == tc_in)
+    return m, pcase
+
+
+def initialise_from_simulation(m, case, result):
+    """Set every state and derivative variable from an adaptive-integrator solution of the same design."""
+    cols = result.columns
+    L = case.tube.length
+    z = cols["z_m"]
+    names = case.names
+    n_t = case.tube.count
+    for x in m.xi:
+        zz = min(x * L, z[-1])
+        F = [float(np.interp(zz, z, cols[f"F_{s}_mol_s"])) / n_t for s in names]
+        T, P, Tc = (float(np.interp(zz, z, cols[c])) for c in ("T_K", "P_Pa", "Tc_K"))
+        for s, f in zip(names, F):
+            m.F[s, x].set_value(max(f, 0.0), skip_validation=True)
+        m.T[x].set_value(T, skip_validation=True)
+        m.P[x].set_value(P, skip_validation=True)
+        m.Tc[x].set_value(Tc, skip_validation=True)
+        m.Q[x].set_value(float(np.interp(zz, z, cols["Q_W"])), skip_validation=True)
+        m.tau[x].set_value(float(np.interp(zz, z, cols["tau_s"])), skip_validation=True)
+        d = axial_derivatives(NUMPY, case, [max(f, 0.0) for f in F], T, P, Tc)
+        for s, rate in zip(names, d.dF):
+            m.dF[s, x].set_value(L * float(rate), skip_validation=True)
+        for state, rhs in zip(STATES, (d.dT, d.dP, d.dTc, d.dQ, d.dtau)):
+            getattr(m, f"d{state}")[x].set_value(L * float(rhs), skip_validation=True)
+
+
+def state_scaling(m, case, result) -> dict:
+    """Scale factors (1/typical magnitude) per state, from the initialising simulation."""
+    cols = result.columns
+    n_t = case.tube.count
+    f_ref = {s: max(float(np.max(np.abs(cols[f"F_{s}_mol_s"]))) / n_t, 1e-3 * sum(case.feed.molar_flows) / n_t)
+             for s in case.names}
+    return {
+        "F": f_ref,
+        "T": max(float(np.max(cols["T_K"])), 1.0),
+        "P": max(float(np.max(cols["P_Pa"])), 1.0),
+        "Tc": max(float(np.max(cols["Tc_K"])), 1.0),
+        "Q": max(float(np.max(np.abs(cols["Q_W"]))), 1.0),
+        "tau": max(float(np.max(cols["tau_s"])), 1e-6),
+    }

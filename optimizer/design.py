@@ -1,0 +1,196 @@
+"""Reading [design], [limits], [goal] and [costs] of a case: which design quantities are free and between
+which bounds, which limits apply, what to optimise. Bad input raises CaseError naming the file and key."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, fields
+
+from models.casefile import Table
+from models.errors import CaseError
+from models.units import quantity, to_si
+
+from .costs import CostModel
+
+# design key -> (unit dimension, where the value lives in the case, human name)
+DESIGN_KEYS = {
+    "length": ("length", "tube.length"),
+    "inner_diameter": ("length", "tube.inner_diameter"),
+    "tube_count": ("dimensionless", "tube.count"),
+    "inlet_temperature": ("temperature", "feed.temperature"),
+    "inlet_pressure": ("pressure", "feed.pressure"),
+    "coolant_flow": ("mass_flow", "coolant.mass_flow"),
+    "coolant_temperature": ("temperature", "coolant.temperature"),
+}
+
+GOALS = ("min_cost", "max_selectivity", "max_yield", "max_productivity", "min_volume")
+
+LIMIT_KEYS = {
+    "production_rate": None,  # mol/s or mass/time (converted with the product's molar mass)
+    "min_conversion": "dimensionless",
+    "min_selectivity": "dimensionless",
+    "max_temperature": "temperature",
+    "max_temperature_difference": "temperature",
+    "max_pressure_drop": "pressure",
+    "min_velocity": "velocity",
+    "max_velocity": "velocity",
+    "min_reynolds": "dimensionless",
+    "max_reynolds": "dimensionless",
+    "min_length_to_diameter": "dimensionless",
+    "max_length_to_diameter": "dimensionless",
+    "max_coolant_outlet_temperature": "temperature",
+    "runaway_margin": "dimensionless",
+}
+
+_UNITS = {"velocity": "m/s", "temperature": "K", "pressure": "Pa", "dimensionless": "", "length": "m",
+          "mass_flow": "kg/s"}
+
+
+@dataclass(frozen=True)
+class FreeVariable:
+    name: str
+    lower: float
+    upper: float
+    start: float
+
+
+@dataclass(frozen=True)
+class DesignSpec:
+    free: dict = field(default_factory=dict)  # name -> FreeVariable
+    fixed: dict = field(default_factory=dict)  # name -> SI value given in [design]
+    limits: dict = field(default_factory=dict)  # name -> SI value
+    goal: str = "min_cost"
+    costs: CostModel = field(default_factory=CostModel)
+    standard_tubes: bool = False
+    round_tube_count: bool = True
+
+    @property
+    def has_freedom(self) -> bool:
+        return bool(self.free) or self.standard_tubes
+
+
+def case_value(case, name):
+    section, attr = DESIGN_KEYS[name][1].split(".")
+    return getattr(getattr(case, section), attr)
+
+
+def read_design(case) -> DesignSpec:
+    raw, source = case.raw, case.source
+    free, fixed = {}, {}
+    standard = False
+    rounding = True
+    if "design" in raw:
+        t = Table(raw["design"], source, "design", set(DESIGN_KEYS) | {"standard_tubes", "round_tube_count"})
+        for key, spec in t.data.items():
+            if key == "standard_tubes":
+                standard = _bool(spec, source, "design.standard_tubes")
+                continue
+            if key == "round_tube_count":
+                rounding = _bool(spec, source, "design.round_tube_count")
+                continue
+            if key not in DESIGN_KEYS:
+                continue  # reported by finish()
+            dim = DESIGN_KEYS[key][0]
+            if isinstance(spec, dict):
+                sub = Table(spec, source, f"design.{key}", {"min", "max", "start"})
+                for bound in ("min", "max"):
+                    if not sub.has(bound):
+                        raise CaseError(source, f"design.{key}.{bound}", "missing: a free design variable needs both "
+                                        "min and max")
+                lo = _value(sub.raw("min"), dim, source, f"design.{key}.min")
+                hi = _value(sub.raw("max"), dim, source, f"design.{key}.max")
+                if not lo < hi:
+                    raise CaseError(source, f"design.{key}", f"min ({lo:g}) must be below max ({hi:g}) in SI units")
+                if lo <= 0 and key != "coolant_temperature":
+                    raise CaseError(source, f"design.{key}.min", "must be greater than zero")
+                current = case_value(case, key)
+                start = _value(sub.raw("start"), dim, source, f"design.{key}.start") if sub.has("start") else current
+                if start is None:
+                    start = 0.5 * (lo + hi)
+                if not lo <= start <= hi:
+                    start = min(max(start, lo), hi)
+                sub.finish()
+                free[key] = FreeVariable(key, lo, hi, float(start))
+            else:
+                fixed[key] = _value(spec, dim, source, f"design.{key}")
+            t.used.add(key)
+        t.finish()
+    if "coolant_flow" in free and case.coolant.mode not in ("cocurrent", "countercurrent"):
+        raise CaseError(source, "design.coolant_flow", f'coolant mode "{case.coolant.mode}" has no coolant flow; '
+                        'free it only with "cocurrent" or "countercurrent"')
+    if "coolant_temperature" in free and case.coolant.mode in ("adiabatic", "isothermal"):
+        raise CaseError(source, "design.coolant_temperature", f'coolant mode "{case.coolant.mode}" has no coolant '
+                        "temperature")
+    if standard and "inner_diameter" in free:
+        raise CaseError(source, "design.standard_tubes", "give either standard_tubes = true or a free "
+                        "inner_diameter, not both")
+    limits = _read_limits(case)
+    goal = "min_cost"
+    if "goal" in raw:
+        g = Table(raw["goal"], source, "goal", {"objective"})
+        goal = g.choice("objective", GOALS)
+        g.finish()
+    costs = CostModel()
+    if "costs" in raw:
+        allowed = {f.name for f in fields(CostModel)}
+        c = Table(raw["costs"], source, "costs", allowed)
+        values = {k: c.number(k, low=0.0) for k in list(c.data) if k in allowed}
+        c.finish()
+        costs = CostModel(**values)
+    return DesignSpec(free, fixed, limits, goal, costs, standard, rounding)
+
+
+def _bool(value, source, key):
+    if not isinstance(value, bool):
+        raise CaseError(source, key, f"must be true or false, got {value!r}")
+    return value
+
+
+def _value(text, dim, source, key):
+    if dim == "dimensionless":
+        if isinstance(text, bool) or not isinstance(text, (int, float)):
+            raise CaseError(source, key, f"must be a number, got {text!r}")
+        return float(text)
+    return quantity(text, dim, source, key)
+
+
+def _read_limits(case) -> dict:
+    raw = case.raw.get("limits")
+    if raw is None:
+        return {}
+    t = Table(raw, case.source, "limits", set(LIMIT_KEYS))
+    out = {}
+    for key in t.data:
+        if key not in LIMIT_KEYS:
+            continue
+        t.used.add(key)
+        value = t.data[key]
+        where = f"limits.{key}"
+        if key == "production_rate":
+            out[key] = _production_rate(case, value, where)
+        elif LIMIT_KEYS[key] == "dimensionless":
+            out[key] = _value(value, "dimensionless", case.source, where)
+        else:
+            out[key] = to_si(value, _UNITS[LIMIT_KEYS[key]], case.source, where)
+    t.finish()
+    for lo, hi in (("min_velocity", "max_velocity"), ("min_reynolds", "max_reynolds"),
+                   ("min_length_to_diameter", "max_length_to_diameter")):
+        if lo in out and hi in out and out[lo] > out[hi]:
+            raise CaseError(case.source, f"limits.{lo}", f"is above limits.{hi}")
+    if "production_rate" in out and case.product is None:
+        raise CaseError(case.source, "limits.production_rate", "needs chemistry.product")
+    return out
+
+
+def _production_rate(case, value, where) -> float:
+    try:
+        return to_si(value, "mol/s", case.source, where)
+    except CaseError:
+        pass
+    try:
+        mass = to_si(value, "kg/s", case.source, where)
+    except CaseError as err:
+        raise CaseError(case.source, where, f'"{value}" must be a molar rate ("mol/s") or a mass rate '
+                        '("t/year", "kg/h")') from err
+    if case.product is None:
+        raise CaseError(case.source, where, "a mass rate needs chemistry.product")
+    return mass / case.species_map[case.product].molar_mass

@@ -132,6 +132,94 @@ def _json_answer(case, result, files) -> dict:
     })
 
 
+def optimisation_lines(case, res) -> list[str]:
+    lines = [f"  status: {res.status} - {res.reason}"]
+    if res.objective is not None:
+        unit = {"min_cost": "per year", "min_volume": "m^3", "max_productivity": "mol/(m^3 s)"}.get(res.goal, "")
+        lines.append(f"  goal: {res.goal} = {_fmt(res.objective)} {unit}".rstrip())
+    if res.design:
+        lines.append("\ndesign:")
+        width = max(len(k) for k in res.design)
+        lines += [f"  {k:<{width}}  {_fmt(v)}" for k, v in res.design.items()]
+    if res.limits:
+        lines.append("\nlimits (multiplier = change of the goal per unit of the limit):")
+        lines.append(f"  {'limit':<32}{'value':>14}{'bound':>14}  {'binds':<6}{'multiplier':>14}  unit")
+        for r in res.limits:
+            lines.append(f"  {r.name:<32}{_fmt(r.value):>14}{_fmt(r.bound):>14}  {'yes' if r.binding else 'no':<6}"
+                         f"{_fmt(r.multiplier):>14}  {r.unit}")
+    if res.costs:
+        lines.append("\nannual cost parts [per year]:")
+        lines += [f"  {k:<14}{_fmt(v):>14}" for k, v in res.costs.items()]
+    if res.verification:
+        v = res.verification
+        lines.append(f"\nverification against the adaptive integrator: largest relative deviation "
+                     f"{_fmt(v.get('max_relative_deviation'))} (tolerance {_fmt(v.get('tolerance'))})")
+    if res.solver:
+        s = res.solver
+        lines.append(f"solver: IPOPT {s.get('status_name')}, {s.get('iterations_total')} iterations in "
+                     f"{s.get('solves')} solve(s); {s.get('variables')} variables, {s.get('constraints')} "
+                     f"constraints, {s.get('forms')} forms; {s.get('finite_elements')} elements x "
+                     f"{s.get('collocation_points')} points")
+    if res.timings:
+        t = res.timings
+        lines.append(f"times: build {t.get('build_s', 0):.2f} s (compile {t.get('compile_s', 0):.2f} s), IPOPT "
+                     f"{t.get('ipopt_s', 0):.2f} s, callbacks {t.get('callbacks_s', 0):.2f} s, total "
+                     f"{t.get('total_s', 0):.2f} s")
+    for note in res.notes:
+        lines.append(f"note: {note}")
+    if res.hint:
+        lines.append(f"hint: {res.hint}")
+    return lines
+
+
+def _optimisation_answer(case, res, files) -> dict:
+    return _finite({
+        "case": case.source, "title": case.title, "status": res.status, "reason": res.reason, "goal": res.goal,
+        "objective": res.objective, "design": res.design, "limits": [r.as_dict() for r in res.limits],
+        "costs_per_year": res.costs, "verification": {k: float(v) if isinstance(v, (int, float)) else v
+                                                      for k, v in res.verification.items()},
+        "solver": res.solver, "timings_s": res.timings, "notes": res.notes, "hint": res.hint,
+        "summary": res.simulation.summary if res.simulation is not None else {}, "files": files, "caution": CAUTION,
+    })
+
+
+def cmd_optimize(args) -> int:
+    from models import load_case
+    from optimizer.optimize import design_case, optimise
+
+    case = load_case(args.case, _parse_sets(args.set))
+    res = optimise(case)
+    files = {}
+    if args.out and res.simulation is not None and res.simulation.columns:
+        out = Path(args.out)
+        out.mkdir(parents=True, exist_ok=True)
+        files["profiles_csv"] = str(out / "optimal_profiles.csv")
+        res.simulation.profiles.to_csv(files["profiles_csv"], index=False)
+        from .plots import plot_profiles
+
+        best = design_case(case, {k: v for k, v in _design_values(res).items()})
+        files["plot_png"] = str(plot_profiles(best, res.simulation, out / "optimal_profiles.png",
+                                              limits=res.limits))
+        files["result_json"] = str(out / "optimum.json")
+        Path(files["result_json"]).write_text(json.dumps(_optimisation_answer(case, res, files), indent=2) + "\n")
+    if args.json:
+        print(json.dumps(_optimisation_answer(case, res, files), indent=2))
+    else:
+        print(f"{case.title}\n  case file: {case.source}")
+        print("\n".join(optimisation_lines(case, res)))
+        for label, path in files.items():
+            print(f"  wrote {label}: {path}")
+        print(f"\nCAUTION: {CAUTION}")
+    return EXIT_OK if res.status in ("optimal", "not_optimised") else EXIT_NOT_OK
+
+
+def _design_values(res) -> dict:
+    back = {"length_m": "length", "inner_diameter_m": "inner_diameter", "tube_count": "tube_count",
+            "inlet_temperature_K": "inlet_temperature", "inlet_pressure_Pa": "inlet_pressure",
+            "coolant_flow_kg_s": "coolant_flow", "coolant_temperature_K": "coolant_temperature"}
+    return {back[k]: v for k, v in res.design.items()}
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="tubewright", description="Screening design of cooled tubular reactors. "
                                 + CAUTION)
@@ -143,6 +231,12 @@ def build_parser() -> argparse.ArgumentParser:
     sim.add_argument("--set", action="append", metavar="KEY=VALUE",
                      help='override a case key, for example --set tube.length="6 m" (repeatable)')
     sim.set_defaults(func=cmd_simulate)
+    opt = sub.add_parser("optimize", help="optimise the free design quantities of a case ([design], [limits], [goal])")
+    opt.add_argument("case", help="case file (TOML)")
+    opt.add_argument("--json", action="store_true", help="print the result as one JSON object")
+    opt.add_argument("--out", metavar="DIR", help="write optimal_profiles.csv/.png and optimum.json here")
+    opt.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a case key (repeatable)")
+    opt.set_defaults(func=cmd_optimize)
     return p
 
 

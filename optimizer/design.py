@@ -129,6 +129,8 @@ def read_design(case) -> DesignSpec:
         g = Table(raw["goal"], source, "goal", {"objective"})
         goal = g.choice("objective", GOALS)
         g.finish()
+        if goal in ("max_selectivity", "max_yield", "max_productivity") and case.product is None:
+            raise CaseError(source, "goal.objective", f'"{goal}" needs chemistry.product')
     costs = CostModel()
     if "costs" in raw:
         allowed = {f.name for f in fields(CostModel)}

@@ -208,8 +208,6 @@ class DesignProblem:
 
     def _objective(self, m, pcase):
         goal = self.spec.goal
-        if goal in ("max_selectivity", "max_yield") and not self.case.product:
-            raise ValueError("the goal needs chemistry.product")
         if goal == "min_cost":
             expr, sense = self.cost_parts(pyomo_backend(), m)["total"], pyo.minimize
         elif goal == "max_selectivity":
@@ -280,7 +278,9 @@ class DesignProblem:
             scale = max(abs(bound), 1e-12)
             binding = abs(value - bound) <= 1e-5 * scale + 1e-9 and abs(lam) > 1e-12
             # IPOPT: L = f_min + lambda g; d f_min*/d bound = -lambda. For a maximised goal f = -f_min.
-            rows.append(LimitRow(name, value, bound, kind, bool(binding), float(sign * lam), LIMIT_UNITS[name]))
+            # An inactive limit costs nothing: its multiplier is reported as 0 (IPOPT leaves ~1e-8 there).
+            rows.append(LimitRow(name, value, bound, kind, bool(binding), float(sign * lam) if binding else 0.0,
+                                 LIMIT_UNITS[name]))
         return rows
 
     def verify(self, values) -> tuple[dict, object]:

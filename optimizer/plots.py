@@ -5,7 +5,8 @@ from __future__ import annotations
 from pathlib import Path
 
 
-def plot_profiles(case, result, path: Path) -> Path:
+def plot_profiles(case, result, path: Path, limits=None) -> Path:
+    """Temperature, conversion and pressure along the tube; ``limits`` (optimisation LimitRows) are drawn in."""
     import matplotlib
 
     matplotlib.use("Agg")
@@ -18,13 +19,22 @@ def plot_profiles(case, result, path: Path) -> Path:
     ax.plot(z, cols["T_K"], label="fluid")
     if case.coolant.mode not in ("adiabatic", "isothermal"):
         ax.plot(z, cols["Tc_K"], "--", label="coolant")
-    if "max_temperature" in case.limits:
-        ax.axhline(case.limits["max_temperature"], color="red", lw=0.8, ls=":", label="temperature limit")
+    t_limit = case.limits.get("max_temperature")
+    for row in limits or []:
+        if row.name == "max_temperature":
+            t_limit = row.bound
+    if t_limit is not None:
+        ax.axhline(t_limit, color="red", lw=0.8, ls=":", label="temperature limit")
     ax.set_ylabel("temperature [K]")
     ax.legend(loc="best", fontsize=8)
     axes[1].plot(z, cols["conversion"])
     axes[1].set_ylabel(f"conversion of {case.key_reactant} [-]")
     axes[2].plot(z, cols["P_Pa"] / 1e5)
+    for row in limits or []:
+        if row.name == "max_pressure_drop":
+            axes[2].axhline((cols["P_Pa"][0] - row.bound) / 1e5, color="red", lw=0.8, ls=":",
+                            label="lowest outlet pressure allowed")
+            axes[2].legend(loc="best", fontsize=8)
     axes[2].set_ylabel("pressure [bar]")
     axes[2].set_xlabel("axial position z [m]")
     fig.suptitle(case.title, fontsize=9)

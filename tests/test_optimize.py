@@ -1,0 +1,122 @@
+"""Design optimisation against analytic optima, multipliers against derivatives, failure reports."""
+
+import math
+
+import pytest
+
+pytest.importorskip("cyipopt")
+
+from models import CaseError  # noqa: E402
+from optimizer.design import read_design  # noqa: E402
+from optimizer.optimize import DesignProblem, optimise  # noqa: E402
+from tests.conftest import liquid_case, make  # noqa: E402
+
+K1 = 0.01  # 1/s, the first-order rate constant of liquid_case at 350 K
+
+
+def _vdot(case):
+    return sum(f * s.molar_mass for f, s in zip(case.feed.molar_flows, case.species)) / case.feed.density
+
+
+def min_volume_case(x_min=0.9, **more):
+    data = liquid_case(**{"design": {"length": {"min": "1 m", "max": "200 m"}},
+                          "limits": {"min_conversion": x_min}, "goal": {"objective": "min_volume"},
+                          "numerics.finite_elements": 20, **more})
+    return make(data)
+
+
+def test_min_volume_first_order_isothermal():
+    # Analytic: V = (v0/k) ln(1/(1 - X)) is the smallest plug-flow volume for conversion X (Levenspiel 1999).
+    case = min_volume_case()
+    res = optimise(case)
+    assert res.ok, res.reason
+    v_analytic = _vdot(case) / K1 * math.log(10.0)
+    assert res.objective == pytest.approx(v_analytic, rel=1e-5)
+    assert res.design["length_m"] == pytest.approx(v_analytic / case.tube.area, rel=1e-5)
+    (row,) = res.limits
+    assert row.binding
+    # Multiplier: dV*/dX = v0 / (k (1 - X)) (derivative of the analytic optimum).
+    assert row.multiplier == pytest.approx(_vdot(case) / (K1 * 0.1), rel=1e-4)
+    assert res.verification["max_relative_deviation"] < 1e-5
+
+
+def test_consecutive_reactions_optimal_length():
+    # Analytic, A -> B -> C first order at constant T: tau* = ln(k2/k1)/(k2 - k1) and the maximum yield
+    # Y_B = (k1/k2)^(k2/(k2 - k1)) (Levenspiel 1999, Ch. 8).
+    k2 = 0.004
+    data = liquid_case(**{
+        "chemistry.product": "D",
+        "chemistry.species.E": {"molar_mass": "100 g/mol", "cp": "150 J/mol/K", "heat_of_formation": "-250 kJ/mol"},
+        "chemistry.reactions.r2": {"equation": "D -> E", "orders": {"D": 1}, "k_ref": f"{k2} 1/s",
+                                   "activation_energy": "50 kJ/mol", "t_ref": "350 K"},
+        "design": {"length": {"min": "1 m", "max": "100 m"}},
+        "goal": {"objective": "max_yield"},
+        "numerics.finite_elements": 40,
+    })
+    case = make(data)
+    res = optimise(case)
+    assert res.ok, res.reason
+    tau = math.log(k2 / K1) / (k2 - K1)
+    assert res.design["length_m"] == pytest.approx(tau * _vdot(case) / case.tube.area, rel=1e-4)
+    assert res.objective == pytest.approx((K1 / k2) ** (k2 / (k2 - K1)), rel=1e-6)
+
+
+def test_resolve_after_parameter_change_needs_no_compilation():
+    problem = DesignProblem(min_volume_case()).build()
+    first = problem.solve_nlp()
+    compile_time = problem.nlp.times["compile_s"]
+    problem.model.limit_value["min_conversion"] = 0.95
+    second = problem.solve_nlp(warm_start=True)
+    assert problem.nlp.times["compile_s"] == compile_time
+    assert second.objective / first.objective == pytest.approx(math.log(20) / math.log(10), rel=1e-5)
+
+
+def test_demo_multiplier_against_finite_difference(demo_dir):
+    # The production-rate multiplier is d(cost)/d(duty): compare with re-solving at duty + 1 %.
+    from models import load_case
+
+    case = load_case(demo_dir / "oxidation-design.toml", {"design.round_tube_count": False})
+    problem = DesignProblem(case).build()
+    base = problem.solve_nlp()
+    assert base.success
+    (row,) = [r for r in problem.limit_rows(base) if r.name == "production_rate"]
+    duty = problem.spec.limits["production_rate"]
+    problem.model.limit_value["production_rate"] = duty * 1.01
+    moved = problem.solve_nlp(warm_start=True)
+    assert moved.success
+    fd = (moved.objective - base.objective) / (0.01 * duty)
+    assert row.binding and row.multiplier == pytest.approx(fd, rel=0.03)
+
+
+def test_demo_optimum_verified_and_collocation_matches_integrator(demo_dir):
+    from models import load_case
+
+    res = optimise(load_case(demo_dir / "oxidation-design.toml"))
+    assert res.ok and res.verification["max_relative_deviation"] < 1e-3
+    assert res.design["tube_count"] == round(res.design["tube_count"])
+    prod = next(r for r in res.limits if r.name == "production_rate")
+    assert prod.value >= prod.bound * (1 - 1e-6)
+    assert res.simulation.summary["max_temperature_K"] <= 650.0 + 1e-3
+
+
+def test_infeasible_limits_are_reported_with_a_hint():
+    res = optimise(min_volume_case(**{"limits.max_temperature": "300 K", "design.length.max": "5 m",
+                                      "limits.min_conversion": 0.99}))
+    assert res.status in ("infeasible", "failed")
+    assert "relax limits." in res.hint
+
+
+def test_case_without_free_variable_is_simulated():
+    res = optimise(make(liquid_case()))
+    assert res.status == "not_optimised" and "simulated" in res.reason and res.simulation.ok
+
+
+@pytest.mark.parametrize("design, message", [
+    ({"length": {"min": "5 m", "max": "2 m"}}, "must be below max"),
+    ({"length": {"min": "2 m"}}, "needs both min and max"),
+    ({"lenght": {"min": "2 m", "max": "5 m"}}, 'did you mean "length"'),
+    ({"coolant_flow": {"min": "1 kg/s", "max": "2 kg/s"}}, "has no coolant flow"),
+])
+def test_bad_design_sections(design, message):
+    with pytest.raises(CaseError, match=message):
+        read_design(make(liquid_case(design=design)))

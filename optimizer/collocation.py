@@ -36,8 +36,8 @@ def _design_component(model, name, spec, value):
 
 
 def parametrised_case(model, case, spec):
-    """The case with every design quantity, kinetic parameter and the U multiplier replaced by Pyomo
-    components of ``model``."""
+    """The case with every design quantity, the wall thickness, the kinetic parameters and the U multiplier
+    replaced by Pyomo components of ``model``."""
     d = {}
     for name in DESIGN_KEYS:
         value = case_value(case, name)
@@ -50,7 +50,9 @@ def parametrised_case(model, case, spec):
     model.e_act = pyo.Param(range(n_rx), mutable=True,
                             initialize={j: rx.activation_energy for j, rx in enumerate(case.reactions)})
     model.u_multiplier = pyo.Param(mutable=True, initialize=case.heat_transfer.multiplier)
-    tube = replace(case.tube, length=d["length"], inner_diameter=d["inner_diameter"], count=d["tube_count"])
+    model.wall_thickness = pyo.Param(mutable=True, initialize=case.tube.wall_thickness)
+    tube = replace(case.tube, length=d["length"], inner_diameter=d["inner_diameter"], count=d["tube_count"],
+                   wall_thickness=model.wall_thickness)
     feed = replace(case.feed, temperature=d["inlet_temperature"], pressure=d["inlet_pressure"])
     coolant = case.coolant
     if "coolant_temperature" in d:

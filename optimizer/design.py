@@ -62,6 +62,7 @@ class DesignSpec:
     costs: CostModel = field(default_factory=CostModel)
     standard_tubes: bool = False
     round_tube_count: bool = True
+    temperature_profile: tuple | None = None  # (min, max) K of the free profile of the ideal bound
 
     @property
     def has_freedom(self) -> bool:
@@ -76,11 +77,20 @@ def case_value(case, name):
 def read_design(case) -> DesignSpec:
     raw, source = case.raw, case.source
     free, fixed = {}, {}
+    profile = None
     standard = False
     rounding = True
     if "design" in raw:
-        t = Table(raw["design"], source, "design", set(DESIGN_KEYS) | {"standard_tubes", "round_tube_count"})
+        t = Table(raw["design"], source, "design",
+                  set(DESIGN_KEYS) | {"standard_tubes", "round_tube_count", "temperature_profile"})
         for key, spec in t.data.items():
+            if key == "temperature_profile":
+                sub = Table(spec, source, "design.temperature_profile", {"min", "max"})
+                profile = (sub.quantity("min", "temperature"), sub.quantity("max", "temperature"))
+                sub.finish()
+                if not profile[0] < profile[1]:
+                    raise CaseError(source, "design.temperature_profile", "min must be below max")
+                continue
             if key == "standard_tubes":
                 standard = _bool(spec, source, "design.standard_tubes")
                 continue
@@ -138,7 +148,7 @@ def read_design(case) -> DesignSpec:
         values = {k: c.number(k, low=0.0) for k in list(c.data) if k in allowed}
         c.finish()
         costs = CostModel(**values)
-    return DesignSpec(free, fixed, limits, goal, costs, standard, rounding)
+    return DesignSpec(free, fixed, limits, goal, costs, standard, rounding, profile)
 
 
 def _bool(value, source, key):

@@ -81,9 +81,11 @@ class DesignProblem:
     """Build once, solve many: the compiled NLP is kept; parameters (k_ref, E_a, U multiplier, limit values,
     fixed design values) change through ``set_parameter`` and re-solve without recompiling."""
 
-    def __init__(self, case, nfe: int | None = None, ncp: int | None = None):
+    def __init__(self, case, nfe: int | None = None, ncp: int | None = None, goal: str | None = None):
         self.case = case
         self.spec = read_design(case)
+        if goal is not None:
+            self.spec = replace(self.spec, goal=goal)
         num = case.raw.get("numerics", {})
         self.nfe = int(nfe or num.get("finite_elements", DEFAULT_NFE))
         self.ncp = int(ncp or num.get("collocation_points", DEFAULT_NCP))
@@ -97,7 +99,9 @@ class DesignProblem:
         values.update(self.spec.fixed)
         return values
 
-    def build(self, start: dict | None = None):
+    def build(self, start: dict | None = None, modify=None):
+        """Build, initialise from a simulation of the starting design, add goal and limits, compile.
+        ``modify(model)`` may change the model (deactivate equations, free profiles) before compilation."""
         t0 = time.perf_counter()
         start_case = design_case(self.case, start or self.start_values())
         sim = simulate(start_case, checks=False)
@@ -111,7 +115,12 @@ class DesignProblem:
         self.model, self.pcase = m, pcase
         self._expressions(m, pcase)
         self._limits(m, pcase)
+        if self.case.product:  # the epsilon constraint of Pareto fronts; -1e6 leaves it slack
+            m.pareto_eps = pyo.Param(mutable=True, initialize=-1.0e6)
+            m.pareto_cut = pyo.Constraint(expr=m.e_selectivity >= m.pareto_eps)
         self._objective(m, pcase)
+        if modify is not None:
+            modify(m)
         self.nlp = CompiledNLP(m)
         self._scales = state_scaling(m, start_case, sim)
         self.obj_scale = 1.0 / max(abs(pyo.value(m.goal)), 1e-12)
@@ -134,7 +143,7 @@ class DesignProblem:
         m.e_conversion = 1.0 - m.F[key, 1.0] / m.F[key, 0.0]
         tube = pcase.tube
         m.e_volume = N * tube.area * tube.length
-        m.e_area = N * math.pi * (tube.inner_diameter + 2.0 * case.tube.wall_thickness) * tube.length
+        m.e_area = N * math.pi * (tube.inner_diameter + 2.0 * tube.wall_thickness) * tube.length
         mass_flow_tube = sum(case.feed.molar_flows[i] * s.molar_mass for i, s in enumerate(case.species)) / N
         if case.phase == "gas":
             vdot_tube = sum(case.feed.molar_flows) / N * R_GAS * pcase.feed.temperature / pcase.feed.pressure
@@ -240,7 +249,8 @@ class DesignProblem:
         for (sp, _), c in m.ode_F.items():
             g_s[row[id(c)]] = 1.0 / s["F"][sp]
         for (state, _), c in m.ode.items():
-            g_s[row[id(c)]] = 1.0 / s[state]
+            if id(c) in row:
+                g_s[row[id(c)]] = 1.0 / s[state]
         for state in ("F", "T", "P", "Tc", "Q", "tau"):
             disc = getattr(m, f"d{state}_disc_eq")
             for idx, c in disc.items():
@@ -251,7 +261,8 @@ class DesignProblem:
             g_s[row[id(c)]] = 1.0 / max(feed[self.case.index(sp)], 1e-3 * sum(feed))
         for c, ref in ((m.inlet_T, s["T"]), (m.inlet_P, s["P"]), (m.coolant_in, s["Tc"]), (m.inlet_Q, s["Q"]),
                        (m.inlet_tau, s["tau"])):
-            g_s[row[id(c)]] = 1.0 / ref
+            if id(c) in row:
+                g_s[row[id(c)]] = 1.0 / ref
         for name, (comp, _, _) in self.limit_components.items():
             bound = abs(self.spec.limits[name]) or 1.0
             for c in (comp.values() if comp.is_indexed() else [comp]):

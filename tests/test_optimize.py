@@ -120,3 +120,57 @@ def test_case_without_free_variable_is_simulated():
 def test_bad_design_sections(design, message):
     with pytest.raises(CaseError, match=message):
         read_design(make(liquid_case(design=design)))
+
+
+def test_ideal_bound_logsdon_biegler_temperature_profile():
+    # Logsdon and Biegler (1989): A -> B (second order, k1 = 4000 exp(-2500/T)), B -> C (first order,
+    # k2 = 6.2e5 exp(-5000/T)), c_A0 = 1, residence time 1, 298 <= T <= 398 K; the optimal temperature profile
+    # gives the maximum yield of B 0.610775 (published optimum, value from memory). Here: a liquid tube with
+    # tau = 1 s, c_A0 = 1 mol/m^3, T free along the tube. Independent lower bound: the best isothermal yield,
+    # found here by scipy integration over a grid of temperatures.
+    from optimizer.ideal import ideal_bound
+
+    r = 8.314462618
+    t_ref = 350.0
+    k1 = 4000.0 * math.exp(-2500.0 / t_ref)
+    k2 = 6.2e5 * math.exp(-5000.0 / t_ref)
+    area = math.pi * 0.02**2 / 4
+    data = liquid_case(**{
+        "chemistry.product": "B",
+        "chemistry.species": {
+            "A": {"molar_mass": "50 g/mol", "cp": "100 J/mol/K"},
+            "B": {"molar_mass": "50 g/mol", "cp": "100 J/mol/K"},
+            "C": {"molar_mass": "50 g/mol", "cp": "100 J/mol/K"},
+            "S": {"molar_mass": "18 g/mol", "cp": "75 J/mol/K"},
+        },
+        "chemistry.reactions": {
+            "r1": {"equation": "A -> B", "orders": {"A": 2}, "k_ref": f"{k1} m^3/mol/s",
+                   "activation_energy": f"{2500 * r} J/mol", "t_ref": f"{t_ref} K"},
+            "r2": {"equation": "B -> C", "orders": {"B": 1}, "k_ref": f"{k2} 1/s",
+                   "activation_energy": f"{5000 * r} J/mol", "t_ref": f"{t_ref} K"},
+        },
+        # v = 1e-3 m^3/s at 1000 kg/m^3; c_A0 = 1 mol/m^3
+        "feed.molar_flows": {"A": "1e-3 mol/s", "S": f"{(1.0 - 1e-3 * 0.05) / 0.018} mol/s"},
+        "feed.temperature": "350 K",
+        "tube.length": f"{1e-3 * 1.0 / area} m",
+        "design": {"length": f"{1e-3 * 1.0 / area} m", "inner_diameter": "20 mm",
+                   "temperature_profile": {"min": "298 K", "max": "398 K"}},
+        "goal": {"objective": "max_yield"},
+        "numerics.finite_elements": 50,
+    })
+    bound = ideal_bound(make(data))
+    assert bound["success"]
+    assert bound["objective"] == pytest.approx(0.610775, abs=1e-4)
+
+    import numpy as np
+    from scipy.integrate import solve_ivp
+
+    def isothermal_yield(T):
+        a, b = 4000 * np.exp(-2500 / T), 6.2e5 * np.exp(-5000 / T)
+        sol = solve_ivp(lambda t, y: [-a * y[0] ** 2, a * y[0] ** 2 - b * y[1]], (0, 1), [1, 0], rtol=1e-10)
+        return sol.y[1, -1]
+
+    best_isothermal = max(isothermal_yield(T) for T in np.linspace(298, 398, 51))
+    assert bound["objective"] > best_isothermal + 1e-3
+    temps = [p["T_K"] for p in bound["profile"]]
+    assert temps[1] > temps[-1]  # hot at the inlet, cooler downstream: the published profile's shape

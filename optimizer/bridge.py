@@ -357,8 +357,9 @@ class CompiledNLP:
         def timed(fn):
             def wrapper(*args):
                 t = time.perf_counter()
-                try:
-                    return fn(*args)
+                try:  # trial points outside the domain give NaN, which IPOPT answers with a shorter step
+                    with np.errstate(all="ignore"):
+                        return fn(*args)
                 finally:
                     timer["callbacks_s"] += time.perf_counter() - t
             return wrapper

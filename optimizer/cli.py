@@ -172,7 +172,8 @@ def optimisation_lines(case, res) -> list[str]:
     return lines
 
 
-def _optimisation_answer(case, res, files) -> dict:
+def _optimisation_answer(case, res, files, extras=None) -> dict:
+    extras = extras or {}
     return _finite({
         "case": case.source, "title": case.title, "status": res.status, "reason": res.reason, "goal": res.goal,
         "objective": res.objective, "design": res.design, "limits": [r.as_dict() for r in res.limits],
@@ -180,6 +181,7 @@ def _optimisation_answer(case, res, files) -> dict:
                                                       for k, v in res.verification.items()},
         "solver": res.solver, "timings_s": res.timings, "notes": res.notes, "hint": res.hint,
         "summary": res.simulation.summary if res.simulation is not None else {}, "files": files, "caution": CAUTION,
+        **extras,
     })
 
 
@@ -188,7 +190,39 @@ def cmd_optimize(args) -> int:
     from optimizer.optimize import design_case, optimise
 
     case = load_case(args.case, _parse_sets(args.set))
+    from optimizer.design import read_design
+
+    spec = read_design(case)
+    if args.starts is not None and args.starts < 1:
+        raise ValueError("--starts must be at least 1")
+    if args.pareto is not None and args.pareto < 2:
+        raise ValueError("--pareto needs at least 2 points")
+    extras = {}
+    if spec.standard_tubes:
+        from optimizer.alternatives import rank_standard_tubes
+
+        ranking = rank_standard_tubes(case)
+        extras["standard_tubes"] = ranking
+        best = next((r for r in ranking if r["objective"] is not None), None)
+        if best is not None:
+            chosen = {"tube.inner_diameter": f"{best['inner_diameter_m']} m",
+                      "tube.wall_thickness": f"{best['wall_thickness_m']} m", "design.standard_tubes": False}
+            case = load_case(args.case, {**_parse_sets(args.set), **chosen})
     res = optimise(case)
+    if args.ideal and res.ok:
+        from optimizer.ideal import ideal_bound
+
+        bound = ideal_bound(case)
+        bound["gap"] = (res.objective - bound["objective"]) if bound["success"] else None
+        extras["ideal_bound"] = bound
+    if args.starts:
+        from optimizer.alternatives import multistart
+
+        extras["multistart"] = multistart(case, args.starts, args.seed)
+    if args.pareto:
+        from optimizer.alternatives import pareto_front
+
+        extras["pareto"] = pareto_front(case, args.pareto)
     files = {}
     if args.out and res.simulation is not None and res.simulation.columns:
         out = Path(args.out)
@@ -201,16 +235,43 @@ def cmd_optimize(args) -> int:
         files["plot_png"] = str(plot_profiles(best, res.simulation, out / "optimal_profiles.png",
                                               limits=res.limits))
         files["result_json"] = str(out / "optimum.json")
-        Path(files["result_json"]).write_text(json.dumps(_optimisation_answer(case, res, files), indent=2) + "\n")
+        Path(files["result_json"]).write_text(json.dumps(_optimisation_answer(case, res, files, extras), indent=2)
+                                              + "\n")
     if args.json:
-        print(json.dumps(_optimisation_answer(case, res, files), indent=2))
+        print(json.dumps(_optimisation_answer(case, res, files, extras), indent=2))
     else:
         print(f"{case.title}\n  case file: {case.source}")
         print("\n".join(optimisation_lines(case, res)))
+        print("\n".join(extra_lines(res, extras)))
         for label, path in files.items():
             print(f"  wrote {label}: {path}")
         print(f"\nCAUTION: {CAUTION}")
     return EXIT_OK if res.status in ("optimal", "not_optimised") else EXIT_NOT_OK
+
+
+def extra_lines(res, extras) -> list[str]:
+    lines = []
+    if "standard_tubes" in extras:
+        lines.append("\nstandard tube sizes (TEMA), best first:")
+        for r in extras["standard_tubes"]:
+            lines.append(f"  {r['label']:<20} inner {r['inner_diameter_m'] * 1e3:6.2f} mm  goal {_fmt(r['objective'])} "
+                         f"({r['status']})")
+    if "ideal_bound" in extras:
+        b = extras["ideal_bound"]
+        lo, hi = b["temperature_bounds_K"]
+        lines.append(f"\nideal bound (fluid temperature free in {lo:.1f}..{hi:.1f} K along the tube): "
+                     f"{_fmt(b['objective'])} ({b['status']}); this layout is {_fmt(b['gap'])} from it")
+    if "multistart" in extras:
+        ms = extras["multistart"]
+        lines.append(f"\nmulti-start (seed {ms['seed']}): {ms['converged']} of {len(ms['runs'])} starts converged, "
+                     f"best {_fmt(ms['best'])}, spread {_fmt(ms['spread'])}; {len(ms['skipped'])} random designs "
+                     "skipped (their simulation did not reach the outlet)")
+    if "pareto" in extras:
+        lines.append("\ncost-selectivity front (epsilon constraint):")
+        lines.append(f"  {'selectivity':>12}{'annual cost':>16}  status")
+        for p in extras["pareto"]["points"]:
+            lines.append(f"  {p['selectivity']:>12.5f}{p['annual_cost_per_year']:>16.6g}  {p['status']}")
+    return lines
 
 
 def _design_values(res) -> dict:
@@ -236,6 +297,10 @@ def build_parser() -> argparse.ArgumentParser:
     opt.add_argument("--json", action="store_true", help="print the result as one JSON object")
     opt.add_argument("--out", metavar="DIR", help="write optimal_profiles.csv/.png and optimum.json here")
     opt.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a case key (repeatable)")
+    opt.add_argument("--ideal", action="store_true", help="also solve the ideal bound (free temperature profile)")
+    opt.add_argument("--starts", type=int, metavar="N", help="also solve from N random starting designs")
+    opt.add_argument("--seed", type=int, default=0, help="seed of the random starts (default 0)")
+    opt.add_argument("--pareto", type=int, metavar="N", help="also trace a cost-selectivity front of N points")
     opt.set_defaults(func=cmd_optimize)
     return p
 

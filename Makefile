@@ -25,6 +25,7 @@ test: lint
 
 bench: $(STAMP)
 	$(BIN)/python tests/benchmarks/bench_simulate.py
+	$(BIN)/python tests/benchmarks/bench_optimize.py
 
 clean:
 	rm -rf $(VENV) demo-output .pytest_cache

@@ -130,6 +130,27 @@ def test_ideal_bound_logsdon_biegler_temperature_profile():
     # found here by scipy integration over a grid of temperatures.
     from optimizer.ideal import ideal_bound
 
+    data = logsdon_biegler_data()
+    bound = ideal_bound(make(data))
+    assert bound["success"]
+    assert bound["objective"] == pytest.approx(0.610775, abs=1e-4)
+
+    import numpy as np
+    from scipy.integrate import solve_ivp
+
+    def isothermal_yield(T):
+        a, b = 4000 * np.exp(-2500 / T), 6.2e5 * np.exp(-5000 / T)
+        sol = solve_ivp(lambda t, y: [-a * y[0] ** 2, a * y[0] ** 2 - b * y[1]], (0, 1), [1, 0], rtol=1e-10)
+        return sol.y[1, -1]
+
+    best_isothermal = max(isothermal_yield(T) for T in np.linspace(298, 398, 51))
+    assert bound["objective"] > best_isothermal + 1e-3
+    temps = [p["T_K"] for p in bound["profile"]]
+    assert temps[1] > temps[-1]  # hot at the inlet, cooler downstream: the published profile's shape
+
+
+def logsdon_biegler_data(nfe: int = 50):
+    """The A -> B -> C temperature-profile problem of Logsdon and Biegler (1989) as a liquid tube case."""
     r = 8.314462618
     t_ref = 350.0
     k1 = 4000.0 * math.exp(-2500.0 / t_ref)
@@ -156,21 +177,6 @@ def test_ideal_bound_logsdon_biegler_temperature_profile():
         "design": {"length": f"{1e-3 * 1.0 / area} m", "inner_diameter": "20 mm",
                    "temperature_profile": {"min": "298 K", "max": "398 K"}},
         "goal": {"objective": "max_yield"},
-        "numerics.finite_elements": 50,
+        "numerics.finite_elements": nfe,
     })
-    bound = ideal_bound(make(data))
-    assert bound["success"]
-    assert bound["objective"] == pytest.approx(0.610775, abs=1e-4)
-
-    import numpy as np
-    from scipy.integrate import solve_ivp
-
-    def isothermal_yield(T):
-        a, b = 4000 * np.exp(-2500 / T), 6.2e5 * np.exp(-5000 / T)
-        sol = solve_ivp(lambda t, y: [-a * y[0] ** 2, a * y[0] ** 2 - b * y[1]], (0, 1), [1, 0], rtol=1e-10)
-        return sol.y[1, -1]
-
-    best_isothermal = max(isothermal_yield(T) for T in np.linspace(298, 398, 51))
-    assert bound["objective"] > best_isothermal + 1e-3
-    temps = [p["T_K"] for p in bound["profile"]]
-    assert temps[1] > temps[-1]  # hot at the inlet, cooler downstream: the published profile's shape
+    return data

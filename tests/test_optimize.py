@@ -180,3 +180,32 @@ def logsdon_biegler_data(nfe: int = 50):
         "numerics.finite_elements": nfe,
     })
     return data
+
+
+def test_cli_optimize_json_and_infeasible_report(demo_dir, capsys):
+    import json
+
+    from optimizer.cli import main
+
+    assert main(["optimize", str(demo_dir / "oxidation-design.toml"), "--json"]) == 0
+    answer = json.loads(capsys.readouterr().out)
+    assert answer["status"] == "optimal" and answer["goal"] == "min_cost"
+    assert {"length_m", "inner_diameter_m", "tube_count", "coolant_temperature_K"} <= set(answer["design"])
+    limits = {r["limit"]: r for r in answer["limits"]}
+    assert limits["production_rate"]["binding"] and limits["production_rate"]["multiplier_per_unit"] > 0
+    assert answer["verification"]["max_relative_deviation"] < answer["verification"]["tolerance"]
+    assert "Screening estimate" in answer["caution"]
+    code = main(["optimize", str(demo_dir / "oxidation-design.toml"), "--set", "limits.production_rate=6 mol/s"])
+    text = capsys.readouterr().out
+    assert code == 1 and "infeasible" in text and "relax limits.production_rate" in text
+
+
+def test_cli_optimize_bad_design_exit_2(tmp_path, demo_dir, capsys):
+    from optimizer.cli import main
+
+    bad = tmp_path / "bad.toml"
+    base = demo_dir / "oxidation-design.toml"
+    bad.write_text(f'include = "{base}"\n[design]\nlength = {{ min = "9 m", max = "2 m" }}\n')
+    assert main(["optimize", str(bad)]) == 2
+    err = capsys.readouterr().err
+    assert "design.length" in err and "below max" in err

@@ -209,3 +209,15 @@ def test_cli_optimize_bad_design_exit_2(tmp_path, demo_dir, capsys):
     assert main(["optimize", str(bad)]) == 2
     err = capsys.readouterr().err
     assert "design.length" in err and "below max" in err
+
+
+def test_countercurrent_liquid_optimum_is_verified(demo_dir):
+    # Counter-current coolant: a boundary condition at the outlet in the collocation model; the optimum must
+    # agree with the shooting solution of the adaptive integrator.
+    from models import load_case
+
+    res = optimise(load_case(demo_dir / "coil-design.toml"))
+    assert res.ok, res.reason
+    assert res.verification["max_relative_deviation"] < 0.01
+    assert res.simulation.summary["max_temperature_K"] <= 323.0 + 0.05
+    assert any("coolant_flow sits at its upper bound" in n for n in res.notes)

@@ -128,10 +128,11 @@ def equilibrium_constant(m, rx: Reaction, species: dict, T):
 
 
 def _power(a, exponent):
-    if exponent == 0:
-        return 1.0
-    if exponent == 1:
-        return a
+    if isinstance(exponent, (int, float)):  # shortcuts only for plain numbers (sampled orders are arrays)
+        if exponent == 0:
+            return 1.0
+        if exponent == 1:
+            return a
     return a**exponent
 
 

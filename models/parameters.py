@@ -1,0 +1,122 @@
+"""Uncertain or swept parameters of a case, addressed by dotted paths, applied by value (SI).
+
+Supported paths:
+    chemistry.reactions.NAME.k_ref | .activation_energy | .heat_of_reaction | .orders.SPECIES
+    heat_transfer.multiplier
+    feed.temperature | feed.pressure | feed.molar_flows.SPECIES
+    coolant.temperature | coolant.mass_flow
+
+``apply`` accepts numbers (one case) or numpy arrays of one value per sample (a batch): the balances
+broadcast over the samples, so one integration carries them all."""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+
+from .backend import NUMPY
+from .errors import CaseError, suggest
+from .reactions import heat_of_reaction
+from .thermo import T_STD
+
+SIMPLE = {
+    "heat_transfer.multiplier": "",
+    "feed.temperature": "K",
+    "feed.pressure": "Pa",
+    "coolant.temperature": "K",
+    "coolant.mass_flow": "kg/s",
+}
+REACTION_FIELDS = ("k_ref", "activation_energy", "heat_of_reaction", "orders")
+
+
+def si_unit(case, path: str, source: str, key: str) -> str:
+    """The SI unit (pint string) of the parameter at ``path``; CaseError for an unknown path."""
+    if path in SIMPLE:
+        return SIMPLE[path]
+    parts = path.split(".")
+    if path.startswith("feed.molar_flows."):
+        _species(case, parts[2], source, key)
+        return "mol/s"
+    if path.startswith("chemistry.reactions.") and len(parts) >= 4:
+        rx = _reaction(case, parts[2], source, key)
+        field = parts[3]
+        if field not in REACTION_FIELDS:
+            raise CaseError(source, key, f'"{path}": no parameter "{field}"{suggest(field, REACTION_FIELDS)}; '
+                            f"allowed: {', '.join(REACTION_FIELDS)}")
+        if field == "orders":
+            if len(parts) != 5:
+                raise CaseError(source, key, f'"{path}": name the species, e.g. ...orders.A')
+            _species(case, parts[4], source, key)
+            return ""
+        if field == "k_ref":
+            from .casefile import _rate_units
+
+            return _rate_units(rx.basis, rx.driving, sum(rx.orders.values()))
+        return "J/mol"
+    allowed = list(SIMPLE) + ["feed.molar_flows.SPECIES"] + [f"chemistry.reactions.{r.name}.{f}"
+                                                              for r in case.reactions for f in REACTION_FIELDS]
+    raise CaseError(source, key, f'unknown parameter "{path}"{suggest(path, allowed)}; allowed: '
+                    f"{', '.join(allowed)}")
+
+
+def _reaction(case, name, source, key):
+    for rx in case.reactions:
+        if rx.name == name:
+            return rx
+    raise CaseError(source, key, f'no reaction "{name}"{suggest(name, [r.name for r in case.reactions])}')
+
+
+def _species(case, name, source, key):
+    if name not in case.names:
+        raise CaseError(source, key, f'no species "{name}"{suggest(name, case.names)}')
+
+
+def base_value(case, path: str):
+    """The case's own value of a parameter (SI)."""
+    parts = path.split(".")
+    if path in SIMPLE:
+        section, attr = parts
+        return getattr(getattr(case, section), attr)
+    if path.startswith("feed.molar_flows."):
+        return case.feed.molar_flows[case.index(parts[2])]
+    rx = next(r for r in case.reactions if r.name == parts[2])
+    if parts[3] == "orders":
+        return rx.orders.get(parts[4], 0.0)
+    if parts[3] == "heat_of_reaction":
+        return rx.heat_given if rx.heat_given is not None else float(heat_of_reaction(NUMPY, rx, case.species_map,
+                                                                                      T_STD))
+    return getattr(rx, parts[3])
+
+
+def apply(case, values: dict):
+    """The case with each path set to its value (number or array)."""
+    feed, coolant, heat = case.feed, case.coolant, case.heat_transfer
+    reactions = {rx.name: rx for rx in case.reactions}
+    flows = list(case.feed.molar_flows)
+    for path, v in values.items():
+        parts = path.split(".")
+        if path == "heat_transfer.multiplier":
+            heat = replace(heat, multiplier=v)
+        elif path in ("feed.temperature", "feed.pressure"):
+            feed = replace(feed, **{parts[1]: v})
+        elif path in ("coolant.temperature", "coolant.mass_flow"):
+            coolant = replace(coolant, **{parts[1]: v})
+        elif path.startswith("feed.molar_flows."):
+            flows[case.index(parts[2])] = v
+        else:
+            rx = reactions[parts[2]]
+            if parts[3] == "orders":
+                reactions[rx.name] = replace(rx, orders={**rx.orders, parts[4]: v})
+            elif parts[3] == "heat_of_reaction":
+                reactions[rx.name] = replace(rx, heat_given=v)
+            else:
+                reactions[rx.name] = replace(rx, **{parts[3]: v})
+    feed = replace(feed, molar_flows=tuple(flows))
+    return replace(case, feed=feed, coolant=coolant, heat_transfer=heat,
+                   reactions=tuple(reactions[r.name] for r in case.reactions))
+
+
+def size_of(values: dict) -> int:
+    sizes = {np.size(v) for v in values.values()}
+    return max(sizes) if sizes else 1

@@ -1,0 +1,269 @@
+"""Sensitivity screening: a small functional core (problem -> samples -> evaluations -> indices) and a thin
+wrapper (``screen``). SALib samples the unit hypercube and computes the indices; the project maps samples
+to parameter values and evaluates the reactor (batched).
+
+Seeds: an int (0 is a seed like any other). SALib gets fresh numpy Generators derived from it, never a bare
+int, so its ``if seed:`` test cannot turn seed 0 into "no seed".
+
+Failed samples (a simulation that stops): counted and listed per output with their inputs. Policy
+``report`` (default): an output with any failed sample gets no indices. Policy ``censor``: a stopped sample
+contributes its values where it stopped (a runaway's hot spot is the temperature ceiling it passed, a lower
+bound of the truth); the result says how many samples are censored. A sample whose integration failed
+outright has no values under either policy. The probability of passing the hot-spot limit counts a runaway
+sample as not passing.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from models.batch import OUTPUTS, simulate_batch, single_outputs
+from models.parameters import apply
+from models.simulator import simulate
+
+from .uncertain import read_uncertain, salib_problem
+
+MORRIS_LEVELS = 4
+MORRIS_QUANTILES = (0.005, 0.995)  # unbounded distributions: the Morris grid spans these quantiles
+METHODS = ("morris", "sobol")
+POLICIES = ("report", "censor")
+
+
+def rng_for(seed: int, stream: int) -> np.random.Generator:
+    return np.random.default_rng([int(seed), stream])
+
+
+def sample(problem: dict, method: str, n: int, seed: int) -> np.ndarray:
+    """Unit-hypercube samples: Sobol (Saltelli/Jansen, N (D + 2) rows, no second order) or Morris (N
+    trajectories of D + 1 rows, D = factors or groups)."""
+    if method == "sobol":
+        from SALib.sample import sobol
+
+        return sobol.sample(problem, n, calc_second_order=False, scramble=True, seed=rng_for(seed, 1))
+    from SALib.sample import morris
+
+    u = morris.sample(problem, n, num_levels=MORRIS_LEVELS, seed=rng_for(seed, 1))
+    lo, hi = MORRIS_QUANTILES
+    return lo + (hi - lo) * u
+
+
+def to_parameters(items, unit_x: np.ndarray) -> dict:
+    """Unit samples -> {path: SI values} (one column per uncertain item)."""
+    return {u.path: u.to_case_value(u.from_unit(unit_x[:, j])) for j, u in enumerate(items)}
+
+
+@dataclass
+class Evaluations:
+    outputs: dict  # name -> array per sample
+    censored: dict  # the same, with the values where stopped samples stopped
+    status: np.ndarray
+    reason: list
+    seconds: float
+    handed_over: int = 0
+
+
+def evaluate(case, items, unit_x, batch_size: int = 500, batched: bool = True, progress=None,
+             trap: float | None = None) -> Evaluations:
+    """Simulate every sample: in batches (stacked states) or one at a time. Counter-current coolant is always
+    one at a time (a shooting per sample)."""
+    t0 = time.perf_counter()
+    values = to_parameters(items, unit_x)
+    n = unit_x.shape[0]
+    outputs = {k: np.full(n, np.nan) for k in OUTPUTS}
+    censored = {k: np.full(n, np.nan) for k in OUTPUTS}
+    status = np.array(["ok"] * n, dtype=object)
+    reason = [""] * n
+    handed = 0
+    if case.coolant.mode == "countercurrent":
+        batched = False
+    step = batch_size if batched else 1
+    for start in range(0, n, step):
+        idx = slice(start, min(start + step, n))
+        chunk = {p: v[idx] for p, v in values.items()}
+        if batched:
+            res = simulate_batch(case, chunk, idx.stop - idx.start, trap=trap)
+            for k in OUTPUTS:
+                if k in res.outputs:
+                    outputs[k][idx] = res.outputs[k]
+                    censored[k][idx] = res.censored[k]
+            status[idx] = res.status
+            reason[idx] = res.reason
+            handed += res.handed_over
+        else:
+            r = simulate(apply(case, {p: float(v[0]) for p, v in chunk.items()}), checks=False)
+            for target, flag in ((outputs, False), (censored, True)):
+                for k, v in single_outputs(r, flag).items():
+                    target[k][start] = v
+            status[start], reason[start] = r.status, r.reason
+        if progress is not None:
+            progress(idx.stop, n, int(np.sum(status[: idx.stop] != "ok")))
+    limit = case.limits.get("max_temperature")
+    if limit is not None:
+        runaway = np.array(["ceiling" in r for r in reason])
+        hot = outputs["max_temperature_K"]
+        passes = np.where(runaway, 0.0, np.where(np.isfinite(hot), (hot <= limit).astype(float), np.nan))
+        outputs["passes_hot_spot_limit"] = censored["passes_hot_spot_limit"] = passes
+    present = [k for k, v in censored.items() if not np.all(np.isnan(v))]
+    return Evaluations({k: outputs[k] for k in present}, {k: censored[k] for k in present}, status, reason,
+                       time.perf_counter() - t0, handed)
+
+
+SCREENED_OUTPUTS = ("max_temperature_K", "conversion", "product_selectivity", "production_rate_mol_s",
+                    "pressure_drop_Pa", "passes_hot_spot_limit")
+
+
+def analyse(problem, method, unit_x, y, seed: int) -> dict:
+    """Indices of one output: Morris mu*, sigma (and mu*'s interval) or Sobol S1, ST with bootstrap intervals."""
+    if method == "sobol":
+        from SALib.analyze import sobol
+
+        r = sobol.analyze(problem, y, calc_second_order=False, num_resamples=200, conf_level=0.95,
+                          seed=rng_for(seed, 2), print_to_console=False)
+        return {"S1": r["S1"], "S1_conf": r["S1_conf"], "ST": r["ST"], "ST_conf": r["ST_conf"]}
+    from SALib.analyze import morris
+
+    r = morris.analyze(problem, unit_x, y, num_resamples=200, conf_level=0.95, num_levels=MORRIS_LEVELS,
+                       seed=rng_for(seed, 2), print_to_console=False)
+    return {"mu_star": np.asarray(r["mu_star"]), "mu_star_conf": np.asarray(r["mu_star_conf"]),
+            "sigma": np.asarray(r["sigma"]), "mu": np.asarray(r["mu"])}
+
+
+def factor_names(problem) -> list[str]:
+    if "groups" in problem:
+        seen = []
+        for g in problem["groups"]:
+            if g not in seen:
+                seen.append(g)
+        return seen
+    return list(problem["names"])
+
+
+def rows_for(problem, method, n_sub: int) -> int:
+    d = len(factor_names(problem))
+    return n_sub * (d + 2) if method == "sobol" else n_sub * (d + 1)
+
+
+def convergence(problem, method, unit_x, y, n: int, seed: int) -> dict:
+    """Indices from the first N/4 and N/2 base samples (trajectories) against N: the largest change of ST
+    (Sobol) or normalised mu* (Morris) between N/2 and N, and whether the ranking of the factors held."""
+    key = "ST" if method == "sobol" else "mu_star"
+    history = {}
+    for frac in (4, 2, 1):
+        n_sub = n // frac
+        if n_sub < 2:
+            continue
+        rows = rows_for(problem, method, n_sub)
+        idx = analyse(problem, method, unit_x[:rows], y[:rows], seed)[key]
+        history[n_sub] = np.asarray(idx, dtype=float)
+    if len(history) < 2:
+        return {"verdict": "not assessed (too few samples)", "history": {}}
+    sizes = sorted(history)
+    last, prev = history[sizes[-1]], history[sizes[-2]]
+    scale = max(np.nanmax(np.abs(last)), 1e-12)
+    change = float(np.nanmax(np.abs(last - prev)) / scale)
+    same_order = list(np.argsort(-last)) == list(np.argsort(-prev))
+    verdict = "converged" if change < 0.1 and same_order else "not converged: increase the number of samples"
+    return {"verdict": verdict, "largest_relative_change": change, "ranking_unchanged": bool(same_order),
+            "history": {int(k): v.tolist() for k, v in history.items()}}
+
+
+@dataclass
+class ScreeningResult:
+    method: str
+    seed: int
+    n: int
+    policy: str
+    factors: list
+    samples: object  # pandas DataFrame: inputs per sample (SI values)
+    outputs: object  # pandas DataFrame: outputs and status per sample
+    indices: dict = field(default_factory=dict)  # output -> DataFrame of indices per factor, or a reason
+    convergence: dict = field(default_factory=dict)
+    failures: dict = field(default_factory=dict)  # output -> {"count", "samples": [...]}
+    probability_of_passing: float | None = None
+    timings: dict = field(default_factory=dict)
+
+
+def run(items, evaluator, method: str = "morris", n: int = 16, seed: int = 0, policy: str = "report",
+        outputs=None) -> ScreeningResult:
+    """The functional core: problem from ``items`` -> unit samples (SALib) -> ``evaluator(unit_x)``
+    (an Evaluations) -> indices (SALib) and the convergence check, for each output in ``outputs``."""
+    import pandas as pd
+
+    if method not in METHODS:
+        raise ValueError(f"method must be one of {METHODS}")
+    if policy not in POLICIES:
+        raise ValueError(f"failure policy must be one of {POLICIES}")
+    problem = salib_problem(items)
+    unit_x = sample(problem, method, n, seed)
+    ev = evaluator(unit_x)
+    values = to_parameters(items, unit_x)
+    samples = pd.DataFrame({u.name: values[u.path] for u in items})
+    out = pd.DataFrame(ev.outputs)
+    out["status"] = ev.status
+    out["reason"] = ev.reason
+    indices, failures, conv = {}, {}, {}
+    factors = factor_names(problem)
+    t_analysis = time.perf_counter()
+    for name in outputs or ev.outputs:
+        if name not in ev.outputs:
+            continue
+        y = np.array((ev.censored if policy == "censor" else ev.outputs)[name], dtype=float)
+        bad = ~np.isfinite(y)
+        if bad.any():
+            failures[name] = {"count": int(bad.sum()),
+                              "samples": [{"sample": int(i), "reason": ev.reason[i],
+                                           **{c: float(samples[c].iloc[i]) for c in samples.columns}}
+                                          for i in np.flatnonzero(bad)[:50]]}
+            indices[name] = f"not analysed: {int(bad.sum())} of {len(y)} samples failed (policy {policy})"
+            continue
+        res = analyse(problem, method, unit_x, y, seed)
+        indices[name] = pd.DataFrame({k: np.asarray(v, dtype=float) for k, v in res.items()}, index=factors)
+        conv[name] = convergence(problem, method, unit_x, y, n, seed)
+    passing = None
+    if "passes_hot_spot_limit" in ev.outputs:
+        p = np.array(ev.outputs["passes_hot_spot_limit"], dtype=float)
+        passing = float(np.nanmean(p)) if np.isfinite(p).any() else None
+    stopped = int(np.sum(ev.status != "ok"))
+    timings = {"evaluate_s": ev.seconds, "stopped_samples": stopped,
+               "censored_samples": stopped if policy == "censor" else 0,
+               "analyse_s": time.perf_counter() - t_analysis,
+               "evaluations": int(unit_x.shape[0]), "evaluations_per_s": unit_x.shape[0] / max(ev.seconds, 1e-9),
+               "handed_over": ev.handed_over}
+    return ScreeningResult(method, seed, n, policy, factors, samples, out, indices, conv, failures, passing, timings)
+
+
+def function_evaluator(items, fn):
+    """An evaluator for a plain function ``fn({path: values}) -> {output: values}`` (vectorised)."""
+
+    def evaluator(unit_x):
+        t0 = time.perf_counter()
+        result = {k: np.asarray(v, dtype=float) for k, v in fn(to_parameters(items, unit_x)).items()}
+        n = unit_x.shape[0]
+        status = np.array(["ok"] * n, dtype=object)
+        return Evaluations(result, result, status, [""] * n, time.perf_counter() - t0)
+
+    return evaluator
+
+
+def screen(case, method: str = "morris", n: int = 16, seed: int = 0, policy: str = "report",
+           batched: bool = True, batch_size: int = 500, progress=None) -> ScreeningResult:
+    """Screen the [uncertain] quantities of a case for the reactor outputs (SCREENED_OUTPUTS)."""
+    items = read_uncertain(case)
+
+    def evaluator(unit_x):
+        return evaluate(case, items, unit_x, batch_size=batch_size, batched=batched, progress=progress,
+                        trap=_trap(case))
+
+    return run(items, evaluator, method, n, seed, policy, SCREENED_OUTPUTS)
+
+
+def _trap(case) -> float:
+    """Samples passing this temperature leave the batch (simulated on their own): 60 K above the hot-spot
+    limit, or 150 K above the feed and coolant temperatures without one (our choice; it affects speed only)."""
+    limit = case.limits.get("max_temperature")
+    if limit is not None:
+        return limit + 60.0
+    return max(case.feed.temperature, case.coolant.temperature or 0.0) + 150.0

@@ -68,8 +68,9 @@ class Evaluations:
 def evaluate(case, items, unit_x, batch_size: int = 500, batched: bool = True, progress=None,
              trap: float | None = None) -> Evaluations:
     """Simulate every sample: in batches (stacked states) or one at a time. Counter-current coolant is always
-    one at a time (a shooting per sample)."""
+    one at a time (a shooting per sample). ``trap``: see models.batch (default ``_trap(case)``)."""
     t0 = time.perf_counter()
+    trap = _trap(case) if trap is None else trap
     values = to_parameters(items, unit_x)
     n = unit_x.shape[0]
     outputs = {k: np.full(n, np.nan) for k in OUTPUTS}
@@ -219,6 +220,9 @@ def run(items, evaluator, method: str = "morris", n: int = 16, seed: int = 0, po
                                           for i in np.flatnonzero(bad)[:50]]}
             indices[name] = f"not analysed: {int(bad.sum())} of {len(y)} samples failed (policy {policy})"
             continue
+        if np.ptp(y) <= 1e-12 * max(np.max(np.abs(y)), 1e-300):
+            indices[name] = "not analysed: the output does not vary over the samples"
+            continue
         res = analyse(problem, method, unit_x, y, seed)
         indices[name] = pd.DataFrame({k: np.asarray(v, dtype=float) for k, v in res.items()}, index=factors)
         conv[name] = convergence(problem, method, unit_x, y, n, seed)
@@ -254,8 +258,7 @@ def screen(case, method: str = "morris", n: int = 16, seed: int = 0, policy: str
     items = read_uncertain(case)
 
     def evaluator(unit_x):
-        return evaluate(case, items, unit_x, batch_size=batch_size, batched=batched, progress=progress,
-                        trap=_trap(case))
+        return evaluate(case, items, unit_x, batch_size=batch_size, batched=batched, progress=progress)
 
     return run(items, evaluator, method, n, seed, policy, SCREENED_OUTPUTS)
 

@@ -1,0 +1,131 @@
+"""Screening through the project's own path (sampling, mapping, evaluation, analysis), against analytic
+indices, and on the reactor."""
+
+import math
+
+import numpy as np
+import pytest
+
+pytest.importorskip("SALib")
+
+from models import CaseError, load_case  # noqa: E402
+from optimizer.screening import evaluate, function_evaluator, run, screen  # noqa: E402
+from optimizer.uncertain import Uncertain, read_uncertain, salib_problem  # noqa: E402
+from tests.conftest import DEMO, liquid_case, make  # noqa: E402
+
+
+def uniform(name, lo, hi):
+    return Uncertain(name, f"x.{name}", "uniform", {"min": lo, "max": hi}, False, None, 0.0)
+
+
+def test_sobol_ishigami_against_analytic_indices():
+    # Ishigami and Homma (1990), f = sin x1 + a sin^2 x2 + b x3^4 sin x1, x_i ~ U(-pi, pi), a = 7, b = 0.1.
+    # Analytic: V1 = (1 + b pi^4/5)^2 / 2, V2 = a^2/8, V13 = b^2 pi^8 (1/18 - 1/50), V = V1 + V2 + V13.
+    a, b = 7.0, 0.1
+    items = [uniform(n, -math.pi, math.pi) for n in ("x1", "x2", "x3")]
+
+    def ishigami(v):
+        x1, x2, x3 = v["x.x1"], v["x.x2"], v["x.x3"]
+        return {"y": np.sin(x1) + a * np.sin(x2) ** 2 + b * x3**4 * np.sin(x1)}
+
+    res = run(items, function_evaluator(items, ishigami), "sobol", 4096, seed=0)
+    v1, v2 = 0.5 * (1 + b * math.pi**4 / 5) ** 2, a**2 / 8
+    v13 = b**2 * math.pi**8 * (1 / 18 - 1 / 50)
+    v = v1 + v2 + v13
+    idx = res.indices["y"]
+    assert idx["S1"].to_numpy() == pytest.approx([v1 / v, v2 / v, 0.0], abs=0.03)
+    assert idx["ST"].to_numpy() == pytest.approx([(v1 + v13) / v, v2 / v, v13 / v], abs=0.03)
+    assert res.convergence["y"]["verdict"] == "converged"
+
+
+def test_sobol_linear_model_with_normal_inputs():
+    # Analytic: y = sum c_i x_i with independent x_i ~ N(m_i, s_i): S1_i = ST_i = c_i^2 s_i^2 / sum c_j^2 s_j^2.
+    c, s = np.array([1.0, 2.0, 0.5]), np.array([1.0, 0.5, 2.0])
+    items = [Uncertain(f"x{i}", f"x.{i}", "normal", {"mean": 3.0, "std": float(s[i])}, False, None, 0.0)
+             for i in range(3)]
+    res = run(items, function_evaluator(items, lambda v: {"y": sum(c[i] * v[f"x.{i}"] for i in range(3))}),
+              "sobol", 2048, seed=3)
+    expected = c**2 * s**2 / np.sum(c**2 * s**2)
+    assert res.indices["y"]["S1"].to_numpy() == pytest.approx(expected, abs=0.03)
+    assert res.indices["y"]["ST"].to_numpy() == pytest.approx(expected, abs=0.03)
+
+
+def test_morris_ordering_of_a_known_function():
+    # y = 10 x1 + 5 x2 + x3 + 0 x4 on U(0, 1): the elementary effects are the coefficients (analytic), so
+    # mu* orders x1 > x2 > x3 > x4 and x4 has mu* = 0.
+    items = [uniform(f"x{i}", 0.0, 1.0) for i in range(1, 5)]
+    coef = [10.0, 5.0, 1.0, 0.0]
+    res = run(items, function_evaluator(items, lambda v: {"y": sum(k * v[f"x.x{i + 1}"] for i, k in enumerate(coef))}),
+              "morris", 20, seed=0)
+    mu = res.indices["y"]["mu_star"].to_numpy()
+    assert list(np.argsort(-mu)) == [0, 1, 2, 3] and mu[3] == pytest.approx(0.0, abs=1e-12)
+
+
+def test_seed_gives_identical_samples_and_indices_and_zero_is_a_seed():
+    items = [uniform(f"x{i}", 0.0, 1.0) for i in range(3)]
+    f = function_evaluator(items, lambda v: {"y": v["x.x0"] * v["x.x1"] + v["x.x2"] ** 2})
+    a, b = run(items, f, "sobol", 256, seed=0), run(items, f, "sobol", 256, seed=0)
+    assert a.samples.equals(b.samples)
+    assert a.indices["y"].equals(b.indices["y"])  # bootstrap intervals included
+    c = run(items, f, "sobol", 256, seed=1)
+    assert not a.samples.equals(c.samples)
+
+
+def test_parameter_without_effect_has_zero_total_index():
+    # Reaction r2 consumes G, which is neither fed nor formed: its rate constant cannot move any output.
+    data = liquid_case(**{
+        "chemistry.species.G": {"molar_mass": "60 g/mol", "cp": "100 J/mol/K"},
+        "chemistry.species.H": {"molar_mass": "60 g/mol", "cp": "100 J/mol/K"},
+        "chemistry.reactions.r2": {"equation": "G -> H", "orders": {"G": 1}, "k_ref": "1 1/s",
+                                   "activation_energy": "40 kJ/mol", "t_ref": "350 K"},
+        "coolant": {"mode": "adiabatic"},
+        "uncertain": {
+            "k1": {"parameter": "chemistry.reactions.r1.k_ref", "distribution": "lognormal", "relative": True,
+                   "median": 1.0, "sigma": 0.2},
+            "E1": {"parameter": "chemistry.reactions.r1.activation_energy", "distribution": "uniform",
+                   "min": "48 kJ/mol", "max": "52 kJ/mol"},
+            "k2": {"parameter": "chemistry.reactions.r2.k_ref", "distribution": "lognormal", "relative": True,
+                   "median": 1.0, "sigma": 0.5},
+        },
+        "numerics.rtol": 1e-8,
+    })
+    res = screen(make(data), "sobol", 128, seed=0)
+    for name in ("max_temperature_K", "conversion"):
+        st = res.indices[name].loc["k2"]
+        assert abs(st["ST"]) <= max(st["ST_conf"], 1e-6)
+        assert res.indices[name].loc["k1", "ST"] > 0.1
+
+
+def test_batched_and_one_at_a_time_evaluations_agree():
+    case = load_case(DEMO / "oxidation-screen.toml")
+    items = read_uncertain(case)
+    from optimizer.screening import sample
+
+    ux = sample(salib_problem(items), "sobol", 8, seed=0)
+    batched = evaluate(case, items, ux, batched=True)
+    single = evaluate(case, items, ux, batched=False)
+    assert list(batched.status) == list(single.status)
+    for key in ("max_temperature_K", "conversion", "product_selectivity", "pressure_drop_Pa"):
+        a, b = batched.outputs[key], single.outputs[key]
+        ok = np.isfinite(b)
+        assert np.all(np.isfinite(a) == ok)
+        assert np.max(np.abs(a[ok] - b[ok]) / np.abs(b[ok])) < 1e-4  # the integrators' tolerance is 1e-7
+
+
+@pytest.mark.parametrize("entry, message", [
+    ({"parameter": "chemistry.reactions.partial_oxidation.k_rf", "distribution": "uniform", "min": 1, "max": 2,
+      "relative": True}, 'did you mean "k_ref"'),
+    ({"parameter": "heat_transfer.multiplier", "distribution": "uniform", "min": 2.0, "max": 1.0},
+     "must be below max"),
+    ({"parameter": "heat_transfer.multiplier", "distribution": "normal", "mean": 1.0}, "needs mean, std"),
+    ({"parameter": "feed.temperature", "distribution": "uniform", "min": "5 kg", "max": "600 K"}, "dimension"),
+    ({"parameter": "heat_transfer.multiplier", "distribution": "lognormall", "median": 1.0, "sigma": 0.1},
+     'did you mean "lognormal"'),
+])
+def test_bad_uncertain_entries(entry, message):
+    case = load_case(DEMO / "oxidation.toml")
+    from dataclasses import replace
+
+    bad = replace(case, raw={**case.raw, "uncertain": {"u": entry}})
+    with pytest.raises(CaseError, match=message):
+        read_uncertain(bad)

@@ -28,6 +28,7 @@ test: lint
 bench: $(STAMP)
 	$(BIN)/python tests/benchmarks/bench_simulate.py
 	$(BIN)/python tests/benchmarks/bench_optimize.py
+	$(BIN)/python tests/benchmarks/bench_screen.py
 
 clean:
 	rm -rf $(VENV) demo-output .pytest_cache

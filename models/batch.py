@@ -13,13 +13,15 @@ import time
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.integrate import solve_ivp
+from scipy.integrate import BDF, solve_ivp
 from scipy.sparse import csc_matrix
+from scipy.sparse.linalg import splu
 
 from .backend import NUMPY
 from .balances import axial_derivatives
 from .summary import stoichiometric_factor
 
+TRAP_BAND = 25.0  # K
 GRID = 801  # axial points on which the hot spot is located (then refined by a parabola through the maximum)
 
 
@@ -42,11 +44,14 @@ def batch_rhs(case, n: int):
     k = len(case.species)
 
     def rhs(z, y):
-        Y = y.reshape(ns, n) if y.ndim == 1 else y.reshape(ns, *y.shape[1:])
+        # y is sample-major (sample 0's states, then sample 1's, ...), so that the Jacobian is block-diagonal
+        # with contiguous blocks; the physics wants (state, sample): Y is that view
+        Y = y.reshape(n, ns).T if y.ndim == 1 else y
         F = np.where(Y[:k].real < 0.0, 0.0 * Y[:k], Y[:k])
         d = axial_derivatives(NUMPY, case, list(F), Y[k], Y[k + 1], Y[k + 2])
         parts = [*d.dF, d.dT, d.dP, d.dTc, d.dQ, d.dtau]
-        return np.array([np.broadcast_to(p, Y.shape[1:]) for p in parts]).reshape(y.shape)
+        out = np.array([np.broadcast_to(p, Y.shape[1:]) for p in parts])
+        return out.T.ravel() if y.ndim == 1 else out
 
     return rhs
 
@@ -55,11 +60,11 @@ def block_jacobian(case, rhs, n: int):
     ns = _n_state(case)
     h = 1e-30
     i, kk, s = np.meshgrid(np.arange(ns), np.arange(ns), np.arange(n), indexing="ij")
-    rows = (i * n + s).ravel()
-    cols = (kk * n + s).ravel()
+    rows = (s * ns + i).ravel()
+    cols = (s * ns + kk).ravel()
 
     def jac(z, y):
-        Y = y.reshape(ns, n)
+        Y = y.reshape(n, ns).T
         step = h * np.maximum(1.0, np.abs(Y))
         cols_y = np.repeat(Y[:, None, :].astype(complex), ns, axis=1)  # (state, perturbed component, sample)
         cols_y[np.arange(ns), np.arange(ns), :] += 1j * step
@@ -67,6 +72,35 @@ def block_jacobian(case, rhs, n: int):
         return csc_matrix((d.ravel(), (rows, cols)), shape=(ns * n, ns * n))
 
     return jac
+
+
+def block_bdf(block: int):
+    """scipy's BDF with the Newton matrices I - c J factored block by block (one small dense inverse per
+    sample, batched in numpy) instead of by a general sparse LU: the stacked system is block-diagonal."""
+
+    class BlockBDF(BDF):
+        def __init__(self, *args, **kwargs):
+            super().__init__(*args, **kwargs)
+
+            def lu(A):
+                self.nlu += 1
+                bsr = A.tobsr(blocksize=(block, block))
+                bsr.sort_indices()
+                nb = A.shape[0] // block
+                if bsr.indices.size == nb and np.array_equal(bsr.indices, np.arange(nb)):
+                    return ("blocks", np.linalg.inv(bsr.data))
+                return ("sparse", splu(A.tocsc()))  # not block-diagonal after all: the general path
+
+            def solve_lu(LU, b):
+                kind, f = LU
+                if kind == "blocks":
+                    return np.einsum("sij,sj->si", f, b.reshape(-1, block)).reshape(b.shape)
+                return f.solve(b)
+
+            self.lu = lu
+            self.solve_lu = solve_lu
+
+    return BlockBDF
 
 
 def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> BatchResult:
@@ -99,18 +133,21 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> Bat
     handover = np.zeros(n, dtype=bool)
     active = np.arange(n)
     z0 = 0.0
+    first_step = None  # after a hand-over, restart with the last step size instead of a tiny first step
     while active.size:
         sub = apply(base, {p: (v[active] if np.ndim(v) else v) for p, v in values.items()})
         m = active.size
         rhs = batch_rhs(sub, m)
 
         def passed_trap(z, yy, m=m):
-            return trap - np.max(yy.reshape(ns, m)[k])
+            return trap - np.max(yy.reshape(m, ns)[:, k])
 
         passed_trap.terminal, passed_trap.direction = True, -1
         try:
-            sol = solve_ivp(rhs, (z0, length), y[:, active].ravel(), method="BDF", jac=block_jacobian(sub, rhs, m),
-                            rtol=num.rtol, atol=atol_all[:, active].ravel(), dense_output=True, events=[passed_trap])
+            sol = solve_ivp(rhs, (z0, length), y[:, active].T.ravel(), method=block_bdf(ns),
+                            jac=block_jacobian(sub, rhs, m),
+                            rtol=num.rtol, atol=atol_all[:, active].T.ravel(), dense_output=True,
+                            events=[passed_trap], first_step=first_step)
         except (ValueError, ArithmeticError, np.linalg.LinAlgError):
             sol = None
         if sol is None or sol.status == -1:
@@ -118,19 +155,23 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> Bat
             break
         z_end = float(sol.t[-1])
         grid = np.linspace(z0, z_end, max(int(GRID * (z_end - z0) / length), 3))
-        Yg = sol.sol(grid).reshape(ns, m, grid.size)[k]
+        Yg = sol.sol(grid).reshape(m, ns, grid.size)[:, k]
         i_max = np.argmax(Yg, axis=1)
         better = Yg[np.arange(m), i_max] > hot[active]
         hot[active[better]] = Yg[np.arange(m), i_max][better]
         pos[active[better]] = grid[i_max][better]
-        last = sol.y[:, -1].reshape(ns, m)
+        last = sol.y[:, -1].reshape(m, ns).T
         y[:, active] = last
         if sol.status == 0:
             end[:, active] = last
             break
-        over = last[k] >= trap - 1e-6
+        # hand over, with the sample that reached the trap, those close behind it: each hand-over restarts
+        # the batch integration, and a sample this hot is likely to reach the trap soon
+        over = last[k] >= trap - TRAP_BAND
         handover[active[over]] = True
         active = active[~over]
+        if sol.t.size > 2:
+            first_step = min(float(sol.t[-2] - sol.t[-3]), 0.5 * (length - z_end)) or None
         z0 = z_end
     # a sharp peak can pass the trap and fall back within one step, unseen by the event: the dense
     # solution shows it, and such a sample is simulated on its own too

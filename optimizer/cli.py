@@ -281,6 +281,79 @@ def _design_values(res) -> dict:
     return {back[k]: v for k, v in res.design.items()}
 
 
+class Progress:
+    """A progress bar with ETA on the terminal (stderr), shown only when stderr is a terminal and the
+    screening has run for more than 2 seconds; never in --json output."""
+
+    def __init__(self, enabled: bool):
+        import time
+
+        self.enabled = enabled and sys.stderr.isatty()
+        self.t0 = time.perf_counter()
+        self.shown = False
+
+    def __call__(self, done, total, failed):
+        import time
+
+        if not self.enabled:
+            return
+        elapsed = time.perf_counter() - self.t0
+        if elapsed < 2.0 and done < total:
+            return
+        eta = elapsed / max(done, 1) * (total - done)
+        bar = "#" * int(30 * done / total)
+        sys.stderr.write(f"\r  [{bar:<30}] {done}/{total} samples, {failed} failed, ETA {eta:5.0f} s ")
+        sys.stderr.flush()
+        self.shown = True
+
+    def close(self):
+        if self.shown:
+            sys.stderr.write("\n")
+
+
+def cmd_screen(args) -> int:
+    import warnings
+
+    from models import load_case
+    from optimizer.screen_report import as_json, ranking_lines, write_files
+    from optimizer.screening import screen
+
+    if args.samples < 2:
+        raise ValueError("--samples must be at least 2")
+    if args.method == "sobol" and args.samples & (args.samples - 1):
+        print(f"warning: --samples {args.samples} is not a power of two; Sobol sequences balance best at powers of "
+              "two (SALib's advice)", file=sys.stderr)
+    case = load_case(args.case, _parse_sets(args.set))
+    progress = Progress(enabled=not args.json)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)  # SALib's power-of-two warning: given above, once
+        res = screen(case, args.method, args.samples, args.seed, args.policy, batched=not args.no_batch,
+                     progress=progress, reoptimise=args.reoptimise)
+    progress.close()
+    answer = as_json(res)
+    answer.update(case=case.source, title=case.title, caution=CAUTION)
+    if args.out:
+        answer["files"] = write_files(res, Path(args.out))
+    if args.json:
+        print(json.dumps(_finite(answer), indent=2))
+        return EXIT_OK
+    t = res.timings
+    print(f"{case.title}\n  case file: {case.source}")
+    print(f"  {res.method} screening of {len(res.factors)} factors, N = {res.n}, {t['evaluations']} evaluations "
+          f"in {t['evaluate_s']:.1f} s ({t['evaluations_per_s']:.0f}/s), seed {res.seed}, failure policy "
+          f"{res.policy}; {t['stopped_samples']} samples stopped"
+          + (f", {t['handed_over']} simulated on their own" if t.get("handed_over") else ""))
+    if res.probability_of_passing is not None:
+        print(f"  probability of passing the hot-spot limit: {res.probability_of_passing:.4f}")
+    print("\n".join(ranking_lines(res)))
+    for name, fail in res.failures.items():
+        print(f"\nfailed samples for {name}: {fail['count']} (first: {fail['samples'][0]['reason']})")
+    for label, path in answer.get("files", {}).items():
+        print(f"  wrote {label}: {path}")
+    print(f"\nCAUTION: {CAUTION}")
+    return EXIT_OK
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="tubewright", description="Screening design of cooled tubular reactors. "
                                 + CAUTION)
@@ -302,11 +375,27 @@ def build_parser() -> argparse.ArgumentParser:
     opt.add_argument("--seed", type=int, default=0, help="seed of the random starts (default 0)")
     opt.add_argument("--pareto", type=int, metavar="N", help="also trace a cost-selectivity front of N points")
     opt.set_defaults(func=cmd_optimize)
+    scr = sub.add_parser("screen", help="rank the [uncertain] quantities of a case (Morris or Sobol)")
+    scr.add_argument("case", help="case file (TOML) with an [uncertain] section")
+    scr.add_argument("--method", choices=("morris", "sobol"), default="morris")
+    scr.add_argument("--samples", type=int, default=None,
+                     help="Morris trajectories or Sobol base samples (default 20 for Morris, 1024 for Sobol)")
+    scr.add_argument("--seed", type=int, default=0, help="seed of the samples and bootstrap (default 0)")
+    scr.add_argument("--policy", choices=("report", "censor"), default="report",
+                     help="failed samples: report them and skip the output (default), or censor them")
+    scr.add_argument("--reoptimise", action="store_true", help="re-optimise the design for each sample")
+    scr.add_argument("--no-batch", action="store_true", help="simulate one sample at a time")
+    scr.add_argument("--json", action="store_true", help="print the result as one JSON object")
+    scr.add_argument("--out", metavar="DIR", help="write samples, outputs, indices (CSV, Parquet) and plots here")
+    scr.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a case key (repeatable)")
+    scr.set_defaults(func=cmd_screen)
     return p
 
 
 def main(argv=None) -> int:
     args = build_parser().parse_args(argv)
+    if getattr(args, "verb", None) == "screen" and args.samples is None:
+        args.samples = 1024 if args.method == "sobol" else 20
     from models.errors import CaseError
 
     try:

@@ -165,7 +165,8 @@ def convergence(problem, method, unit_x, y, n: int, seed: int) -> dict:
     last, prev = history[sizes[-1]], history[sizes[-2]]
     scale = max(np.nanmax(np.abs(last)), 1e-12)
     change = float(np.nanmax(np.abs(last - prev)) / scale)
-    same_order = list(np.argsort(-last)) == list(np.argsort(-prev))
+    important = np.flatnonzero(last >= 0.05 * scale)  # the ranking of factors that matter must hold
+    same_order = list(important[np.argsort(-last[important])]) == list(important[np.argsort(-prev[important])])
     verdict = "converged" if change < 0.1 and same_order else "not converged: increase the number of samples"
     return {"verdict": verdict, "largest_relative_change": change, "ranking_unchanged": bool(same_order),
             "history": {int(k): v.tolist() for k, v in history.items()}}
@@ -253,9 +254,14 @@ def function_evaluator(items, fn):
 
 
 def screen(case, method: str = "morris", n: int = 16, seed: int = 0, policy: str = "report",
-           batched: bool = True, batch_size: int = 500, progress=None) -> ScreeningResult:
-    """Screen the [uncertain] quantities of a case for the reactor outputs (SCREENED_OUTPUTS)."""
+           batched: bool = True, batch_size: int = 500, progress=None, reoptimise: bool = False) -> ScreeningResult:
+    """Screen the [uncertain] quantities of a case for the reactor outputs (SCREENED_OUTPUTS), or with
+    ``reoptimise`` for the optimal goal and design."""
     items = read_uncertain(case)
+    if reoptimise:
+        from .reoptimise import reoptimise_evaluator
+
+        return run(items, reoptimise_evaluator(case, items, progress), method, n, seed, policy)
 
     def evaluator(unit_x):
         return evaluate(case, items, unit_x, batch_size=batch_size, batched=batched, progress=progress)

@@ -1,0 +1,107 @@
+"""Tables, files and plots of a screening result."""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import numpy as np
+
+
+def ranking_lines(res) -> list[str]:
+    lines = []
+    key = "ST" if res.method == "sobol" else "mu_star"
+    for name, idx in res.indices.items():
+        lines.append(f"\n{name}:")
+        if isinstance(idx, str):
+            lines.append(f"  {idx}")
+            continue
+        order = idx.sort_values(key, ascending=False)
+        if res.method == "sobol":
+            lines.append(f"  {'factor':<24}{'S1':>9}{'+-':>8}{'ST':>9}{'+-':>8}")
+            for f, r in order.iterrows():
+                lines.append(f"  {f:<24}{r['S1']:>9.3f}{r['S1_conf']:>8.3f}{r['ST']:>9.3f}{r['ST_conf']:>8.3f}")
+        else:
+            lines.append(f"  {'factor':<24}{'mu*':>12}{'+-':>11}{'sigma':>12}")
+            for f, r in order.iterrows():
+                lines.append(f"  {f:<24}{r['mu_star']:>12.4g}{r['mu_star_conf']:>11.3g}{r['sigma']:>12.4g}")
+        conv = res.convergence.get(name)
+        if conv:
+            lines.append(f"  convergence (N/4, N/2, N): {conv['verdict']}"
+                         + (f", largest change {conv['largest_relative_change']:.3f}" if "largest_relative_change"
+                            in conv else ""))
+    return lines
+
+
+def as_json(res) -> dict:
+    def table(idx):
+        if isinstance(idx, str):
+            return {"note": idx}
+        return {f: {k: (None if not math.isfinite(v) else float(v)) for k, v in row.items()} for f, row in
+                idx.iterrows()}
+
+    return {"method": res.method, "seed": res.seed, "samples": res.n, "evaluations": len(res.outputs),
+            "failure_policy": res.policy, "factors": res.factors,
+            "indices": {k: table(v) for k, v in res.indices.items()},
+            "convergence": {k: {kk: vv for kk, vv in v.items() if kk != "history"} for k, v in res.convergence.items()},
+            "failures": res.failures, "probability_of_passing_hot_spot_limit": res.probability_of_passing,
+            "timings": res.timings}
+
+
+def write_files(res, out: Path) -> dict:
+    out.mkdir(parents=True, exist_ok=True)
+    files = {"samples_csv": out / "samples.csv", "outputs_csv": out / "outputs.csv", "indices_csv": out / "indices.csv"}
+    res.samples.to_csv(files["samples_csv"], index_label="sample")
+    res.outputs.to_csv(files["outputs_csv"], index_label="sample")
+    rows = []
+    for name, idx in res.indices.items():
+        if isinstance(idx, str):
+            continue
+        for f, r in idx.iterrows():
+            rows += [{"output": name, "factor": f, "index": k, "value": float(v)} for k, v in r.items()]
+    import pandas as pd
+
+    pd.DataFrame(rows, columns=["output", "factor", "index", "value"]).to_csv(files["indices_csv"], index=False)
+    try:  # Parquet when a Parquet engine is installed (pyarrow or fastparquet); CSV is always written
+        for name in ("samples", "outputs"):
+            frame = res.samples if name == "samples" else res.outputs
+            frame.to_parquet(out / f"{name}.parquet")
+            files[f"{name}_parquet"] = out / f"{name}.parquet"
+    except ImportError:
+        pass
+    files["plot_png"] = plot(res, out / f"{res.method}.png")
+    return {k: str(v) for k, v in files.items()}
+
+
+def plot(res, path: Path) -> Path:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    tables = [(k, v) for k, v in res.indices.items() if not isinstance(v, str)]
+    cols = max(1, min(3, len(tables)))
+    rows = max(1, math.ceil(len(tables) / cols))
+    fig, axes = plt.subplots(rows, cols, figsize=(5.0 * cols, 3.8 * rows), squeeze=False)
+    for ax, (name, idx) in zip(axes.ravel(), tables):
+        if res.method == "morris":
+            ax.errorbar(idx["mu_star"], idx["sigma"], xerr=idx["mu_star_conf"], fmt="o", ms=4, capsize=2)
+            for f, r in idx.iterrows():
+                ax.annotate(f, (r["mu_star"], r["sigma"]), fontsize=7, xytext=(3, 3), textcoords="offset points")
+            ax.set_xlabel("mu*")
+            ax.set_ylabel("sigma")
+        else:
+            x = np.arange(len(idx))
+            ax.bar(x - 0.2, idx["S1"], 0.4, yerr=idx["S1_conf"], capsize=2, label="S1")
+            ax.bar(x + 0.2, idx["ST"], 0.4, yerr=idx["ST_conf"], capsize=2, label="ST")
+            ax.set_xticks(x, idx.index, rotation=45, ha="right", fontsize=7)
+            ax.set_ylim(bottom=min(0.0, float(np.nanmin(idx["S1"] - idx["S1_conf"]))))
+            ax.legend(fontsize=7)
+        ax.set_title(name, fontsize=9)
+    for ax in axes.ravel()[len(tables):]:
+        ax.axis("off")
+    fig.text(0.01, 0.005, "Screening estimate only - verify before use.", fontsize=7, color="gray")
+    fig.tight_layout(rect=(0, 0.02, 1, 1))
+    fig.savefig(path, dpi=100)
+    plt.close(fig)
+    return path

@@ -8,6 +8,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import os
 import sys
 from pathlib import Path
 
@@ -328,7 +329,7 @@ def cmd_screen(args) -> int:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", UserWarning)  # SALib's power-of-two warning: given above, once
         res = screen(case, args.method, args.samples, args.seed, args.policy, batched=not args.no_batch,
-                     progress=progress, reoptimise=args.reoptimise)
+                     progress=progress, reoptimise=args.reoptimise, workers=args.workers)
     progress.close()
     answer = as_json(res)
     answer.update(case=case.source, title=case.title, caution=CAUTION)
@@ -385,6 +386,8 @@ def build_parser() -> argparse.ArgumentParser:
                      help="failed samples: report them and skip the output (default), or censor them")
     scr.add_argument("--reoptimise", action="store_true", help="re-optimise the design for each sample")
     scr.add_argument("--no-batch", action="store_true", help="simulate one sample at a time")
+    scr.add_argument("--workers", type=int, default=min(2, os.cpu_count() or 1),
+                     help="processes for the batches (default: up to 2, the cores of the reference machine)")
     scr.add_argument("--json", action="store_true", help="print the result as one JSON object")
     scr.add_argument("--out", metavar="DIR", help="write samples, outputs, indices (CSV, Parquet) and plots here")
     scr.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a case key (repeatable)")

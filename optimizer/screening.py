@@ -65,10 +65,16 @@ class Evaluations:
     handed_over: int = 0
 
 
+def _batch_task(args):
+    case, chunk, size, trap = args
+    return simulate_batch(case, chunk, size, trap=trap)
+
+
 def evaluate(case, items, unit_x, batch_size: int = 500, batched: bool = True, progress=None,
-             trap: float | None = None) -> Evaluations:
-    """Simulate every sample: in batches (stacked states) or one at a time. Counter-current coolant is always
-    one at a time (a shooting per sample). ``trap``: see models.batch (default ``_trap(case)``)."""
+             trap: float | None = None, workers: int = 1) -> Evaluations:
+    """Simulate every sample: in batches (stacked states) or one at a time, on ``workers`` processes.
+    Counter-current coolant is always one at a time (a shooting per sample). ``trap``: see models.batch
+    (default ``_trap(case)``). A batch whose process fails is recorded as failed samples with the reason."""
     t0 = time.perf_counter()
     trap = _trap(case) if trap is None else trap
     values = to_parameters(items, unit_x)
@@ -80,27 +86,49 @@ def evaluate(case, items, unit_x, batch_size: int = 500, batched: bool = True, p
     handed = 0
     if case.coolant.mode == "countercurrent":
         batched = False
-    step = batch_size if batched else 1
-    for start in range(0, n, step):
-        idx = slice(start, min(start + step, n))
-        chunk = {p: v[idx] for p, v in values.items()}
-        if batched:
-            res = simulate_batch(case, chunk, idx.stop - idx.start, trap=trap)
-            for k in OUTPUTS:
-                if k in res.outputs:
-                    outputs[k][idx] = res.outputs[k]
-                    censored[k][idx] = res.censored[k]
-            status[idx] = res.status
-            reason[idx] = res.reason
-            handed += res.handed_over
+    done = 0
+
+    def store(idx, res):
+        nonlocal handed, done
+        for k in OUTPUTS:
+            if k in res.outputs:
+                outputs[k][idx] = res.outputs[k]
+                censored[k][idx] = res.censored[k]
+        status[idx] = res.status
+        reason[idx] = res.reason
+        handed += res.handed_over
+        done += idx.stop - idx.start
+        if progress is not None:
+            progress(done, n, int(np.sum(status != "ok")))
+
+    if batched:
+        slices = [slice(a, min(a + batch_size, n)) for a in range(0, n, batch_size)]
+        tasks = [(case, {p: v[s] for p, v in values.items()}, s.stop - s.start, trap) for s in slices]
+        if workers > 1 and len(tasks) > 1:
+            import multiprocessing
+            from concurrent.futures import ProcessPoolExecutor
+
+            with ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("fork")) as pool:
+                futures = [pool.submit(_batch_task, t) for t in tasks]
+                for s, fut in zip(slices, futures):
+                    try:
+                        store(s, fut.result())
+                    except Exception as err:  # a lost worker must not lose the other batches
+                        status[s] = "failed"
+                        reason[s] = [f"batch process failed: {err!r}"] * (s.stop - s.start)
+                        done += s.stop - s.start
         else:
-            r = simulate(apply(case, {p: float(v[0]) for p, v in chunk.items()}), checks=False)
+            for s, t in zip(slices, tasks):
+                store(s, _batch_task(t))
+    else:
+        for i in range(n):
+            r = simulate(apply(case, {p: float(v[i]) for p, v in values.items()}), checks=False)
             for target, flag in ((outputs, False), (censored, True)):
                 for k, v in single_outputs(r, flag).items():
-                    target[k][start] = v
-            status[start], reason[start] = r.status, r.reason
-        if progress is not None:
-            progress(idx.stop, n, int(np.sum(status[: idx.stop] != "ok")))
+                    target[k][i] = v
+            status[i], reason[i] = r.status, r.reason
+            if progress is not None:
+                progress(i + 1, n, int(np.sum(status[: i + 1] != "ok")))
     limit = case.limits.get("max_temperature")
     if limit is not None:
         runaway = np.array(["ceiling" in r for r in reason])
@@ -254,7 +282,8 @@ def function_evaluator(items, fn):
 
 
 def screen(case, method: str = "morris", n: int = 16, seed: int = 0, policy: str = "report",
-           batched: bool = True, batch_size: int = 500, progress=None, reoptimise: bool = False) -> ScreeningResult:
+           batched: bool = True, batch_size: int = 500, progress=None, reoptimise: bool = False,
+           workers: int = 1) -> ScreeningResult:
     """Screen the [uncertain] quantities of a case for the reactor outputs (SCREENED_OUTPUTS), or with
     ``reoptimise`` for the optimal goal and design."""
     items = read_uncertain(case)
@@ -264,7 +293,8 @@ def screen(case, method: str = "morris", n: int = 16, seed: int = 0, policy: str
         return run(items, reoptimise_evaluator(case, items, progress), method, n, seed, policy)
 
     def evaluator(unit_x):
-        return evaluate(case, items, unit_x, batch_size=batch_size, batched=batched, progress=progress)
+        return evaluate(case, items, unit_x, batch_size=batch_size, batched=batched, progress=progress,
+                        workers=workers)
 
     return run(items, evaluator, method, n, seed, policy, SCREENED_OUTPUTS)
 

@@ -129,3 +129,57 @@ def test_bad_uncertain_entries(entry, message):
     bad = replace(case, raw={**case.raw, "uncertain": {"u": entry}})
     with pytest.raises(CaseError, match=message):
         read_uncertain(bad)
+
+
+def test_cli_screen_morris_json_files_and_reproducibility(tmp_path, capsys):
+    import json
+
+    from optimizer.cli import main
+
+    args = ["screen", str(DEMO / "oxidation-screen.toml"), "--method", "morris", "--samples", "6", "--json",
+            "--policy", "censor", "--workers", "1"]
+    assert main(args + ["--out", str(tmp_path / "a")]) == 0
+    first = json.loads(capsys.readouterr().out)
+    assert main(args + ["--out", str(tmp_path / "b")]) == 0
+    second = json.loads(capsys.readouterr().out)
+    assert first["indices"] == second["indices"] and first["seed"] == 0
+    assert (tmp_path / "a" / "samples.csv").read_text() == (tmp_path / "b" / "samples.csv").read_text()
+    conv = first["convergence"]["conversion"]
+    assert conv["verdict"].startswith(("converged", "not converged"))
+    assert (tmp_path / "a" / "morris.png").stat().st_size > 10_000
+    assert "Screening estimate" in first["caution"]
+    assert set(first["indices"]["conversion"]) == {"partial oxidation", "k_combustion", "E_combustion", "order_O2",
+                                                   "U", "feed_T"}
+
+
+def test_cli_screen_warns_for_sobol_sample_count_and_rejects_bad_entries(tmp_path, capsys):
+    from optimizer.cli import main
+
+    bad = tmp_path / "bad.toml"
+    bad.write_text(f'include = "{DEMO / "oxidation.toml"}"\n[uncertain.u]\nparameter = "heat_transfer.multiplyer"\n'
+                   'distribution = "uniform"\nmin = 0.9\nmax = 1.1\n')
+    assert main(["screen", str(bad)]) == 2
+    assert 'did you mean "heat_transfer.multiplier"' in capsys.readouterr().err
+    assert main(["screen", str(DEMO / "oxidation-screen.toml"), "--method", "sobol", "--samples", "6",
+                 "--workers", "1"]) == 0
+    captured = capsys.readouterr()
+    assert "not a power of two" in captured.err and "S1" in captured.out
+
+
+def test_parallel_and_single_process_batches_agree():
+    case = load_case(DEMO / "oxidation-screen.toml")
+    items = read_uncertain(case)
+    from optimizer.screening import sample
+
+    ux = sample(salib_problem(items), "sobol", 16, seed=2)
+    one = evaluate(case, items, ux, batch_size=64, workers=1)
+    two = evaluate(case, items, ux, batch_size=64, workers=2)
+    for key in one.outputs:
+        assert np.array_equal(one.outputs[key], two.outputs[key], equal_nan=True)
+
+
+def test_reoptimise_ranks_uncertainties_for_the_optimal_cost():
+    res = screen(load_case(DEMO / "oxidation-design.toml"), "morris", 2, seed=0, reoptimise=True)
+    idx = res.indices["optimal_objective"]
+    assert set(idx.index) == {"k_partial", "k_combustion", "U"}
+    assert (idx["mu_star"] > 0).all() and "optimal_length" in res.indices

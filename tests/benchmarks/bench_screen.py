@@ -22,16 +22,20 @@ def main():
     items = read_uncertain(case)
     ux = sample(salib_problem(items), "sobol", n, seed=0)
     single = evaluate(case, items, ux[: min(len(ux), 400)], batched=False)
-    batched = evaluate(case, items, ux, batched=True)
+    batched = evaluate(case, items, ux, batched=True, workers=1)
+    parallel = evaluate(case, items, ux, batched=True, workers=2)
     rate_single = single.status.size / single.seconds
     rate_batched = batched.status.size / batched.seconds
     print(f"samples: {batched.status.size} batched, {single.status.size} one at a time")
     print(f"one at a time: {rate_single:8.1f} evaluations/s")
     print(f"batched:       {rate_batched:8.1f} evaluations/s ({batched.handed_over} samples handed over to the "
           "single simulator)")
-    print(f"ratio batched / one at a time: {rate_batched / rate_single:.1f}")
-    print(f"projected time for 10 000 evaluations: {10000 / rate_batched:.0f} s batched, "
-          f"{10000 / rate_single:.0f} s one at a time")
+    rate_parallel = parallel.status.size / parallel.seconds
+    print(f"batched, 2 processes: {rate_parallel:8.1f} evaluations/s")
+    print(f"ratio batched / one at a time: {rate_batched / rate_single:.1f} (one process), "
+          f"{rate_parallel / rate_single:.1f} (two processes)")
+    print(f"projected time for 10 000 evaluations: {10000 / rate_parallel:.0f} s batched on 2 processes, "
+          f"{10000 / rate_batched:.0f} s batched on one, {10000 / rate_single:.0f} s one at a time")
 
 
 if __name__ == "__main__":

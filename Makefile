@@ -1,5 +1,5 @@
-# Two entry points: `make demo` simulates and optimises the bundled invented demo, `make test` runs lint and
-# the tests.
+# Two entry points: `make demo` simulates, optimises and screens the bundled invented demo, `make test` runs
+# lint and the tests.
 # Both create the virtual environment .venv on first use.
 PYTHON ?= python3
 VENV := .venv
@@ -18,6 +18,7 @@ demo: $(STAMP)
 	$(BIN)/tubewright simulate studies/demo/oxidation.toml --out demo-output/oxidation
 	$(BIN)/tubewright simulate studies/demo/coil.toml --out demo-output/coil
 	$(BIN)/tubewright optimize studies/demo/oxidation-design.toml --ideal --out demo-output/oxidation-design
+	$(BIN)/tubewright screen studies/demo/oxidation-screen.toml --method morris --samples 10 --out demo-output/screen
 
 lint: $(STAMP)
 	$(BIN)/ruff check models optimizer tests

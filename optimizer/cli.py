@@ -355,6 +355,51 @@ def cmd_screen(args) -> int:
     return EXIT_OK
 
 
+def cmd_run(args) -> int:
+    from optimizer.runner import run_study
+
+    if args.workers < 1:
+        raise ValueError("--workers must be at least 1")
+    summary = run_study(args.study, args.out, args.workers, args.scheduler, args.retry_failed,
+                        progress=not args.json)
+    if args.json:
+        print(json.dumps(summary, indent=2))
+    else:
+        print(f"study {summary['study']}\n  results in {summary['folder']}\n  {summary['tasks']} tasks: "
+              f"{summary['ran']} run now ({summary['done']} done, {summary['not_done']} not done), "
+              f"{summary['tasks'] - summary['ran']} already recorded"
+              + (f" ({summary['skipped_failed']} failed earlier: --retry-failed re-runs them)"
+                 if summary["skipped_failed"] else "") + f"; {summary['seconds']:.1f} s")
+        print(f"\nCAUTION: {CAUTION}")
+    return EXIT_OK if summary["not_done"] == 0 else EXIT_NOT_OK
+
+
+def cmd_status(args) -> int:
+    from optimizer.report import status
+
+    st = status(args.folder)
+    if args.json:
+        print(json.dumps(st, indent=2))
+        return EXIT_OK
+    print(f"{st['title']}\n  study file: {st['study']}")
+    print("  " + ", ".join(f"{k}: {v}" for k, v in sorted(st["counts"].items())))
+    for t in st["tasks"]:
+        if t["status"] != "done":
+            print(f"  {t['status']:<8} {t['name']}: {t['reason'] or ''}")
+    return EXIT_OK
+
+
+def cmd_report(args) -> int:
+    from optimizer.report import report
+
+    files = report(args.folder, args.out)
+    if args.json:
+        print(json.dumps(files, indent=2))
+    else:
+        print(f"wrote {files['report_html']} and {files['tasks_csv']} ({files['tasks']} tasks)")
+    return EXIT_OK
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="tubewright", description="Screening design of cooled tubular reactors. "
                                 + CAUTION)
@@ -392,6 +437,23 @@ def build_parser() -> argparse.ArgumentParser:
     scr.add_argument("--out", metavar="DIR", help="write samples, outputs, indices (CSV, Parquet) and plots here")
     scr.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a case key (repeatable)")
     scr.set_defaults(func=cmd_screen)
+    run = sub.add_parser("run", help="run a study file unattended (resumes where it stopped)")
+    run.add_argument("study", help="study file (TOML)")
+    run.add_argument("--out", metavar="DIR", help="study folder (default: the study file's name + .results)")
+    run.add_argument("--workers", type=int, default=min(2, os.cpu_count() or 1), help="local worker processes")
+    run.add_argument("--scheduler", metavar="ADDRESS", help="run on a Dask scheduler, e.g. tcp://host:8786")
+    run.add_argument("--retry-failed", action="store_true", help="run failed and timed-out tasks again")
+    run.add_argument("--json", action="store_true", help="print the run summary as JSON")
+    run.set_defaults(func=cmd_run)
+    stat = sub.add_parser("status", help="done, failed and pending tasks of a study folder")
+    stat.add_argument("folder")
+    stat.add_argument("--json", action="store_true")
+    stat.set_defaults(func=cmd_status)
+    rep = sub.add_parser("report", help="write a self-contained HTML report of a study folder")
+    rep.add_argument("folder")
+    rep.add_argument("--out", metavar="FILE", help="HTML file (default FOLDER/report.html)")
+    rep.add_argument("--json", action="store_true")
+    rep.set_defaults(func=cmd_report)
     return p
 
 

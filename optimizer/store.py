@@ -1,0 +1,136 @@
+"""The results database of a study folder: SQLite (one transaction per finished task, written only by the
+coordinator) plus Parquet tables beside it (profiles, samples, fronts)."""
+
+from __future__ import annotations
+
+import json
+import math
+import platform
+import sqlite3
+import time
+from pathlib import Path
+
+from models.errors import CaseError
+
+from . import __version__
+
+SCHEMA = """
+CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
+CREATE TABLE IF NOT EXISTS tasks (
+    task_id TEXT PRIMARY KEY, kind TEXT, inputs_json TEXT, status TEXT NOT NULL, reason TEXT, summary_json TEXT,
+    tables_json TEXT, started REAL, finished REAL, seconds REAL, attempts INTEGER DEFAULT 0, provenance_json TEXT
+);
+CREATE TABLE IF NOT EXISTS members (
+    position INTEGER PRIMARY KEY, task_id TEXT NOT NULL REFERENCES tasks(task_id), name TEXT, grp TEXT,
+    swept_json TEXT
+);
+"""
+# A task is stored once per identity; ``members`` lists the study's entries (two entries with the same fully
+# resolved inputs, e.g. a sweep point equal to the nominal case, share one computation).
+
+
+def _clean(value):
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {str(k): _clean(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_clean(v) for v in value]
+    if hasattr(value, "item"):  # numpy scalars
+        return _clean(value.item())
+    return value
+
+
+def dumps(value) -> str:
+    return json.dumps(_clean(value), sort_keys=True, default=str)
+
+
+class Store:
+    def __init__(self, folder: Path):
+        self.folder = Path(folder)
+        self.db_path = self.folder / "results.sqlite"
+        self.tables = self.folder / "tables"
+
+    def open(self, study=None, create: bool = False):
+        if not self.db_path.exists() and not create:
+            raise CaseError(str(self.folder), "", "no results database here (results.sqlite): run the study first")
+        if study is not None and self.db_path.exists():
+            owner = self.meta().get("study_path")
+            if owner is not None and owner != str(study.path):
+                raise CaseError(str(self.folder), "", f"this folder belongs to another study ({owner}); choose "
+                                "another --out folder")
+        self.folder.mkdir(parents=True, exist_ok=True)
+        self.tables.mkdir(exist_ok=True)
+        self.conn = sqlite3.connect(self.db_path, timeout=30)
+        self.conn.execute("PRAGMA journal_mode=WAL")
+        self.conn.executescript(SCHEMA)
+        if study is not None:
+            with self.conn:
+                for key, value in (("study_path", str(study.path)), ("title", study.title)):
+                    self.conn.execute("INSERT OR REPLACE INTO meta VALUES (?, ?)", (key, value))
+        return self
+
+    def meta(self) -> dict:
+        conn = sqlite3.connect(self.db_path)
+        try:
+            return dict(conn.execute("SELECT key, value FROM meta").fetchall())
+        except sqlite3.OperationalError:
+            return {}
+        finally:
+            conn.close()
+
+    def register(self, tasks):
+        """Insert the study's tasks that the database does not know yet, as pending, and the study's entries
+        (one transaction)."""
+        with self.conn:
+            self.conn.execute("DELETE FROM members")
+            for t in tasks:
+                self.conn.execute("INSERT OR IGNORE INTO tasks (task_id, kind, inputs_json, status) "
+                                  "VALUES (?, ?, ?, 'pending')",
+                                  (t.task_id, t.kind, dumps({"options": t.options, "case": t.case_data})))
+                self.conn.execute("INSERT INTO members VALUES (?, ?, ?, ?, ?)",
+                                  (t.position, t.task_id, t.name, t.group, dumps(t.swept)))
+
+    def statuses(self) -> dict:
+        return dict(self.conn.execute("SELECT task_id, status FROM tasks").fetchall())
+
+    def record(self, task, result: dict, started: float):
+        """Write one finished task: tables to Parquet first, then its row in one transaction (a kill between
+        the two leaves the task pending, never half-recorded)."""
+        import pandas as pd
+
+        files = {}
+        for name, columns in (result.get("tables") or {}).items():
+            if not columns:
+                continue
+            path = self.tables / f"{task.task_id}-{name}.parquet"
+            tmp = path.with_suffix(".tmp")
+            pd.DataFrame(columns).to_parquet(tmp)
+            tmp.replace(path)
+            files[name] = str(path.relative_to(self.folder))
+        provenance = {"inputs_hash": task.task_id, "tubewright": __version__, "python": platform.python_version(),
+                      "seed": task.options.get("seed"), "host": platform.node()}
+        with self.conn:
+            self.conn.execute(
+                "UPDATE tasks SET status = ?, reason = ?, summary_json = ?, tables_json = ?, started = ?, "
+                "finished = ?, seconds = ?, attempts = attempts + 1, provenance_json = ? WHERE task_id = ?",
+                (result["status"], result.get("reason", ""), dumps(result.get("summary", {})), dumps(files), started,
+                 time.time(), result.get("seconds"), dumps(provenance), task.task_id))
+
+    def rows(self, task_ids=None) -> list[dict]:
+        cur = self.conn.execute("SELECT t.task_id, m.position, m.name, t.kind, m.grp, m.swept_json, t.status, "
+                                "t.reason, t.summary_json, t.tables_json, t.seconds, t.attempts FROM members m "
+                                "JOIN tasks t ON t.task_id = m.task_id ORDER BY m.position")
+        out = []
+        for r in cur.fetchall():
+            row = dict(zip(("task_id", "position", "name", "kind", "group", "swept", "status", "reason", "summary",
+                            "tables", "seconds", "attempts"), r))
+            row["swept"] = json.loads(row["swept"] or "{}")
+            row["summary"] = json.loads(row["summary"] or "{}")
+            row["tables"] = json.loads(row["tables"] or "{}")
+            if task_ids is None or row["task_id"] in task_ids:
+                out.append(row)
+        return out
+
+    def close(self):
+        self.conn.close()

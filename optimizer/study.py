@@ -1,0 +1,203 @@
+"""Study files: a base case and a list of tasks, expanded into concrete tasks with stable identities.
+
+    title = "..."
+    base = "oxidation.toml"             # the base case, relative to the study file
+    [[task]]
+    name = "nominal"                    # optional
+    kind = "simulate"                   # simulate | sweep | optimize | pareto | screen
+    case = "other.toml"                 # optional: another base for this task
+    set = { "tube.length" = "6 m" }     # optional overrides (dotted keys of the case)
+    timeout = "10 min"                  # optional time limit of each concrete task
+    # sweep:    grid = { KEY = [v1, v2, ...], ... }
+    #           or latin_hypercube = { samples, seed, ranges = { KEY = [lo, hi] } } (whole-number bounds: rounded)
+    # optimize: starts = N, seed = S, ideal = true
+    # pareto:   points = N
+    # screen:   method = "morris" | "sobol", samples = N, seed = S, policy = "report" | "censor"
+
+A concrete task's identity is a hash of its kind, options and fully resolved case (includes and overrides
+applied) and the software version: re-running a study skips what is already done.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import itertools
+import json
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from models.casefile import apply_overrides, build_case, read_toml, resolve_includes
+from models.errors import CaseError
+from models.units import registry
+
+from . import __version__
+
+KINDS = ("simulate", "sweep", "optimize", "pareto", "screen")
+TASK_KEYS = {"name", "kind", "case", "set", "timeout", "grid", "latin_hypercube", "starts", "seed", "ideal",
+             "points", "method", "samples", "policy"}
+
+
+@dataclass(frozen=True)
+class Task:
+    task_id: str
+    name: str
+    kind: str  # simulate | optimize | pareto | screen (sweeps are expanded into simulate tasks)
+    position: int
+    case_data: dict
+    case_source: str
+    options: dict = field(default_factory=dict)
+    timeout: float | None = None
+    group: str = ""  # the sweep a simulate task belongs to
+    swept: dict = field(default_factory=dict)  # the swept keys and their values (as written)
+
+    def spec(self) -> dict:
+        return {"task_id": self.task_id, "kind": self.kind, "case_data": self.case_data,
+                "case_source": self.case_source, "options": self.options}
+
+
+@dataclass(frozen=True)
+class Study:
+    path: Path
+    title: str
+    tasks: list
+
+
+def task_identity(kind, options, case_data) -> str:
+    payload = json.dumps({"kind": kind, "options": options, "case": case_data, "version": __version__},
+                         sort_keys=True, default=str)
+    return hashlib.sha256(payload.encode()).hexdigest()[:20]
+
+
+def _numeric(value, source, key):
+    """A sweep value must be a number or a quantity with units."""
+    if isinstance(value, bool):
+        raise CaseError(source, key, f"a sweep needs numeric values, got {value!r}")
+    if isinstance(value, (int, float)):
+        return
+    if isinstance(value, str):
+        try:
+            registry().Quantity(value)
+            float(registry().Quantity(value).magnitude)
+            return
+        except Exception as err:
+            raise CaseError(source, key, f'a sweep needs numbers or quantities with units, got "{value}"') from err
+    raise CaseError(source, key, f"a sweep needs numeric values, got {value!r}")
+
+
+def load_study(path) -> Study:
+    path = Path(path).resolve()
+    src = str(path)
+    data = read_toml(path)
+    for key in data:
+        if key not in ("title", "base", "seed", "task"):
+            raise CaseError(src, key, "unknown key; allowed: title, base, seed, task")
+    title = data.get("title", path.stem)
+    tasks_raw = data.get("task")
+    if not tasks_raw:
+        raise CaseError(src, "task", "the study lists no tasks: add [[task]] tables")
+    tasks: list[Task] = []
+    for i, t in enumerate(tasks_raw):
+        where = f"task[{i}]"
+        unknown = [k for k in t if k not in TASK_KEYS]
+        if unknown:
+            from models.errors import suggest
+
+            raise CaseError(src, f"{where}.{unknown[0]}", f"unknown key{suggest(unknown[0], TASK_KEYS)}")
+        kind = t.get("kind")
+        if kind not in KINDS:
+            from models.errors import suggest
+
+            raise CaseError(src, f"{where}.kind", f'"{kind}" is not allowed{suggest(str(kind), KINDS)}; allowed: '
+                            f"{', '.join(KINDS)}")
+        base_name = t.get("case", data.get("base"))
+        if not base_name:
+            raise CaseError(src, f"{where}.case", "missing: give the study a base case or the task a case")
+        case_path = (path.parent / base_name).resolve()
+        if not case_path.exists():
+            raise CaseError(src, f"{where}.case", f'case file "{base_name}" not found (looked at {case_path})')
+        base = resolve_includes(case_path)
+        overrides = t.get("set", {})
+        if not isinstance(overrides, dict):
+            raise CaseError(src, f"{where}.set", 'must be a table such as { "tube.length" = "6 m" }')
+        timeout = None
+        if "timeout" in t:
+            from models.units import to_si
+
+            timeout = to_si(t["timeout"], "s", src, f"{where}.timeout")
+        name = t.get("name", f"{kind} {i + 1}")
+        points = _sweep_points(t, src, where, data.get("seed", 0)) if kind == "sweep" else [{}]
+        for swept in points:
+            resolved = _resolve(base, {**overrides, **swept}, src, f"{where}.set" if not swept else f"{where}.grid",
+                                str(case_path))
+            concrete = "simulate" if kind == "sweep" else kind
+            options = _options(t, kind, src, where)
+            label = name if kind != "sweep" else f"{name} [{', '.join(f'{k}={v}' for k, v in swept.items())}]"
+            tasks.append(Task(task_identity(concrete, options, resolved), label, concrete, len(tasks), resolved,
+                              str(case_path), options, timeout, name if kind == "sweep" else "", swept))
+    return Study(path, title, tasks)
+
+
+def _resolve(base, overrides, src, where, case_source):
+    """The fully resolved case data with overrides; validated now, so that a bad override stops the study
+    before anything runs (the error names the study file and the task)."""
+    try:
+        data = apply_overrides(base, overrides, case_source)
+        build_case(data, case_source)
+    except CaseError as err:
+        raise CaseError(src, where, f"{err.key}: {err.detail}") from err
+    return data
+
+
+def _sweep_points(t, src, where, study_seed):
+    if "grid" in t and "latin_hypercube" in t:
+        raise CaseError(src, where, "give grid or latin_hypercube, not both")
+    if "grid" in t:
+        grid = t["grid"]
+        if not isinstance(grid, dict) or not grid:
+            raise CaseError(src, f"{where}.grid", "must be a table of key = [values]")
+        for key, values in grid.items():
+            if not isinstance(values, list) or not values:
+                raise CaseError(src, f"{where}.grid.{key}", "must be a non-empty list of values")
+            for v in values:
+                _numeric(v, src, f"{where}.grid.{key}")
+        keys = list(grid)
+        return [dict(zip(keys, combo)) for combo in itertools.product(*(grid[k] for k in keys))]
+    if "latin_hypercube" in t:
+        lh = t["latin_hypercube"]
+        n, seed = lh.get("samples"), lh.get("seed", study_seed)
+        ranges = lh.get("ranges", {})
+        if not isinstance(n, int) or n < 1:
+            raise CaseError(src, f"{where}.latin_hypercube.samples", "must be a whole number >= 1")
+        if not ranges:
+            raise CaseError(src, f"{where}.latin_hypercube.ranges", "missing: { KEY = [low, high] }")
+        from scipy.stats import qmc
+
+        u = qmc.LatinHypercube(d=len(ranges), seed=int(seed)).random(n)
+        points = [dict() for _ in range(n)]
+        for j, (key, (lo, hi)) in enumerate(ranges.items()):
+            _numeric(lo, src, f"{where}.latin_hypercube.ranges.{key}")
+            _numeric(hi, src, f"{where}.latin_hypercube.ranges.{key}")
+            ureg = registry()
+            qlo = ureg.Quantity(lo) if isinstance(lo, str) else lo
+            qhi = ureg.Quantity(hi) if isinstance(hi, str) else hi
+            whole = isinstance(lo, int) and isinstance(hi, int)
+            for i in range(n):
+                v = qlo + (qhi - qlo) * float(u[i, j])
+                points[i][key] = (f"{v.magnitude!r} {v.units:~}" if hasattr(v, "units")
+                                  else int(round(v)) if whole else float(v))
+        return points
+    raise CaseError(src, where, "a sweep needs grid or latin_hypercube")
+
+
+def _options(t, kind, src, where) -> dict:
+    if kind == "optimize":
+        return {"starts": int(t.get("starts", 0)), "seed": int(t.get("seed", 0)), "ideal": bool(t.get("ideal", False))}
+    if kind == "pareto":
+        return {"points": int(t.get("points", 5))}
+    if kind == "screen":
+        method = t.get("method", "morris")
+        if method not in ("morris", "sobol"):
+            raise CaseError(src, f"{where}.method", 'allowed: "morris", "sobol"')
+        return {"method": method, "samples": int(t.get("samples", 20 if method == "morris" else 256)),
+                "seed": int(t.get("seed", 0)), "policy": t.get("policy", "report")}
+    return {}

@@ -72,7 +72,10 @@ def run_dask(tasks, address: str, on_done, poll: float = 0.2):
             fut = client.submit(execute, task.spec(), key=f"tubewright-{task.task_id}-{time.time_ns()}", pure=False)
             futures[fut] = (task, time.time(), time.perf_counter())
         while futures:
-            wait(list(futures), timeout=poll, return_when="FIRST_COMPLETED")
+            try:
+                wait(list(futures), timeout=poll, return_when="FIRST_COMPLETED")
+            except TimeoutError:  # nothing finished within the poll interval: check the time limits
+                pass
             for fut in list(futures):
                 task, started, t0 = futures[fut]
                 if fut.done():

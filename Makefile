@@ -19,6 +19,8 @@ demo: $(STAMP)
 	$(BIN)/tubewright simulate studies/demo/coil.toml --out demo-output/coil
 	$(BIN)/tubewright optimize studies/demo/oxidation-design.toml --ideal --out demo-output/oxidation-design
 	$(BIN)/tubewright screen studies/demo/oxidation-screen.toml --method morris --samples 10 --out demo-output/screen
+	$(BIN)/tubewright run studies/demo/study.toml --out demo-output/study
+	$(BIN)/tubewright report demo-output/study
 
 lint: $(STAMP)
 	$(BIN)/ruff check models optimizer tests
@@ -30,6 +32,7 @@ bench: $(STAMP)
 	$(BIN)/python tests/benchmarks/bench_simulate.py
 	$(BIN)/python tests/benchmarks/bench_optimize.py
 	$(BIN)/python tests/benchmarks/bench_screen.py
+	$(BIN)/python tests/benchmarks/bench_study.py
 
 clean:
 	rm -rf $(VENV) demo-output .pytest_cache

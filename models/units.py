@@ -44,6 +44,28 @@ DIMENSIONS = {
 def to_si(text, unit: str, source: str, key: str) -> float:
     """Parse ``text`` (a string with units, or a bare number for dimensionless values) and return its value
     in the SI unit ``unit`` (a pint unit string). Raises CaseError naming ``source`` and ``key``."""
+    if isinstance(text, str):
+        try:
+            return _parsed(text, unit)
+        except _Unparsed:
+            pass  # fall through to the checks below, which raise with the file and key
+    return _to_si(text, unit, source, key)
+
+
+class _Unparsed(Exception):
+    pass
+
+
+@lru_cache(maxsize=4096)
+def _parsed(text: str, unit: str) -> float:
+    """Cached conversion of well-formed text (studies parse the same strings for every task)."""
+    try:
+        return _to_si(text, unit, "", "")
+    except CaseError as err:
+        raise _Unparsed from err
+
+
+def _to_si(text, unit: str, source: str, key: str) -> float:
     ureg = registry()
     if isinstance(text, bool):
         raise CaseError(source, key, f"expected a quantity in units of {unit or 'one'}, got {text!r}")

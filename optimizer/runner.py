@@ -24,8 +24,18 @@ def _child(spec, conn):
         conn.close()
 
 
+PRELOAD = {"simulate": ("models.simulator", "models.checks"), "optimize": ("optimizer.optimize",),
+           "pareto": ("optimizer.alternatives",), "screen": ("optimizer.screening",)}
+
+
 def run_local(tasks, workers: int, on_done, poll: float = 0.05):
-    """Each task in its own forked process (so that a crash or a time-out kills only that task)."""
+    """Each task in its own forked process (so that a crash or a time-out kills only that task). The modules
+    the tasks need are imported once here, before forking, so that no task pays for its imports."""
+    import importlib
+
+    for kind in {t.kind for t in tasks}:
+        for module in PRELOAD.get(kind, ()):
+            importlib.import_module(module)
     ctx = multiprocessing.get_context("fork")
     pending = deque(tasks)
     running = []

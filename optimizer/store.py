@@ -63,6 +63,8 @@ class Store:
         self.tables.mkdir(exist_ok=True)
         self.conn = sqlite3.connect(self.db_path, timeout=30)
         self.conn.execute("PRAGMA journal_mode=WAL")
+        # WAL with synchronous=NORMAL survives a killed process (only a power cut can lose the last commits)
+        self.conn.execute("PRAGMA synchronous=NORMAL")
         self.conn.executescript(SCHEMA)
         if study is not None:
             with self.conn:
@@ -97,7 +99,8 @@ class Store:
     def record(self, task, result: dict, started: float):
         """Write one finished task: tables to Parquet first, then its row in one transaction (a kill between
         the two leaves the task pending, never half-recorded)."""
-        import pandas as pd
+        import pyarrow as pa
+        import pyarrow.parquet as pq
 
         files = {}
         for name, columns in (result.get("tables") or {}).items():
@@ -105,7 +108,7 @@ class Store:
                 continue
             path = self.tables / f"{task.task_id}-{name}.parquet"
             tmp = path.with_suffix(".tmp")
-            pd.DataFrame(columns).to_parquet(tmp)
+            pq.write_table(pa.table({k: list(v) if not hasattr(v, "dtype") else v for k, v in columns.items()}), tmp)
             tmp.replace(path)
             files[name] = str(path.relative_to(self.folder))
         provenance = {"inputs_hash": task.task_id, "tubewright": __version__, "python": platform.python_version(),

@@ -146,8 +146,8 @@ class _Form:
     var_index: np.ndarray  # (members, local vars) -> global variable index
     input_index: np.ndarray  # (members, local inputs) -> global input index
     fn: object
-    grad: object
-    hess: object
+    derivatives: object  # returns the gradient entries, then the Hessian entries (shared subexpressions once)
+    n_grad: int
     pairs: list  # (a, b) local pairs of the Hessian lower triangle, a >= b
 
 
@@ -173,15 +173,22 @@ def _build_form(rep_expr, printer: _Printer, value_source: str, members, var_row
                 continue
             pairs.append((a, b))
             second.append(h)
-    grad_source = printer.source("gradient", grads or [0.0])
-    hess_source = printer.source("hessian", second or [0.0])
+    grad_list = grads or [0.0]
+    deriv_source = printer.source("derivatives", list(grad_list) + (second or [0.0]))
     if len(printer.vars) != nx or len(printer.inputs) != npar:
         raise RuntimeError("a derivative introduced a variable or input absent from its expression")
     return _Form(members, np.asarray(var_rows, dtype=np.int64).reshape(len(members), nx),
                  np.asarray(input_rows, dtype=np.int64).reshape(len(members), npar),
                  _compile_function("value", value_source, nx, npar),
-                 _compile_function("gradient", grad_source, nx, npar),
-                 _compile_function("hessian", hess_source, nx, npar), pairs)
+                 _compile_function("derivatives", deriv_source, nx, npar), len(grad_list), pairs)
+
+
+def _rows(values, members: int) -> np.ndarray:
+    """Stack per-entry values (arrays over the members, or constants) into a (entries, members) array."""
+    out = np.empty((len(values), members))
+    for i, v in enumerate(values):
+        out[i] = v
+    return out
 
 
 @dataclass
@@ -223,30 +230,27 @@ class CompiledNLP:
         var_ids, input_ids = {}, {}
         groups: dict[str, list] = {}
 
+        def global_indices(components, ids, pool):
+            out = []
+            for c in components:
+                k = ids.get(id(c))
+                if k is None:
+                    k = ids[id(c)] = len(pool)
+                    pool.append(c)
+                out.append(k)
+            return out
+
         def register(printer):
-            vrows = []
-            for v in printer.vars:
-                k = var_ids.get(id(v))
-                if k is None:
-                    k = var_ids[id(v)] = len(self.variables)
-                    self.variables.append(v)
-                vrows.append(k)
-            prow = []
-            for p in printer.inputs:
-                k = input_ids.get(id(p))
-                if k is None:
-                    k = input_ids[id(p)] = len(self.inputs)
-                    self.inputs.append(p)
-                prow.append(k)
-            return vrows, prow
+            return (global_indices(printer.vars, var_ids, self.variables),
+                    global_indices(printer.inputs, input_ids, self.inputs))
 
         for row, con in enumerate(self.constraints):
             printer = _Printer()
-            key = printer.source("value", [con.body])
+            key = source = printer.source("value", [con.body])
             vrows, prow = register(printer)
             group = groups.get(key)
             if group is None:
-                groups[key] = [con.body, printer, key, [row], [vrows], [prow]]
+                groups[key] = [con.body, printer, source, [row], [vrows], [prow]]
             else:
                 group[3].append(row)
                 group[4].append(vrows)
@@ -263,6 +267,7 @@ class CompiledNLP:
         self.times = {"compile_s": time.perf_counter() - t0, "differentiate_s": time.perf_counter() - t_forms,
                       "forms": len(self.forms)}
         self._warm = None
+        self._deriv_key, self._deriv_values = None, {}
 
     def _structure(self):
         jr, jc = [], []
@@ -291,10 +296,21 @@ class CompiledNLP:
         f = self.objective_form
         return self.sign * float(np.asarray(f.fn(*self._args(f, x))[0]).reshape(-1)[0])
 
+    def _derivatives(self, k, f, x):
+        """Gradient and Hessian entries of form ``k`` at x; IPOPT asks for the Jacobian and the Hessian at the
+        same point, so the values of the last point are kept."""
+        key = x.tobytes()
+        if self._deriv_key != key:
+            self._deriv_key, self._deriv_values = key, {}
+        vals = self._deriv_values.get(k)
+        if vals is None:
+            vals = self._deriv_values[k] = f.derivatives(*self._args(f, x))
+        return vals
+
     def _grad(self, x):
         f = self.objective_form
         g = np.zeros(self.n)
-        vals = f.grad(*self._args(f, x))
+        vals = self._derivatives(-1, f, x)[: f.n_grad]
         for k, v in enumerate(vals[: f.var_index.shape[1]]):
             g[f.var_index[0, k]] += float(np.asarray(v).reshape(-1)[0])
         return self.sign * g
@@ -302,28 +318,28 @@ class CompiledNLP:
     def _cons(self, x):
         out = np.empty(self.m)
         for f in self.forms:
-            out[f.members] = np.broadcast_to(f.fn(*self._args(f, x))[0], (len(f.members),))
+            out[f.members] = f.fn(*self._args(f, x))[0]
         return out
 
     def _jac(self, x):
         parts = []
-        for f in self.forms:
-            vals = f.grad(*self._args(f, x))[: f.var_index.shape[1]]
-            parts.append(np.stack([np.broadcast_to(v, (len(f.members),)) for v in vals], axis=1).reshape(-1))
+        for k, f in enumerate(self.forms):
+            vals = self._derivatives(k, f, x)[: f.var_index.shape[1]]
+            parts.append(_rows(vals, len(f.members)).T.reshape(-1))
         return np.concatenate(parts) if parts else np.zeros(0)
 
     def _hess(self, x, lagrange, obj_factor):
         parts = []
-        for f in self.forms:
+        for k, f in enumerate(self.forms):
             if not f.pairs:
                 continue
-            vals = f.hess(*self._args(f, x))
+            vals = self._derivatives(k, f, x)[f.n_grad:]
             w = lagrange[f.members]
             # (pair, member) order, as the coordinates were stacked in _structure
-            parts.append((np.stack([np.broadcast_to(v, (len(f.members),)) for v in vals], axis=0) * w).reshape(-1))
+            parts.append((_rows(vals, len(f.members)) * w).reshape(-1))
         f = self.objective_form
         if f.pairs:
-            vals = f.hess(*self._args(f, x))
+            vals = self._derivatives(-1, f, x)[f.n_grad:]
             parts.append(np.array([float(np.asarray(v).reshape(-1)[0]) for v in vals]) * obj_factor * self.sign)
         if not parts:
             return np.zeros(len(self.hess_rows))
@@ -333,6 +349,7 @@ class CompiledNLP:
     def refresh(self):
         """Read inputs, variable bounds and constraint bounds from the model."""
         self._p = np.array([value(p) for p in self.inputs], dtype=float)
+        self._deriv_key, self._deriv_values = None, {}  # inputs changed: forget cached derivatives
         self.x_lb = np.array([-INFINITY if v.lb is None else v.lb for v in self.variables], dtype=float)
         self.x_ub = np.array([INFINITY if v.ub is None else v.ub for v in self.variables], dtype=float)
         self.g_lb = np.array([-INFINITY if c.lower is None else value(c.lower) for c in self.constraints], dtype=float)

@@ -18,12 +18,12 @@ def temperature_bounds(problem) -> tuple[float, float]:
     return low, high
 
 
-def ideal_bound(case, nfe=None, ncp=None) -> dict:
-    """Solve the design problem with the energy balance replaced by a free temperature profile."""
-    problem = DesignProblem(case, nfe, ncp)
+def free_temperature_profile(problem):
+    """The model change of the ideal bound (for ``DesignProblem.build(modify=...)``): the energy balance
+    and the inlet temperature are dropped, the temperature at every point is free within its bounds."""
     low, high = temperature_bounds(problem)
 
-    def free_profile(m):
+    def modify(m):
         for x in m.xi:
             if ("T", x) in m.ode:
                 m.ode["T", x].deactivate()
@@ -31,7 +31,14 @@ def ideal_bound(case, nfe=None, ncp=None) -> dict:
             m.T[x].setub(high)
         m.inlet_T.deactivate()
 
-    problem.build(modify=free_profile)
+    return modify
+
+
+def ideal_bound(case, nfe=None, ncp=None) -> dict:
+    """Solve the design problem with the energy balance replaced by a free temperature profile."""
+    problem = DesignProblem(case, nfe, ncp)
+    low, high = temperature_bounds(problem)
+    problem.build(modify=free_temperature_profile(problem))
     outcome = problem.solve_nlp()
     m = problem.model
     length = pyo.value(m.design["length"])

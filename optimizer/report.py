@@ -14,13 +14,16 @@ from .store import Store
 KEY_FIELDS = ("conversion", "product_selectivity", "max_temperature_K", "pressure_drop_Pa", "production_rate_mol_s")
 
 
-def status(folder) -> dict:
+def _read(folder):
     store = Store(folder).open()
     try:
-        rows = store.rows()
-        meta = store.meta()
+        return store.rows(), store.meta()
     finally:
         store.close()
+
+
+def status(folder) -> dict:
+    rows, meta = _read(folder)
     counts = {}
     for r in rows:
         counts[r["status"]] = counts.get(r["status"], 0) + 1
@@ -55,12 +58,7 @@ def report(folder, out: Path | None = None) -> dict:
     import pandas as pd
 
     folder = Path(folder)
-    store = Store(folder).open()
-    try:
-        rows = store.rows()
-        meta = store.meta()
-    finally:
-        store.close()
+    rows, meta = _read(folder)
     out = Path(out) if out else folder / "report.html"
     parts = [f"<h1>{html.escape(meta.get('title', 'study'))}</h1>",
              f"<p class='caution'><b>Caution.</b> {html.escape(CAUTION)}</p>",

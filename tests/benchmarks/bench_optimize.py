@@ -17,23 +17,9 @@ sys.path.insert(0, str(ROOT))
 
 from models import load_case  # noqa: E402
 from models.casefile import build_case  # noqa: E402
-from optimizer.ideal import temperature_bounds  # noqa: E402
+from optimizer.ideal import free_temperature_profile  # noqa: E402
 from optimizer.optimize import DesignProblem  # noqa: E402
 from tests.test_optimize import logsdon_biegler_data  # noqa: E402
-
-
-def free_temperature(problem):
-    low, high = temperature_bounds(problem)
-
-    def modify(m):
-        for x in m.xi:
-            if ("T", x) in m.ode:
-                m.ode["T", x].deactivate()
-            m.T[x].setlb(low)
-            m.T[x].setub(high)
-        m.inlet_T.deactivate()
-
-    return modify
 
 
 def row(label, problem, outcome, build_s):
@@ -55,7 +41,7 @@ def main():
         c = build_case(logsdon_biegler_data(nfe), "logsdon-biegler")
         t0 = time.perf_counter()
         p = DesignProblem(c)
-        p.build(modify=free_temperature(p))
+        p.build(modify=free_temperature_profile(p))
         build = time.perf_counter() - t0
         row(f"A->B->C ideal, {nfe} el.", p, p.solve_nlp(), build)
     compile_before = demo.nlp.times["compile_s"]

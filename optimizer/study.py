@@ -183,7 +183,7 @@ def _sweep_points(t, src, where, study_seed):
             whole = isinstance(lo, int) and isinstance(hi, int)
             for i in range(n):
                 v = qlo + (qhi - qlo) * float(u[i, j])
-                points[i][key] = (f"{v.magnitude!r} {v.units:~}" if hasattr(v, "units")
+                points[i][key] = (f"{v.magnitude:.6g} {v.units:~}" if hasattr(v, "units")
                                   else int(round(v)) if whole else float(v))
         return points
     raise CaseError(src, where, "a sweep needs grid or latin_hypercube")

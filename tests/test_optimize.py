@@ -221,3 +221,11 @@ def test_countercurrent_liquid_optimum_is_verified(demo_dir):
     assert res.verification["max_relative_deviation"] < 0.01
     assert res.simulation.summary["max_temperature_K"] <= 323.0 + 0.05
     assert any("coolant_flow sits at its upper bound" in n for n in res.notes)
+
+
+def test_verification_above_tolerance_refines_the_mesh():
+    # A tolerance below what 5 elements can reach forces one refinement (5 -> 10 elements) and a note.
+    res = optimise(min_volume_case(**{"numerics.finite_elements": 5, "numerics.verify_tolerance": 1e-12}))
+    assert res.ok
+    assert any("mesh refined from 5 to 10 elements" in n for n in res.notes)
+    assert res.solver["finite_elements"] == 10

@@ -19,7 +19,7 @@ from scipy.sparse.linalg import splu
 
 from .backend import NUMPY
 from .balances import axial_derivatives
-from .summary import stoichiometric_factor
+from .summary import formed_yield_selectivity
 
 TRAP_BAND = 25.0  # K
 GRID = 801  # axial points on which the hot spot is located (then refined by a parabola through the maximum)
@@ -207,12 +207,10 @@ def summary_arrays(case, end, hot, pos, n) -> dict:
         "heat_removed_W": end[k + 3],
     }
     if case.product:
-        p = case.index(case.product)
-        formed = f_out[p] - f_in[p]
-        factor = stoichiometric_factor(case, case.product)
+        formed, yld, sel = formed_yield_selectivity(case, case.product, f_in, f_out)
         out["production_rate_mol_s"] = np.array(formed, dtype=float)
-        out["product_selectivity"] = factor * formed / np.where(converted > 0, converted, np.nan)
-        out["product_yield"] = factor * formed / f_in[key]
+        out["product_selectivity"] = np.array(sel, dtype=float)
+        out["product_yield"] = np.array(yld, dtype=float)
     return out
 
 

@@ -39,6 +39,20 @@ def stoichiometric_factor(case, product: str) -> float:
     return 1.0
 
 
+def formed_yield_selectivity(case, product: str, f_in, f_out):
+    """Net formation [mol/s], yield and selectivity of ``product`` relative to the key reactant, for feed
+    and outlet flows of the whole reactor (numbers, or arrays of samples): yield = formed * factor / fed,
+    selectivity = formed * factor / converted, with the stoichiometric factor of stoichiometric_factor
+    (NaN selectivity where nothing converted)."""
+    key, p = case.index(case.key_reactant), case.index(product)
+    formed = f_out[p] - f_in[p]
+    converted = f_in[key] - f_out[key]
+    factor = stoichiometric_factor(case, product)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        selectivity = np.where(converted > 0, factor * formed / np.where(converted > 0, converted, 1.0), np.nan)
+    return formed, factor * formed / f_in[key], selectivity
+
+
 def summarise(case, z, y, y_out) -> dict:
     n = len(case.species)
     N = case.tube.count
@@ -68,17 +82,16 @@ def summarise(case, z, y, y_out) -> dict:
         "selectivity": {},
     }
     for i, name in enumerate(names):
-        formed = f_out[i] - f_in[i]
+        formed, yld, sel = formed_yield_selectivity(case, name, f_in, f_out)
         if i == key or formed <= 0:
             continue
-        factor = stoichiometric_factor(case, name)
-        out["yield"][name] = float(formed * factor / f_in[key])
-        out["selectivity"][name] = float(formed * factor / converted) if converted > 0 else float("nan")
+        out["yield"][name] = float(yld)
+        out["selectivity"][name] = float(sel)
     if case.product:
-        p = case.index(case.product)
-        out["production_rate_mol_s"] = float(f_out[p] - f_in[p])
-        out["product_yield"] = out["yield"].get(case.product, 0.0)
-        out["product_selectivity"] = out["selectivity"].get(case.product, 0.0)
+        formed, yld, sel = formed_yield_selectivity(case, case.product, f_in, f_out)
+        out["production_rate_mol_s"] = float(formed)
+        out["product_yield"] = float(yld) if formed > 0 else 0.0
+        out["product_selectivity"] = float(sel) if formed > 0 else 0.0
     return out
 
 

@@ -232,7 +232,7 @@ def cmd_optimize(args) -> int:
         res.simulation.profiles.to_csv(files["profiles_csv"], index=False)
         from .plots import plot_profiles
 
-        best = design_case(case, {k: v for k, v in _design_values(res).items()})
+        best = design_case(case, _design_values(res))
         files["plot_png"] = str(plot_profiles(best, res.simulation, out / "optimal_profiles.png",
                                               limits=res.limits))
         files["result_json"] = str(out / "optimum.json")
@@ -276,9 +276,9 @@ def extra_lines(res, extras) -> list[str]:
 
 
 def _design_values(res) -> dict:
-    back = {"length_m": "length", "inner_diameter_m": "inner_diameter", "tube_count": "tube_count",
-            "inlet_temperature_K": "inlet_temperature", "inlet_pressure_Pa": "inlet_pressure",
-            "coolant_flow_kg_s": "coolant_flow", "coolant_temperature_K": "coolant_temperature"}
+    from optimizer.design import DESIGN_FIELDS
+
+    back = {field: key for key, field in DESIGN_FIELDS.items()}
     return {back[k]: v for k, v in res.design.items()}
 
 

@@ -22,6 +22,11 @@ DESIGN_KEYS = {
     "coolant_temperature": ("temperature", "coolant.temperature"),
 }
 
+# design key -> field name of reports (SI unit in the name)
+DESIGN_FIELDS = {"length": "length_m", "inner_diameter": "inner_diameter_m", "tube_count": "tube_count",
+                 "inlet_temperature": "inlet_temperature_K", "inlet_pressure": "inlet_pressure_Pa",
+                 "coolant_flow": "coolant_flow_kg_s", "coolant_temperature": "coolant_temperature_K"}
+
 GOALS = ("min_cost", "max_selectivity", "max_yield", "max_productivity", "min_volume")
 
 LIMIT_KEYS = {

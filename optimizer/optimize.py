@@ -19,7 +19,7 @@ from models.thermo import R_GAS
 from . import costs as C
 from .bridge import CompiledNLP
 from .collocation import build_tube_model, initialise_from_simulation, state_scaling
-from .design import DESIGN_KEYS, read_design
+from .design import DESIGN_FIELDS, DESIGN_KEYS, read_design
 
 DEFAULT_NFE, DEFAULT_NCP, DEFAULT_VERIFY = 40, 3, 0.01
 
@@ -408,9 +408,4 @@ def optimise(case, nfe=None, ncp=None) -> OptimizationResult:
 
 
 def _design_fields(values: dict) -> dict:
-    names = {"length": "length_m", "inner_diameter": "inner_diameter_m", "tube_count": "tube_count",
-             "inlet_temperature": "inlet_temperature_K", "inlet_pressure": "inlet_pressure_Pa",
-             "coolant_flow": "coolant_flow_kg_s", "coolant_temperature": "coolant_temperature_K"}
-    return {names[k]: v for k, v in values.items()}
-
-
+    return {DESIGN_FIELDS[k]: v for k, v in values.items()}

@@ -13,6 +13,8 @@ import sys
 from pathlib import Path
 
 from .caution import CAUTION
+from .jsonsafe import finite
+from .progress import ProgressBar
 
 EXIT_OK, EXIT_NOT_OK, EXIT_BAD_INPUT = 0, 1, 2
 
@@ -108,19 +110,8 @@ def cmd_simulate(args) -> int:
     return EXIT_OK if result.ok else EXIT_NOT_OK
 
 
-def _finite(value):
-    """NaN and infinity are not JSON: they become null."""
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, dict):
-        return {k: _finite(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_finite(v) for v in value]
-    return value
-
-
 def _json_answer(case, result, files) -> dict:
-    return _finite({
+    return finite({
         "case": case.source,
         "title": case.title,
         "status": result.status,
@@ -175,15 +166,8 @@ def optimisation_lines(case, res) -> list[str]:
 
 def _optimisation_answer(case, res, files, extras=None) -> dict:
     extras = extras or {}
-    return _finite({
-        "case": case.source, "title": case.title, "status": res.status, "reason": res.reason, "goal": res.goal,
-        "objective": res.objective, "design": res.design, "limits": [r.as_dict() for r in res.limits],
-        "costs_per_year": res.costs, "verification": {k: float(v) if isinstance(v, (int, float)) else v
-                                                      for k, v in res.verification.items()},
-        "solver": res.solver, "timings_s": res.timings, "notes": res.notes, "hint": res.hint,
-        "summary": res.simulation.summary if res.simulation is not None else {}, "files": files, "caution": CAUTION,
-        **extras,
-    })
+    return finite({"case": case.source, "title": case.title, **res.as_dict(), "files": files, "caution": CAUTION,
+                   **extras})
 
 
 def cmd_optimize(args) -> int:
@@ -282,36 +266,6 @@ def _design_values(res) -> dict:
     return {back[k]: v for k, v in res.design.items()}
 
 
-class Progress:
-    """A progress bar with ETA on the terminal (stderr), shown only when stderr is a terminal and the
-    screening has run for more than 2 seconds; never in --json output."""
-
-    def __init__(self, enabled: bool):
-        import time
-
-        self.enabled = enabled and sys.stderr.isatty()
-        self.t0 = time.perf_counter()
-        self.shown = False
-
-    def __call__(self, done, total, failed):
-        import time
-
-        if not self.enabled:
-            return
-        elapsed = time.perf_counter() - self.t0
-        if elapsed < 2.0 and done < total:
-            return
-        eta = elapsed / max(done, 1) * (total - done)
-        bar = "#" * int(30 * done / total)
-        sys.stderr.write(f"\r  [{bar:<30}] {done}/{total} samples, {failed} failed, ETA {eta:5.0f} s ")
-        sys.stderr.flush()
-        self.shown = True
-
-    def close(self):
-        if self.shown:
-            sys.stderr.write("\n")
-
-
 def cmd_screen(args) -> int:
     import warnings
 
@@ -325,7 +279,7 @@ def cmd_screen(args) -> int:
         print(f"warning: --samples {args.samples} is not a power of two; Sobol sequences balance best at powers of "
               "two (SALib's advice)", file=sys.stderr)
     case = load_case(args.case, _parse_sets(args.set))
-    progress = Progress(enabled=not args.json)
+    progress = ProgressBar("samples", enabled=not args.json, delay=2.0)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", UserWarning)  # SALib's power-of-two warning: given above, once
         res = screen(case, args.method, args.samples, args.seed, args.policy, batched=not args.no_batch,
@@ -336,7 +290,7 @@ def cmd_screen(args) -> int:
     if args.out:
         answer["files"] = write_files(res, Path(args.out))
     if args.json:
-        print(json.dumps(_finite(answer), indent=2))
+        print(json.dumps(finite(answer), indent=2))
         return EXIT_OK
     t = res.timings
     print(f"{case.title}\n  case file: {case.source}")

@@ -76,6 +76,14 @@ class OptimizationResult:
     def ok(self):
         return self.status == "optimal"
 
+    def as_dict(self) -> dict:
+        """The report fields (SI, units in the names); JSON-safe after ``jsonsafe.finite``."""
+        return {"status": self.status, "reason": self.reason, "goal": self.goal, "objective": self.objective,
+                "design": self.design, "limits": [r.as_dict() for r in self.limits], "costs_per_year": self.costs,
+                "verification": self.verification, "solver": self.solver, "timings_s": self.timings,
+                "notes": self.notes, "hint": self.hint,
+                "summary": self.simulation.summary if self.simulation is not None else {}}
+
 
 class DesignProblem:
     """Build once, solve many: the compiled NLP is kept; parameters (k_ref, E_a, U multiplier, limit values,

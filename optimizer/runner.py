@@ -4,11 +4,11 @@ finished task; failures and time-outs recorded, never fatal; resume by re-runnin
 from __future__ import annotations
 
 import multiprocessing
-import sys
 import time
 from collections import deque
 from multiprocessing.connection import wait as wait_ready
 
+from .progress import ProgressBar
 from .store import Store
 from .study import load_study
 from .tasks import execute
@@ -104,27 +104,6 @@ def run_dask(tasks, address: str, on_done, poll: float = 0.2):
         client.close()
 
 
-class Bar:
-    def __init__(self, total: int, enabled: bool):
-        self.total, self.done, self.failed = total, 0, 0
-        self.enabled = enabled and sys.stderr.isatty()
-        self.t0 = time.perf_counter()
-
-    def update(self, ok: bool):
-        self.done += 1
-        self.failed += 0 if ok else 1
-        if self.enabled:
-            elapsed = time.perf_counter() - self.t0
-            eta = elapsed / self.done * (self.total - self.done)
-            bar = "#" * int(30 * self.done / max(self.total, 1))
-            sys.stderr.write(f"\r  [{bar:<30}] {self.done}/{self.total} tasks, {self.failed} failed, ETA {eta:5.0f} s ")
-            sys.stderr.flush()
-
-    def close(self):
-        if self.enabled and self.total:
-            sys.stderr.write("\n")
-
-
 def run_study(study_path, folder=None, workers: int = 1, scheduler: str | None = None, retry_failed: bool = False,
               progress: bool = True) -> dict:
     """Expand the study (validating every task first), skip what is done, run the rest, record each task."""
@@ -139,13 +118,14 @@ def run_study(study_path, folder=None, workers: int = 1, scheduler: str | None =
     todo = [t for t in unique if known.get(t.task_id) not in DONE_STATES
             and (retry_failed or known.get(t.task_id) not in RETRYABLE)]
     skipped_failed = [t for t in unique if known.get(t.task_id) in RETRYABLE and not retry_failed]
-    bar = Bar(len(todo), progress)
+    bar = ProgressBar("tasks", enabled=progress)
     log = open(folder / "run.log", "a", encoding="utf-8")
     t0 = time.perf_counter()
     log.write(f"{time.strftime('%Y-%m-%d %H:%M:%S')} run: {len(todo)} tasks to run, "
               f"{len(unique) - len(todo)} already recorded, workers={workers}, scheduler={scheduler}\n")
     log.flush()
     counts = {"done": 0, "not_done": 0}
+    bar(0, len(todo), 0)
 
     def on_done(task, result, started):
         store.record(task, result, started)
@@ -154,7 +134,7 @@ def run_study(study_path, folder=None, workers: int = 1, scheduler: str | None =
         log.write(f"{time.strftime('%Y-%m-%d %H:%M:%S')} {task.task_id} {result['status']:<8} "
                   f"{result.get('seconds') or 0:8.2f} s  {task.name}: {result.get('reason', '')}\n")
         log.flush()
-        bar.update(ok)
+        bar(counts["done"] + counts["not_done"], len(todo), counts["not_done"])
 
     try:
         if scheduler:

@@ -37,8 +37,7 @@ def as_json(res) -> dict:
     def table(idx):
         if isinstance(idx, str):
             return {"note": idx}
-        return {f: {k: (None if not math.isfinite(v) else float(v)) for k, v in row.items()} for f, row in
-                idx.iterrows()}
+        return {f: {k: float(v) for k, v in row.items()} for f, row in idx.iterrows()}  # NaN: see jsonsafe
 
     return {"method": res.method, "seed": res.seed, "samples": res.n, "evaluations": len(res.outputs),
             "failure_policy": res.policy, "factors": res.factors,

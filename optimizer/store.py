@@ -4,7 +4,6 @@ coordinator) plus Parquet tables beside it (profiles, samples, fronts)."""
 from __future__ import annotations
 
 import json
-import math
 import platform
 import sqlite3
 import time
@@ -13,6 +12,7 @@ from pathlib import Path
 from models.errors import CaseError
 
 from . import __version__
+from .jsonsafe import finite
 
 SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
@@ -29,20 +29,8 @@ CREATE TABLE IF NOT EXISTS members (
 # resolved inputs, e.g. a sweep point equal to the nominal case, share one computation).
 
 
-def _clean(value):
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, dict):
-        return {str(k): _clean(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_clean(v) for v in value]
-    if hasattr(value, "item"):  # numpy scalars
-        return _clean(value.item())
-    return value
-
-
 def dumps(value) -> str:
-    return json.dumps(_clean(value), sort_keys=True, default=str)
+    return json.dumps(finite(value), sort_keys=True, default=str)
 
 
 class Store:

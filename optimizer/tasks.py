@@ -38,11 +38,7 @@ def _run(spec) -> dict:
         from .optimize import optimise
 
         res = optimise(case)
-        summary = {"goal": res.goal, "objective": res.objective, "design": res.design,
-                   "limits": [r.as_dict() for r in res.limits], "costs": res.costs,
-                   "verification": {k: (float(v) if isinstance(v, (int, float)) else v)
-                                    for k, v in res.verification.items()}, "solver": res.solver, "notes": res.notes,
-                   "hint": res.hint}
+        summary = res.as_dict()
         if opts.get("starts"):
             from .alternatives import multistart
 

@@ -124,6 +124,6 @@ def test_cli_set_overrides_and_strict_json(capsys):
 
 
 def test_json_answer_turns_nan_into_null():
-    from optimizer.cli import _finite
+    from optimizer.jsonsafe import finite as _finite
 
     assert _finite({"a": float("nan"), "b": [1.0, float("inf")], "c": "x"}) == {"a": None, "b": [1.0, None], "c": "x"}

@@ -23,10 +23,10 @@ demo: $(STAMP)
 	$(BIN)/tubewright report demo-output/study
 
 lint: $(STAMP)
-	$(BIN)/ruff check models optimizer tests
+	$(BIN)/ruff check tubewright models optimizer tests
 
 test: lint
-	$(BIN)/python -m pytest -q
+	$(BIN)/pytest -q
 
 bench: $(STAMP)
 	$(BIN)/python tests/benchmarks/bench_simulate.py

@@ -12,9 +12,9 @@ import os
 import sys
 from pathlib import Path
 
-from .caution import CAUTION
-from .jsonsafe import finite
-from .progress import ProgressBar
+from tubewright.optimizer.output.caution import CAUTION
+from tubewright.optimizer.output.jsonsafe import finite
+from tubewright.optimizer.output.progress import ProgressBar
 
 EXIT_OK, EXIT_NOT_OK, EXIT_BAD_INPUT = 0, 1, 2
 
@@ -72,7 +72,7 @@ def summary_lines(case, result) -> list[str]:
 
 
 def cmd_simulate(args) -> int:
-    from models import load_case, simulate
+    from tubewright.models import load_case, simulate
 
     case = load_case(args.case, _parse_sets(args.set))
     result = simulate(case)
@@ -83,7 +83,7 @@ def cmd_simulate(args) -> int:
         if result.columns:
             files["profiles_csv"] = str(out / "profiles.csv")
             result.profiles.to_csv(files["profiles_csv"], index=False)
-            from .plots import plot_profiles
+            from tubewright.optimizer.output.plots import plot_profiles
 
             files["plot_png"] = str(plot_profiles(case, result, out / "profiles.png"))
         files["summary_json"] = str(out / "summary.json")
@@ -171,11 +171,11 @@ def _optimisation_answer(case, res, files, extras=None) -> dict:
 
 
 def cmd_optimize(args) -> int:
-    from models import load_case
-    from optimizer.optimize import design_case, optimise
+    from tubewright.models import load_case
+    from tubewright.optimizer.design.problem import design_case, optimise
 
     case = load_case(args.case, _parse_sets(args.set))
-    from optimizer.design import read_design
+    from tubewright.optimizer.design.spec import read_design
 
     spec = read_design(case)
     if args.starts is not None and args.starts < 1:
@@ -184,7 +184,7 @@ def cmd_optimize(args) -> int:
         raise ValueError("--pareto needs at least 2 points")
     extras = {}
     if spec.standard_tubes:
-        from optimizer.alternatives import rank_standard_tubes
+        from tubewright.optimizer.design.alternatives import rank_standard_tubes
 
         ranking = rank_standard_tubes(case)
         extras["standard_tubes"] = ranking
@@ -195,17 +195,17 @@ def cmd_optimize(args) -> int:
             case = load_case(args.case, {**_parse_sets(args.set), **chosen})
     res = optimise(case)
     if args.ideal and res.ok:
-        from optimizer.ideal import ideal_bound
+        from tubewright.optimizer.design.ideal import ideal_bound
 
         bound = ideal_bound(case)
         bound["gap"] = (res.objective - bound["objective"]) if bound["success"] else None
         extras["ideal_bound"] = bound
     if args.starts:
-        from optimizer.alternatives import multistart
+        from tubewright.optimizer.design.alternatives import multistart
 
         extras["multistart"] = multistart(case, args.starts, args.seed)
     if args.pareto:
-        from optimizer.alternatives import pareto_front
+        from tubewright.optimizer.design.alternatives import pareto_front
 
         extras["pareto"] = pareto_front(case, args.pareto)
     files = {}
@@ -214,7 +214,7 @@ def cmd_optimize(args) -> int:
         out.mkdir(parents=True, exist_ok=True)
         files["profiles_csv"] = str(out / "optimal_profiles.csv")
         res.simulation.profiles.to_csv(files["profiles_csv"], index=False)
-        from .plots import plot_profiles
+        from tubewright.optimizer.output.plots import plot_profiles
 
         best = design_case(case, _design_values(res))
         files["plot_png"] = str(plot_profiles(best, res.simulation, out / "optimal_profiles.png",
@@ -260,7 +260,7 @@ def extra_lines(res, extras) -> list[str]:
 
 
 def _design_values(res) -> dict:
-    from optimizer.design import DESIGN_FIELDS
+    from tubewright.optimizer.design.spec import DESIGN_FIELDS
 
     back = {field: key for key, field in DESIGN_FIELDS.items()}
     return {back[k]: v for k, v in res.design.items()}
@@ -269,9 +269,9 @@ def _design_values(res) -> dict:
 def cmd_screen(args) -> int:
     import warnings
 
-    from models import load_case
-    from optimizer.screen_report import as_json, ranking_lines, write_files
-    from optimizer.screening import screen
+    from tubewright.models import load_case
+    from tubewright.optimizer.screening.core import screen
+    from tubewright.optimizer.screening.report import as_json, ranking_lines, write_files
 
     if args.samples < 2:
         raise ValueError("--samples must be at least 2")
@@ -310,7 +310,7 @@ def cmd_screen(args) -> int:
 
 
 def cmd_run(args) -> int:
-    from optimizer.runner import run_study
+    from tubewright.optimizer.study.runner import run_study
 
     if args.workers < 1:
         raise ValueError("--workers must be at least 1")
@@ -329,7 +329,7 @@ def cmd_run(args) -> int:
 
 
 def cmd_status(args) -> int:
-    from optimizer.report import status
+    from tubewright.optimizer.study.report import status
 
     st = status(args.folder)
     if args.json:
@@ -344,7 +344,7 @@ def cmd_status(args) -> int:
 
 
 def cmd_report(args) -> int:
-    from optimizer.report import report
+    from tubewright.optimizer.study.report import report
 
     files = report(args.folder, args.out)
     if args.json:
@@ -415,7 +415,7 @@ def main(argv=None) -> int:
     args = build_parser().parse_args(argv)
     if getattr(args, "verb", None) == "screen" and args.samples is None:
         args.samples = 1024 if args.method == "sobol" else 20
-    from models.errors import CaseError
+    from tubewright.models.errors import CaseError
 
     try:
         return args.func(args)

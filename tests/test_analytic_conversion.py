@@ -4,9 +4,8 @@ import math
 
 import numpy as np
 import pytest
-
-from models import simulate
-from tests.conftest import liquid_case, make
+from builders import liquid_case, make
+from tubewright.models import simulate
 
 
 def _space_time(case):
@@ -81,9 +80,8 @@ def test_tanks_in_series_approach_plug_flow(n_tanks):
     # reaction X_N = 1 - (1 + k tau/N)^-N -> 1 - exp(-k tau) (Levenspiel 1999, Ch. 6). Here the tanks are
     # solved numerically with the project's own second-order rate law, and the gap must shrink like 1/N.
     from scipy.optimize import brentq
-
-    from models.backend import NUMPY
-    from models.reactions import reaction_rate
+    from tubewright.models.backend import NUMPY
+    from tubewright.models.reactions import reaction_rate
 
     case = make(liquid_case(**{
         "chemistry.reactions.r1": {"equation": "A + B -> C", "orders": {"A": 1, "B": 1},

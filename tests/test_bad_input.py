@@ -5,11 +5,10 @@ import subprocess
 import sys
 
 import pytest
-
-from models import CaseError, load_case
-from models.casefile import build_case
-from optimizer.cli import main
-from tests.conftest import DEMO, liquid_case
+from builders import DEMO, liquid_case
+from tubewright.models import CaseError, load_case
+from tubewright.models.casefile import build_case
+from tubewright.optimizer.cli import main
 
 
 def _error(data) -> CaseError:
@@ -124,7 +123,7 @@ def test_cli_exit_code_2_and_no_traceback(tmp_path):
     bad = tmp_path / "bad.toml"
     text = (DEMO / "oxidation.toml").read_text().replace('length = "5.0 m"', 'length = "6 kg"')
     bad.write_text(text)
-    proc = subprocess.run([sys.executable, "-m", "optimizer.cli", "simulate", str(bad)], capture_output=True,
+    proc = subprocess.run([sys.executable, "-m", "tubewright.optimizer.cli", "simulate", str(bad)], capture_output=True,
                           text=True)
     assert proc.returncode == 2
     assert "Traceback" not in proc.stderr

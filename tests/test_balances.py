@@ -5,12 +5,11 @@ import math
 
 import numpy as np
 import pytest
+from builders import DEMO
 from scipy.integrate import solve_bvp, solve_ivp
-
-from models import load_case, simulate
-from models.backend import NUMPY, pyomo_backend
-from models.balances import axial_derivatives
-from tests.conftest import DEMO
+from tubewright.models import load_case, simulate
+from tubewright.models.backend import NUMPY, pyomo_backend
+from tubewright.models.balances import axial_derivatives
 
 
 def _state(case):
@@ -165,7 +164,7 @@ def test_cocurrent_against_independent_integration():
 
 def test_countercurrent_fallback_bracketing_finds_the_same_root():
     # The bracketing fallback (used when the secant iteration fails) must land on the secant's answer.
-    from models.simulator import shoot_countercurrent
+    from tubewright.models.simulator import shoot_countercurrent
 
     case = load_case(DEMO / "coil.toml")
     secant, _ = shoot_countercurrent(case)

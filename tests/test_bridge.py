@@ -6,7 +6,7 @@ import pytest
 pyo = pytest.importorskip("pyomo.environ")
 pytest.importorskip("cyipopt")
 
-from optimizer.bridge import CompiledNLP  # noqa: E402
+from tubewright.optimizer.nlp.bridge import CompiledNLP  # noqa: E402
 
 
 def hs71():

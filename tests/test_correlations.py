@@ -3,9 +3,8 @@
 import math
 
 import pytest
-
-from models import correlations as corr
-from models.backend import NUMPY as m
+from tubewright.models import correlations as corr
+from tubewright.models.backend import NUMPY as m
 
 fluids = pytest.importorskip("fluids")
 ht = pytest.importorskip("ht")

@@ -6,23 +6,16 @@ import pytest
 
 pytest.importorskip("cyipopt")
 
-from models import CaseError  # noqa: E402
-from optimizer.design import read_design  # noqa: E402
-from optimizer.optimize import DesignProblem, optimise  # noqa: E402
-from tests.conftest import liquid_case, make  # noqa: E402
+from builders import liquid_case, logsdon_biegler_data, make, min_volume_case  # noqa: E402
+from tubewright.models import CaseError  # noqa: E402
+from tubewright.optimizer.design.problem import DesignProblem, optimise  # noqa: E402
+from tubewright.optimizer.design.spec import read_design  # noqa: E402
 
 K1 = 0.01  # 1/s, the first-order rate constant of liquid_case at 350 K
 
 
 def _vdot(case):
     return sum(f * s.molar_mass for f, s in zip(case.feed.molar_flows, case.species)) / case.feed.density
-
-
-def min_volume_case(x_min=0.9, **more):
-    data = liquid_case(**{"design": {"length": {"min": "1 m", "max": "200 m"}},
-                          "limits": {"min_conversion": x_min}, "goal": {"objective": "min_volume"},
-                          "numerics.finite_elements": 20, **more})
-    return make(data)
 
 
 def test_min_volume_first_order_isothermal():
@@ -73,7 +66,7 @@ def test_resolve_after_parameter_change_needs_no_compilation():
 
 def test_demo_multiplier_against_finite_difference(demo_dir):
     # The production-rate multiplier is d(cost)/d(duty): compare with re-solving at duty + 1 %.
-    from models import load_case
+    from tubewright.models import load_case
 
     case = load_case(demo_dir / "oxidation-design.toml", {"design.round_tube_count": False})
     problem = DesignProblem(case).build()
@@ -89,7 +82,7 @@ def test_demo_multiplier_against_finite_difference(demo_dir):
 
 
 def test_demo_optimum_verified_and_collocation_matches_integrator(demo_dir):
-    from models import load_case
+    from tubewright.models import load_case
 
     res = optimise(load_case(demo_dir / "oxidation-design.toml"))
     assert res.ok and res.verification["max_relative_deviation"] < 1e-3
@@ -128,7 +121,7 @@ def test_ideal_bound_logsdon_biegler_temperature_profile():
     # gives the maximum yield of B 0.610775 (published optimum, value from memory). Here: a liquid tube with
     # tau = 1 s, c_A0 = 1 mol/m^3, T free along the tube. Independent lower bound: the best isothermal yield,
     # found here by scipy integration over a grid of temperatures.
-    from optimizer.ideal import ideal_bound
+    from tubewright.optimizer.design.ideal import ideal_bound
 
     data = logsdon_biegler_data()
     bound = ideal_bound(make(data))
@@ -149,43 +142,10 @@ def test_ideal_bound_logsdon_biegler_temperature_profile():
     assert temps[1] > temps[-1]  # hot at the inlet, cooler downstream: the published profile's shape
 
 
-def logsdon_biegler_data(nfe: int = 50):
-    """The A -> B -> C temperature-profile problem of Logsdon and Biegler (1989) as a liquid tube case."""
-    r = 8.314462618
-    t_ref = 350.0
-    k1 = 4000.0 * math.exp(-2500.0 / t_ref)
-    k2 = 6.2e5 * math.exp(-5000.0 / t_ref)
-    area = math.pi * 0.02**2 / 4
-    data = liquid_case(**{
-        "chemistry.product": "B",
-        "chemistry.species": {
-            "A": {"molar_mass": "50 g/mol", "cp": "100 J/mol/K"},
-            "B": {"molar_mass": "50 g/mol", "cp": "100 J/mol/K"},
-            "C": {"molar_mass": "50 g/mol", "cp": "100 J/mol/K"},
-            "S": {"molar_mass": "18 g/mol", "cp": "75 J/mol/K"},
-        },
-        "chemistry.reactions": {
-            "r1": {"equation": "A -> B", "orders": {"A": 2}, "k_ref": f"{k1} m^3/mol/s",
-                   "activation_energy": f"{2500 * r} J/mol", "t_ref": f"{t_ref} K"},
-            "r2": {"equation": "B -> C", "orders": {"B": 1}, "k_ref": f"{k2} 1/s",
-                   "activation_energy": f"{5000 * r} J/mol", "t_ref": f"{t_ref} K"},
-        },
-        # v = 1e-3 m^3/s at 1000 kg/m^3; c_A0 = 1 mol/m^3
-        "feed.molar_flows": {"A": "1e-3 mol/s", "S": f"{(1.0 - 1e-3 * 0.05) / 0.018} mol/s"},
-        "feed.temperature": "350 K",
-        "tube.length": f"{1e-3 * 1.0 / area} m",
-        "design": {"length": f"{1e-3 * 1.0 / area} m", "inner_diameter": "20 mm",
-                   "temperature_profile": {"min": "298 K", "max": "398 K"}},
-        "goal": {"objective": "max_yield"},
-        "numerics.finite_elements": nfe,
-    })
-    return data
-
-
 def test_cli_optimize_json_and_infeasible_report(demo_dir, capsys):
     import json
 
-    from optimizer.cli import main
+    from tubewright.optimizer.cli import main
 
     assert main(["optimize", str(demo_dir / "oxidation-design.toml"), "--json"]) == 0
     answer = json.loads(capsys.readouterr().out)
@@ -201,7 +161,7 @@ def test_cli_optimize_json_and_infeasible_report(demo_dir, capsys):
 
 
 def test_cli_optimize_bad_design_exit_2(tmp_path, demo_dir, capsys):
-    from optimizer.cli import main
+    from tubewright.optimizer.cli import main
 
     bad = tmp_path / "bad.toml"
     base = demo_dir / "oxidation-design.toml"
@@ -214,7 +174,7 @@ def test_cli_optimize_bad_design_exit_2(tmp_path, demo_dir, capsys):
 def test_countercurrent_liquid_optimum_is_verified(demo_dir):
     # Counter-current coolant: a boundary condition at the outlet in the collocation model; the optimum must
     # agree with the shooting solution of the adaptive integrator.
-    from models import load_case
+    from tubewright.models import load_case
 
     res = optimise(load_case(demo_dir / "coil-design.toml"))
     assert res.ok, res.reason

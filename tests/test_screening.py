@@ -8,10 +8,10 @@ import pytest
 
 pytest.importorskip("SALib")
 
-from models import CaseError, load_case  # noqa: E402
-from optimizer.screening import evaluate, function_evaluator, run, screen  # noqa: E402
-from optimizer.uncertain import Uncertain, read_uncertain, salib_problem  # noqa: E402
-from tests.conftest import DEMO, liquid_case, make  # noqa: E402
+from builders import DEMO, liquid_case, make  # noqa: E402
+from tubewright.models import CaseError, load_case  # noqa: E402
+from tubewright.optimizer.screening.core import evaluate, function_evaluator, run, screen  # noqa: E402
+from tubewright.optimizer.screening.uncertain import Uncertain, read_uncertain, salib_problem  # noqa: E402
 
 
 def uniform(name, lo, hi):
@@ -99,7 +99,7 @@ def test_parameter_without_effect_has_zero_total_index():
 def test_batched_and_one_at_a_time_evaluations_agree():
     case = load_case(DEMO / "oxidation-screen.toml")
     items = read_uncertain(case)
-    from optimizer.screening import sample
+    from tubewright.optimizer.screening.core import sample
 
     ux = sample(salib_problem(items), "sobol", 8, seed=0)
     batched = evaluate(case, items, ux, batched=True)
@@ -134,7 +134,7 @@ def test_bad_uncertain_entries(entry, message):
 def test_cli_screen_morris_json_files_and_reproducibility(tmp_path, capsys):
     import json
 
-    from optimizer.cli import main
+    from tubewright.optimizer.cli import main
 
     args = ["screen", str(DEMO / "oxidation-screen.toml"), "--method", "morris", "--samples", "6", "--json",
             "--policy", "censor", "--workers", "1"]
@@ -153,7 +153,7 @@ def test_cli_screen_morris_json_files_and_reproducibility(tmp_path, capsys):
 
 
 def test_cli_screen_warns_for_sobol_sample_count_and_rejects_bad_entries(tmp_path, capsys):
-    from optimizer.cli import main
+    from tubewright.optimizer.cli import main
 
     bad = tmp_path / "bad.toml"
     bad.write_text(f'include = "{DEMO / "oxidation.toml"}"\n[uncertain.u]\nparameter = "heat_transfer.multiplyer"\n'
@@ -169,7 +169,7 @@ def test_cli_screen_warns_for_sobol_sample_count_and_rejects_bad_entries(tmp_pat
 def test_parallel_and_single_process_batches_agree():
     case = load_case(DEMO / "oxidation-screen.toml")
     items = read_uncertain(case)
-    from optimizer.screening import sample
+    from tubewright.optimizer.screening.core import sample
 
     ux = sample(salib_problem(items), "sobol", 16, seed=2)
     one = evaluate(case, items, ux, batch_size=64, workers=1)

@@ -4,10 +4,9 @@ import json
 
 import numpy as np
 import pytest
-
-from models import load_case, simulate
-from optimizer.cli import main
-from tests.conftest import DEMO, liquid_case, make
+from builders import DEMO, liquid_case, make
+from tubewright.models import load_case, simulate
+from tubewright.optimizer.cli import main
 
 BRIEF_FIELDS = ["max_temperature_K", "max_temperature_position_m", "pressure_drop_Pa", "conversion",
                 "selectivity", "outlet_molar_flow_mol_s", "heat_removed_W", "coolant_outlet_temperature_K",
@@ -82,7 +81,7 @@ def test_cli_table_and_files(tmp_path, capsys):
 
 def test_boiling_water_coolant_temperature_from_pressure():
     case = load_case(DEMO / "oxidation.toml")
-    from models.correlations import water_saturation_temperature
+    from tubewright.models.correlations import water_saturation_temperature
 
     assert case.coolant.temperature == pytest.approx(water_saturation_temperature(110e5))
 
@@ -124,6 +123,6 @@ def test_cli_set_overrides_and_strict_json(capsys):
 
 
 def test_json_answer_turns_nan_into_null():
-    from optimizer.jsonsafe import finite as _finite
+    from tubewright.optimizer.output.jsonsafe import finite as _finite
 
     assert _finite({"a": float("nan"), "b": [1.0, float("inf")], "c": "x"}) == {"a": None, "b": [1.0, None], "c": "x"}

@@ -12,13 +12,12 @@ from html.parser import HTMLParser
 from pathlib import Path
 
 import pytest
-
-from models import CaseError
-from optimizer.cli import main
-from optimizer.report import report, status
-from optimizer.runner import run_study
-from optimizer.study import load_study
-from tests.conftest import DEMO
+from builders import DEMO
+from tubewright.models import CaseError
+from tubewright.optimizer.cli import main
+from tubewright.optimizer.study.report import report, status
+from tubewright.optimizer.study.runner import run_study
+from tubewright.optimizer.study.spec import load_study
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -120,7 +119,8 @@ kind = "simulate"
 
 def test_resume_after_sigkill_matches_an_uninterrupted_run(tmp_path):
     path = write_study(tmp_path, SWEEP)
-    cmd = [sys.executable, "-m", "optimizer.cli", "run", str(path), "--workers", "1", "--out", str(tmp_path / "killed")]
+    cmd = [sys.executable, "-m", "tubewright.optimizer.cli", "run", str(path), "--workers", "1",
+           "--out", str(tmp_path / "killed")]
     proc = subprocess.Popen(cmd, cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     db = tmp_path / "killed" / "results.sqlite"
     deadline = time.time() + 120

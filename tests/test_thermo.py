@@ -1,9 +1,8 @@
 """Heat-capacity polynomials against published data and a reference library."""
 
 import pytest
-
-from models.backend import NUMPY as m
-from models.thermo import ConstantCp, Nasa7, Shomate, Species, cp_problem
+from tubewright.models.backend import NUMPY as m
+from tubewright.models.thermo import ConstantCp, Nasa7, Shomate, Species, cp_problem
 
 CP = pytest.importorskip("CoolProp.CoolProp")
 

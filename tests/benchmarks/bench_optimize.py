@@ -13,13 +13,13 @@ import time
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[2]
-sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(ROOT / "tests"))
 
-from models import load_case  # noqa: E402
-from models.casefile import build_case  # noqa: E402
-from optimizer.ideal import free_temperature_profile  # noqa: E402
-from optimizer.optimize import DesignProblem  # noqa: E402
-from tests.test_optimize import logsdon_biegler_data  # noqa: E402
+from builders import logsdon_biegler_data  # noqa: E402
+from tubewright.models import load_case  # noqa: E402
+from tubewright.models.casefile import build_case  # noqa: E402
+from tubewright.optimizer.design.ideal import free_temperature_profile  # noqa: E402
+from tubewright.optimizer.design.problem import DesignProblem  # noqa: E402
 
 
 def row(label, problem, outcome, build_s):

@@ -11,9 +11,9 @@ from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[2]
 
-from models import load_case  # noqa: E402
-from optimizer.screening import evaluate, sample  # noqa: E402
-from optimizer.uncertain import read_uncertain, salib_problem  # noqa: E402
+from tubewright.models import load_case  # noqa: E402
+from tubewright.optimizer.screening.core import evaluate, sample  # noqa: E402
+from tubewright.optimizer.screening.uncertain import read_uncertain, salib_problem  # noqa: E402
 
 
 def main():

@@ -8,7 +8,7 @@ import statistics
 import time
 from pathlib import Path
 
-from models import load_case, simulate
+from tubewright.models import load_case, simulate
 
 DEMO = Path(__file__).resolve().parents[2] / "studies" / "demo"
 

@@ -10,7 +10,7 @@ import tempfile
 import time
 from pathlib import Path
 
-from optimizer.runner import run_study
+from tubewright.optimizer.study.runner import run_study
 
 ROOT = Path(__file__).resolve().parents[2]
 

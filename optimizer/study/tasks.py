@@ -22,12 +22,12 @@ def execute(spec: dict) -> dict:
 
 
 def _run(spec) -> dict:
-    from models.casefile import build_case
+    from tubewright.models.casefile import build_case
 
     case = build_case(spec["case_data"], spec["case_source"])
     kind, opts = spec["kind"], spec["options"]
     if kind == "simulate":
-        from models.simulator import simulate
+        from tubewright.models.simulator import simulate
 
         r = simulate(case)
         summary = dict(r.summary)
@@ -35,17 +35,17 @@ def _run(spec) -> dict:
         return {"status": "done" if r.ok else r.status, "reason": r.reason, "summary": summary,
                 "tables": {"profiles": r.columns}}
     if kind == "optimize":
-        from .optimize import optimise
+        from tubewright.optimizer.design.problem import optimise
 
         res = optimise(case)
         summary = res.as_dict()
         if opts.get("starts"):
-            from .alternatives import multistart
+            from tubewright.optimizer.design.alternatives import multistart
 
             ms = multistart(case, opts["starts"], opts.get("seed", 0))
             summary["multistart"] = {k: ms[k] for k in ("seed", "starts", "converged", "best", "spread")}
         if opts.get("ideal") and res.ok:
-            from .ideal import ideal_bound
+            from tubewright.optimizer.design.ideal import ideal_bound
 
             b = ideal_bound(case)
             summary["ideal_bound"] = {"objective": b["objective"], "status": b["status"]}
@@ -53,7 +53,7 @@ def _run(spec) -> dict:
         status = "done" if res.status in ("optimal", "not_optimised") else "failed"
         return {"status": status, "reason": res.reason, "summary": summary, "tables": tables}
     if kind == "pareto":
-        from .alternatives import pareto_front
+        from tubewright.optimizer.design.alternatives import pareto_front
 
         front = pareto_front(case, opts["points"])
         pts = front["points"]
@@ -65,8 +65,8 @@ def _run(spec) -> dict:
                 "summary": {"cheapest": front["cheapest"], "most_selective": front["most_selective"]},
                 "tables": {"front": table}}
     if kind == "screen":
-        from .screen_report import as_json
-        from .screening import screen
+        from tubewright.optimizer.screening.core import screen
+        from tubewright.optimizer.screening.report import as_json
 
         res = screen(case, opts["method"], opts["samples"], opts["seed"], opts["policy"], workers=1)
         return {"status": "done", "reason": f"{opts['method']} screening", "summary": as_json(res),

@@ -26,11 +26,11 @@ import json
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from models.casefile import apply_overrides, build_case, read_toml, resolve_includes
-from models.errors import CaseError
-from models.units import registry
+from tubewright.models.casefile import apply_overrides, build_case, read_toml, resolve_includes
+from tubewright.models.errors import CaseError
+from tubewright.models.units import registry
 
-from . import __version__
+from tubewright import __version__
 
 KINDS = ("simulate", "sweep", "optimize", "pareto", "screen")
 TASK_KEYS = {"name", "kind", "case", "set", "timeout", "grid", "latin_hypercube", "starts", "seed", "ideal",
@@ -100,12 +100,12 @@ def load_study(path) -> Study:
         where = f"task[{i}]"
         unknown = [k for k in t if k not in TASK_KEYS]
         if unknown:
-            from models.errors import suggest
+            from tubewright.models.errors import suggest
 
             raise CaseError(src, f"{where}.{unknown[0]}", f"unknown key{suggest(unknown[0], TASK_KEYS)}")
         kind = t.get("kind")
         if kind not in KINDS:
-            from models.errors import suggest
+            from tubewright.models.errors import suggest
 
             raise CaseError(src, f"{where}.kind", f'"{kind}" is not allowed{suggest(str(kind), KINDS)}; allowed: '
                             f"{', '.join(KINDS)}")
@@ -121,7 +121,7 @@ def load_study(path) -> Study:
             raise CaseError(src, f"{where}.set", 'must be a table such as { "tube.length" = "6 m" }')
         timeout = None
         if "timeout" in t:
-            from models.units import to_si
+            from tubewright.models.units import to_si
 
             timeout = to_si(t["timeout"], "s", src, f"{where}.timeout")
         name = t.get("name", f"{kind} {i + 1}")

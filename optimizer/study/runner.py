@@ -8,10 +8,10 @@ import time
 from collections import deque
 from multiprocessing.connection import wait as wait_ready
 
-from .progress import ProgressBar
-from .store import Store
-from .study import load_study
-from .tasks import execute
+from tubewright.optimizer.output.progress import ProgressBar
+from tubewright.optimizer.study.spec import load_study
+from tubewright.optimizer.study.store import Store
+from tubewright.optimizer.study.tasks import execute
 
 DONE_STATES = ("done",)
 RETRYABLE = ("failed", "error", "timeout", "stopped", "lost")
@@ -24,8 +24,10 @@ def _child(spec, conn):
         conn.close()
 
 
-PRELOAD = {"simulate": ("models.simulator", "models.checks"), "optimize": ("optimizer.optimize",),
-           "pareto": ("optimizer.alternatives",), "screen": ("optimizer.screening",)}
+PRELOAD = {"simulate": ("tubewright.models.simulator", "tubewright.models.checks"),
+           "optimize": ("tubewright.optimizer.design.problem",),
+           "pareto": ("tubewright.optimizer.design.alternatives",),
+           "screen": ("tubewright.optimizer.screening.core",)}
 
 
 def run_local(tasks, workers: int, on_done, poll: float = 0.05):

@@ -6,10 +6,9 @@ from __future__ import annotations
 
 import numpy as np
 import pyomo.environ as pyo
-
-from .collocation import initialise_from_simulation
-from .optimize import DesignProblem, design_case
-from .tubes import standard_tubes
+from tubewright.optimizer.design.collocation import initialise_from_simulation
+from tubewright.optimizer.design.problem import DesignProblem, design_case
+from tubewright.optimizer.design.tubes import standard_tubes
 
 
 def pareto_front(case, points: int) -> dict:
@@ -39,7 +38,7 @@ def multistart(case, starts: int, seed: int = 0) -> dict:
     seed 0 is a seed) and report the spread of the local optima. The model is built and compiled once. A
     random design whose simulation does not reach the outlet (runaway, pressure floor) is no starting point:
     it is recorded as skipped and another is drawn, up to 5 draws per start."""
-    from models.simulator import simulate
+    from tubewright.models.simulator import simulate
 
     problem = DesignProblem(case).build()
     rng = np.random.default_rng(seed)

@@ -15,11 +15,9 @@ from dataclasses import replace
 import numpy as np
 import pyomo.dae as dae
 import pyomo.environ as pyo
-
-from models.backend import NUMPY, pyomo_backend
-from models.balances import axial_derivatives
-
-from .design import DESIGN_KEYS, case_value
+from tubewright.models.backend import NUMPY, pyomo_backend
+from tubewright.models.balances import axial_derivatives
+from tubewright.optimizer.design.spec import DESIGN_KEYS, case_value
 
 STATES = ("T", "P", "Tc", "Q", "tau")
 

@@ -5,11 +5,10 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field, fields
 
-from models.casefile import Table
-from models.errors import CaseError
-from models.units import quantity, to_si
-
-from .costs import CostModel
+from tubewright.models.casefile import Table
+from tubewright.models.errors import CaseError
+from tubewright.models.units import quantity, to_si
+from tubewright.optimizer.design.costs import CostModel
 
 # design key -> (unit dimension, where the value lives in the case, human name)
 DESIGN_KEYS = {

@@ -10,16 +10,14 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pyomo.environ as pyo
-
-from models.backend import pyomo_backend
-from models.simulator import simulate
-from models.summary import stoichiometric_factor
-from models.thermo import R_GAS
-
-from . import costs as C
-from .bridge import CompiledNLP
-from .collocation import build_tube_model, initialise_from_simulation, state_scaling
-from .design import DESIGN_FIELDS, DESIGN_KEYS, read_design
+from tubewright.models.backend import pyomo_backend
+from tubewright.models.simulator import simulate
+from tubewright.models.summary import stoichiometric_factor
+from tubewright.models.thermo import R_GAS
+from tubewright.optimizer.design import costs as C
+from tubewright.optimizer.design.collocation import build_tube_model, initialise_from_simulation, state_scaling
+from tubewright.optimizer.design.spec import DESIGN_FIELDS, DESIGN_KEYS, read_design
+from tubewright.optimizer.nlp.bridge import CompiledNLP
 
 DEFAULT_NFE, DEFAULT_NCP, DEFAULT_VERIFY = 40, 3, 0.01
 

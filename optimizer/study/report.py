@@ -8,8 +8,8 @@ import html
 import io
 from pathlib import Path
 
-from .caution import CAUTION
-from .store import Store
+from tubewright.optimizer.output.caution import CAUTION
+from tubewright.optimizer.study.store import Store
 
 KEY_FIELDS = ("conversion", "product_selectivity", "max_temperature_K", "pressure_drop_Pa", "production_rate_mol_s")
 
@@ -42,7 +42,7 @@ def _png(fig) -> str:
 
 
 def _number(text):
-    from models.units import registry
+    from tubewright.models.units import registry
 
     if isinstance(text, (int, float)):
         return float(text), ""

@@ -9,10 +9,10 @@ import sqlite3
 import time
 from pathlib import Path
 
-from models.errors import CaseError
+from tubewright.models.errors import CaseError
+from tubewright.optimizer.output.jsonsafe import finite
 
-from . import __version__
-from .jsonsafe import finite
+from tubewright import __version__
 
 SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);

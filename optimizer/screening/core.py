@@ -19,12 +19,10 @@ import time
 from dataclasses import dataclass, field
 
 import numpy as np
-
-from models.batch import OUTPUTS, simulate_batch, single_outputs
-from models.parameters import apply
-from models.simulator import simulate
-
-from .uncertain import read_uncertain, salib_problem
+from tubewright.models.batch import OUTPUTS, simulate_batch, single_outputs
+from tubewright.models.parameters import apply
+from tubewright.models.simulator import simulate
+from tubewright.optimizer.screening.uncertain import read_uncertain, salib_problem
 
 MORRIS_LEVELS = 4
 MORRIS_QUANTILES = (0.005, 0.995)  # unbounded distributions: the Morris grid spans these quantiles
@@ -288,7 +286,7 @@ def screen(case, method: str = "morris", n: int = 16, seed: int = 0, policy: str
     ``reoptimise`` for the optimal goal and design."""
     items = read_uncertain(case)
     if reoptimise:
-        from .reoptimise import reoptimise_evaluator
+        from tubewright.optimizer.screening.reoptimise import reoptimise_evaluator
 
         return run(items, reoptimise_evaluator(case, items, progress), method, n, seed, policy)
 

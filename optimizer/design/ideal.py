@@ -5,8 +5,7 @@ layout from ideal temperature control."""
 from __future__ import annotations
 
 import pyomo.environ as pyo
-
-from .optimize import DesignProblem
+from tubewright.optimizer.design.problem import DesignProblem
 
 
 def temperature_bounds(problem) -> tuple[float, float]:

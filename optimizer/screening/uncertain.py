@@ -15,11 +15,10 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-
-from models.casefile import Table
-from models.errors import CaseError
-from models.parameters import base_value, si_unit
-from models.units import to_si
+from tubewright.models.casefile import Table
+from tubewright.models.errors import CaseError
+from tubewright.models.parameters import base_value, si_unit
+from tubewright.models.units import to_si
 
 ARGUMENTS = {
     "uniform": ("min", "max"),

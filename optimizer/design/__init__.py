@@ -1,0 +1,1 @@
+"""The design problem: spec, goals and limits, costs, collocation model, optimisation, alternatives."""

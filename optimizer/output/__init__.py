@@ -1,0 +1,1 @@
+"""Presentation only: plots, progress bar, JSON safety, cautions."""

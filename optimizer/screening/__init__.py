@@ -1,0 +1,1 @@
+"""Sensitivity screening: uncertain inputs, sampling, batched evaluation, analysis, re-optimisation."""

@@ -1,0 +1,1 @@
+"""Overnight studies: study files, tasks, the results store, runners, status and report."""

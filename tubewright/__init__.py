@@ -1,0 +1,55 @@
+"""tubewright: screening design of cooled tubular reactors.
+
+The public API, imported lazily so that ``import tubewright`` stays fast::
+
+    import tubewright as tw
+    case = tw.load_case("case.toml")          # -> tw.Case (SI), or raises tw.CaseError
+    result = tw.simulate(case)                # -> tw.SimulationResult (status, reason, summary, profiles)
+    design = tw.optimize(case)                # -> tw.OptimizationResult
+    ranking = tw.screen(case, "morris", 20)   # -> tw.ScreeningResult
+    tw.run_study("study.toml", "results/")    # -> summary dict of the run
+
+The folders ``models/`` (physics) and ``optimizer/`` (design, screening, studies, command line) install as
+``tubewright.models`` and ``tubewright.optimizer``. Screening estimates only: see the README's cautions.
+"""
+
+from __future__ import annotations
+
+from importlib import import_module
+from importlib.metadata import PackageNotFoundError, version
+
+try:
+    __version__ = version("tubewright")
+except PackageNotFoundError:  # pragma: no cover - running from a source tree that was never installed
+    __version__ = "0+unknown"
+
+# public name -> (module, attribute)
+_PUBLIC = {
+    "load_case": ("tubewright.models.casefile", "load_case"),
+    "Case": ("tubewright.models.case", "Case"),
+    "CaseError": ("tubewright.models.errors", "CaseError"),
+    "simulate": ("tubewright.optimizer.verbs", "simulate"),
+    "SimulationResult": ("tubewright.models.results", "SimulationResult"),
+    "optimize": ("tubewright.optimizer.verbs", "optimize"),
+    "OptimizationResult": ("tubewright.optimizer.design.outcome", "OptimizationResult"),
+    "screen": ("tubewright.optimizer.verbs", "screen"),
+    "ScreeningResult": ("tubewright.optimizer.screening.analysis", "ScreeningResult"),
+    "run_study": ("tubewright.optimizer.verbs", "run_study"),
+    "Status": ("tubewright.models.outcomes", "Status"),
+}
+
+__all__ = ["__version__", *_PUBLIC]
+
+
+def __getattr__(name: str):
+    try:
+        module, attribute = _PUBLIC[name]
+    except KeyError:
+        raise AttributeError(f"module 'tubewright' has no attribute {name!r}") from None
+    value = getattr(import_module(module), attribute)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(__all__)

@@ -4,6 +4,7 @@ Public API: ``load_case(path, overrides=None)`` -> Case, ``simulate(case)`` -> S
 
 from .casefile import load_case
 from .errors import CaseError
-from .simulator import SimulationResult, simulate
+from .results import SimulationResult
+from .simulator import simulate
 
 __all__ = ["load_case", "simulate", "CaseError", "SimulationResult"]

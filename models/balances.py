@@ -21,6 +21,7 @@ from dataclasses import dataclass
 
 from . import correlations as corr
 from .reactions import heat_of_reaction, reaction_rate
+from .state import TAIL
 from .thermo import R_GAS
 
 
@@ -74,7 +75,7 @@ def rates(m, case, T, local: Local) -> list:
 def overall_u(m, case, local: Local):
     """U [W/(m^2 K)] on the inner area: given, or from the inside correlation, the wall and the coolant side."""
     ht = case.heat_transfer
-    if case.coolant.mode in ("adiabatic", "isothermal"):
+    if not case.coolant.kind.exchanges_heat:
         return 0.0
     if ht.overall is not None:
         return ht.overall * ht.multiplier
@@ -120,6 +121,12 @@ class Derivatives:
     dQ: object
     dtau: object
 
+    @property
+    def tail(self) -> dict:
+        """The derivatives of the tail states by name (see models.state.TAIL)."""
+        values = {"T": self.dT, "P": self.dP, "Tc": self.dTc, "Q": self.dQ, "tau": self.dtau}
+        return {s: values[s] for s in TAIL}
+
 
 def axial_derivatives(m, case, F, T, P, Tc) -> Derivatives:
     """d/dz of the state (F_i, T, P, Tc, Q, tau) of one tube at one position. See module docstring."""
@@ -138,20 +145,18 @@ def axial_derivatives(m, case, F, T, P, Tc) -> Derivatives:
     heat_generation = 0.0  # W/m per tube
     for rx, rj in zip(case.reactions, r):
         heat_generation = heat_generation - area * heat_of_reaction(m, rx, case.species_map, T) * rj
-    mode = case.coolant.mode
+    mode = case.coolant.kind
     u = overall_u(m, case, local)
     perimeter = math.pi * tube.inner_diameter
     to_coolant = u * perimeter * (T - Tc)  # W/m per tube
-    if mode == "isothermal":
+    if mode.holds_temperature:
         dT = 0.0 * T
         dQ = tube.count * heat_generation
     else:
         dT = (heat_generation - to_coolant) / local.cp_molar_flow
         dQ = tube.count * to_coolant
-    if mode == "cocurrent":
-        dTc = tube.count * to_coolant / (case.coolant.mass_flow * case.coolant.cp)
-    elif mode == "countercurrent":
-        dTc = -tube.count * to_coolant / (case.coolant.mass_flow * case.coolant.cp)
+    if mode.coolant_balance:
+        dTc = mode.coolant_balance * tube.count * to_coolant / (case.coolant.mass_flow * case.coolant.cp)
     else:
         dTc = 0.0 * Tc
     void = case.bed.voidage if case.bed is not None else 1.0

@@ -17,9 +17,11 @@ from scipy.integrate import BDF, solve_ivp
 from scipy.sparse import csc_matrix
 from scipy.sparse.linalg import splu
 
-from .backend import NUMPY
-from .balances import axial_derivatives
-from .summary import formed_yield_selectivity
+from .outcomes import Reason, Status
+from .parameters import apply
+from .simulator import complex_step_columns, simulate, state_rhs
+from .state import StateLayout
+from .summary import outlet_figures
 
 TRAP_BAND = 25.0  # K
 GRID = 801  # axial points on which the hot spot is located (then refined by a parabola through the maximum)
@@ -27,48 +29,38 @@ GRID = 801  # axial points on which the hot spot is located (then refined by a p
 
 @dataclass
 class BatchResult:
-    status: np.ndarray  # "ok" | "stopped" | "failed" per sample
+    status: np.ndarray  # Status per sample
     reason: list
     outputs: dict  # name -> array (NaN where the sample did not reach the outlet)
     seconds: float
     censored: dict = None  # the same, with the values where a stopped sample stopped
     handed_over: int = 0  # samples simulated one at a time (passed the trap, or the batch failed)
-
-
-def _n_state(case):
-    return len(case.species) + 5
+    reason_code: np.ndarray = None  # Reason per sample
 
 
 def batch_rhs(case, n: int):
-    ns = _n_state(case)
-    k = len(case.species)
+    """The balances of ``n`` samples on one flat state vector. The vector is sample-major (sample 0's
+    states, then sample 1's, ...) so that the Jacobian is block-diagonal with contiguous blocks; the
+    physics (models.simulator.state_rhs) takes the (state, sample) view."""
+    ns = StateLayout.of(case).size
+    physics = state_rhs(case)
 
     def rhs(z, y):
-        # y is sample-major (sample 0's states, then sample 1's, ...), so that the Jacobian is block-diagonal
-        # with contiguous blocks; the physics wants (state, sample): Y is that view
-        Y = y.reshape(n, ns).T if y.ndim == 1 else y
-        F = np.where(Y[:k].real < 0.0, 0.0 * Y[:k], Y[:k])
-        d = axial_derivatives(NUMPY, case, list(F), Y[k], Y[k + 1], Y[k + 2])
-        parts = [*d.dF, d.dT, d.dP, d.dTc, d.dQ, d.dtau]
-        out = np.array([np.broadcast_to(p, Y.shape[1:]) for p in parts])
-        return out.T.ravel() if y.ndim == 1 else out
+        return physics(z, y.reshape(n, ns).T).T.ravel()
 
+    rhs.physics = physics
     return rhs
 
 
 def block_jacobian(case, rhs, n: int):
-    ns = _n_state(case)
-    h = 1e-30
+    """The sparse block-diagonal Jacobian of ``batch_rhs``, one complex-step block per sample."""
+    ns = StateLayout.of(case).size
     i, kk, s = np.meshgrid(np.arange(ns), np.arange(ns), np.arange(n), indexing="ij")
     rows = (s * ns + i).ravel()
     cols = (s * ns + kk).ravel()
 
     def jac(z, y):
-        Y = y.reshape(n, ns).T
-        step = h * np.maximum(1.0, np.abs(Y))
-        cols_y = np.repeat(Y[:, None, :].astype(complex), ns, axis=1)  # (state, perturbed component, sample)
-        cols_y[np.arange(ns), np.arange(ns), :] += 1j * step
-        d = rhs(z, cols_y).imag / step[None, :, :]
+        d = complex_step_columns(rhs.physics, z, y.reshape(n, ns).T)  # (state, component, sample)
         return csc_matrix((d.ravel(), (rows, cols)), shape=(ns * n, ns * n))
 
     return jac
@@ -109,25 +101,16 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> Bat
     (a steep runaway would dictate tiny steps to all) and simulated on its own with the adaptive simulator;
     so are all samples if the batch integration fails. Results equal one-at-a-time simulation within the
     integrator tolerance."""
-    from .parameters import apply
-    from .simulator import simulate
-
     t0 = time.perf_counter()
-    ns, k = _n_state(base), len(base.species)
+    layout = StateLayout.of(base)
+    ns, i_t = layout.size, layout.index("T")
     num = base.numerics
     trap = num.temperature_ceiling if trap is None else min(trap, num.temperature_ceiling)
     length = base.tube.length
     case = apply(base, values)
-    N = case.tube.count
-    y = np.zeros((ns, n))
-    for i, f in enumerate(case.feed.molar_flows):
-        y[i] = np.broadcast_to(f, (n,)) / N
-    y[k] = np.broadcast_to(case.feed.temperature, (n,))
-    y[k + 1] = np.broadcast_to(case.feed.pressure, (n,))
-    tc = case.coolant.temperature if case.coolant.temperature is not None else case.feed.temperature
-    y[k + 2] = np.broadcast_to(tc, (n,))
+    y = layout.initial(case, samples=n)
     atol_all = num.atol * np.maximum(np.abs(y), 1.0)
-    hot = y[k].copy()
+    hot = y[i_t].copy()
     pos = np.zeros(n)
     end = np.full((ns, n), np.nan)
     handover = np.zeros(n, dtype=bool)
@@ -140,7 +123,7 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> Bat
         rhs = batch_rhs(sub, m)
 
         def passed_trap(z, yy, m=m):
-            return trap - np.max(yy.reshape(m, ns)[:, k])
+            return trap - np.max(yy.reshape(m, ns)[:, i_t])
 
         passed_trap.terminal, passed_trap.direction = True, -1
         try:
@@ -155,7 +138,7 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> Bat
             break
         z_end = float(sol.t[-1])
         grid = np.linspace(z0, z_end, max(int(GRID * (z_end - z0) / length), 3))
-        Yg = sol.sol(grid).reshape(m, ns, grid.size)[:, k]
+        Yg = sol.sol(grid).reshape(m, ns, grid.size)[:, i_t]
         i_max = np.argmax(Yg, axis=1)
         better = Yg[np.arange(m), i_max] > hot[active]
         hot[active[better]] = Yg[np.arange(m), i_max][better]
@@ -167,7 +150,7 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> Bat
             break
         # hand over, with the sample that reached the trap, those close behind it: each hand-over restarts
         # the batch integration, and a sample this hot is likely to reach the trap soon
-        over = last[k] >= trap - TRAP_BAND
+        over = last[i_t] >= trap - TRAP_BAND
         handover[active[over]] = True
         active = active[~over]
         if sol.t.size > 2:
@@ -176,42 +159,20 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> Bat
     # a sharp peak can pass the trap and fall back within one step, unseen by the event: the dense
     # solution shows it, and such a sample is simulated on its own too
     handover |= hot >= trap
-    status = np.array(["ok"] * n, dtype=object)
+    status = np.array([Status.OK] * n, dtype=object)
+    codes = np.array([Reason.INTEGRATED] * n, dtype=object)
     reason = ["integrated to the tube outlet"] * n
-    outputs = summary_arrays(case, np.nan_to_num(end), hot, pos, n)
+    figures = outlet_figures(case, np.nan_to_num(end), hot, pos)
+    outputs = {key: np.array(np.broadcast_to(figures[key], (n,)), dtype=float) for key in OUTPUTS if key in figures}
     censored = {key: v.copy() for key, v in outputs.items()}
     for j in np.flatnonzero(handover):
         single = simulate(apply(base, {p: (v[j] if np.ndim(v) else v) for p, v in values.items()}), checks=False)
-        status[j], reason[j] = single.status, single.reason
+        status[j], reason[j], codes[j] = single.status, single.reason, single.reason_code
         for target, flag in ((outputs, False), (censored, True)):
             for key, val in single_outputs(single, flag).items():
                 if key in target:
                     target[key][j] = val
-    return BatchResult(status, reason, outputs, time.perf_counter() - t0, censored, int(handover.sum()))
-
-
-def summary_arrays(case, end, hot, pos, n) -> dict:
-    """The screening outputs per sample from the outlet state (per tube) and the hot spot."""
-    k = len(case.species)
-    N = case.tube.count
-    key = case.index(case.key_reactant)
-    f_in = np.array([np.broadcast_to(f, (n,)) for f in case.feed.molar_flows])
-    f_out = end[:k] * N
-    converted = f_in[key] - f_out[key]
-    out = {
-        "max_temperature_K": np.array(hot, dtype=float),
-        "max_temperature_position_m": np.array(pos, dtype=float),
-        "conversion": converted / f_in[key],
-        "pressure_drop_Pa": np.broadcast_to(case.feed.pressure, (n,)) - end[k + 1],
-        "outlet_temperature_K": end[k],
-        "heat_removed_W": end[k + 3],
-    }
-    if case.product:
-        formed, yld, sel = formed_yield_selectivity(case, case.product, f_in, f_out)
-        out["production_rate_mol_s"] = np.array(formed, dtype=float)
-        out["product_selectivity"] = np.array(sel, dtype=float)
-        out["product_yield"] = np.array(yld, dtype=float)
-    return out
+    return BatchResult(status, reason, outputs, time.perf_counter() - t0, censored, int(handover.sum()), codes)
 
 
 OUTPUTS = ("max_temperature_K", "max_temperature_position_m", "conversion", "pressure_drop_Pa",

@@ -5,7 +5,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-COOLANT_MODES = ("adiabatic", "isothermal", "constant", "boiling_water", "cocurrent", "countercurrent")
+from .coolant_modes import COOLANT_MODES, CoolantMode
+
 INSIDE_CORRELATIONS = ("gnielinski", "dittus_boelter", "laminar", "leva")
 
 
@@ -48,6 +49,11 @@ class Coolant:
     mass_flow: float | None = None  # kg/s for the whole shell
     cp: float | None = None  # J/(kg K)
     pressure: float | None = None  # Pa (boiling water)
+
+    @property
+    def kind(self) -> CoolantMode:
+        """The row of the coolant-mode table (models.coolant_modes) for this mode."""
+        return COOLANT_MODES[self.mode]
 
 
 @dataclass(frozen=True)

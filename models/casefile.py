@@ -9,10 +9,11 @@ import sys
 from pathlib import Path
 
 from . import case as C
+from .correlations import water_saturation_temperature
 from .elements import molar_mass as formula_mass
 from .elements import parse_formula
 from .errors import CaseError, suggest
-from .reactions import Adsorption, Reaction, parse_equation
+from .reactions import Adsorption, Reaction, parse_equation, rate_units
 from .thermo import ConstantCp, Nasa7, Shomate, Species, cp_problem
 from .units import quantity, to_si
 
@@ -309,12 +310,6 @@ def _species(table: Table, source):
     return out
 
 
-def _rate_units(basis: str, driving: str, order: float) -> str:
-    rate = "mol/m^3/s" if basis == "volume" else "mol/kg/s"
-    drive = "mol/m^3" if driving == "concentration" else "Pa"
-    return f"({rate}) / ({drive})**{order!r}" if order else rate
-
-
 def _reactions(table: Table, species, phase, has_bed, source):
     names = [s.name for s in species]
     smap = {s.name: s for s in species}
@@ -368,7 +363,7 @@ def _reactions(table: Table, species, phase, has_bed, source):
                                     f"reverse order = order + stoichiometric coefficient = "
                                     f"{orders.get(s, 0.0) + nu.get(s, 0.0):g} < 0; raise the forward order of {s}")
         total_order = sum(orders.values())
-        k_ref = to_si(t.raw("k_ref", required=True), _rate_units(basis, driving, total_order), source, t.key("k_ref"))
+        k_ref = to_si(t.raw("k_ref", required=True), rate_units(basis, driving, total_order), source, t.key("k_ref"))
         if not k_ref > 0:
             raise CaseError(source, t.key("k_ref"), "must be greater than zero")
         ea = t.quantity("activation_energy", "molar_energy", positive=False, minimum=0.0)
@@ -452,30 +447,37 @@ def _feed(t: Table, species, phase, source):
 
 
 def _coolant(t: Table, feed, source):
-    t.allowed = {"mode", "temperature", "mass_flow", "cp", "pressure"}
-    mode = t.choice("mode", C.COOLANT_MODES)
+    """The [coolant] table, read by the row of its mode (models.coolant_modes): a key the mode does not read
+    is refused, not ignored."""
+    mode_name = t.raw("mode", required=True)
+    if mode_name not in C.COOLANT_MODES:
+        t.choice("mode", tuple(C.COOLANT_MODES))  # raises with the allowed modes
+    mode = C.COOLANT_MODES[mode_name]
+    t.allowed = set(mode.keys)
+    for key in t.data:
+        if key not in t.allowed and key in {k for row in C.COOLANT_MODES.values() for k in row.keys}:
+            raise CaseError(source, t.key(key), f'does not apply to coolant mode "{mode.name}"; this mode reads: '
+                            f"{', '.join(mode.keys)}")
     temperature = mass_flow = cp = pressure = None
-    if mode in ("constant", "cocurrent", "countercurrent"):
+    if mode.temperature_source == "given":
         temperature = t.quantity("temperature", "temperature")
-    if mode in ("cocurrent", "countercurrent"):
-        mass_flow = t.quantity("mass_flow", "mass_flow")
-        cp = t.quantity("cp", "specific_heat_capacity")
-    if mode == "boiling_water":
-        from .correlations import water_saturation_temperature
-
+    elif mode.temperature_source == "feed":
+        temperature = feed.temperature
+    elif mode.temperature_source == "saturation":
         pressure = t.quantity("pressure", "pressure")
         try:
             temperature = water_saturation_temperature(pressure)
         except ValueError as err:
             raise CaseError(source, "coolant.pressure", str(err)) from err
-    if mode == "isothermal":
-        temperature = feed.temperature
+    if mode.has_coolant_flow:
+        mass_flow = t.quantity("mass_flow", "mass_flow")
+        cp = t.quantity("cp", "specific_heat_capacity")
     t.finish()
-    return C.Coolant(mode, temperature, mass_flow, cp, pressure)
+    return C.Coolant(mode.name, temperature, mass_flow, cp, pressure)
 
 
 def _heat_transfer(t: Table | None, coolant, bed, feed, source):
-    if coolant.mode in ("adiabatic", "isothermal"):
+    if not coolant.kind.exchanges_heat:
         if t is not None:
             t.allowed = {"overall", "inside", "outside", "multiplier"}
             t.finish()

@@ -12,6 +12,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from . import correlations as corr
+from .backend import NUMPY
 from .summary import reaction_heats
 from .thermo import R_GAS
 
@@ -102,7 +103,9 @@ def radial_gradient(case, result) -> list[Finding]:
     radius, E dT_r / (R T^2) < 0.05 (linearised Arrhenius; in the spirit of Mears, Ind. Eng. Chem. Process
     Des. Dev. 10, 1971, 541). lambda_er = lambda_f (5 + 0.1 Re_p Pr) for packed beds (from memory, a
     common-practice estimate); empty tubes are checked by their flow regime instead."""
-    if case.bed is None or case.feed.thermal_conductivity is None or case.coolant.mode == "adiabatic":
+    mode = case.coolant.kind
+    if case.bed is None or case.feed.thermal_conductivity is None or not (mode.exchanges_heat or
+                                                                         mode.holds_temperature):
         return []
     cols = result.columns
     q = reaction_heats(case, cols).sum(axis=0)
@@ -122,8 +125,6 @@ def radial_gradient(case, result) -> list[Finding]:
 
 
 def _cp_mass(case, T):
-    from .backend import NUMPY
-
     f = np.array(case.feed.molar_flows)
     cp = sum(fi * s.cp(NUMPY, T) for fi, s in zip(f, case.species))
     return float(cp / sum(fi * s.molar_mass for fi, s in zip(f, case.species)))
@@ -152,20 +153,18 @@ def pressure_limit(case, result) -> list[Finding]:
     return [Finding("pressure_limit", level, f"pressure drop {dp:.4g} Pa, limit {limit:.4g} Pa", dp, limit)]
 
 
-def runaway_sensitivity(case, result, step: float = 1.0) -> list[Finding]:
+def runaway_sensitivity(case, result, resimulate, step: float = 1.0) -> list[Finding]:
     """Normalised sensitivity of the hot-spot temperature T* to a parameter phi (Morbidelli and Varma,
     AIChE J. 28, 1982, 705-713): s(T*; phi) = (phi / T*) dT*/dphi, by a forward difference of one
     re-simulation with phi + step (step in K). Their runaway boundary is where s peaks as phi varies; as a
     single-point screen we flag s > 5 (our threshold: a reactor far from runaway has s near 1 or below, as
-    T* follows the coolant)."""
-    from .simulator import simulate
-
+    T* follows the coolant). ``resimulate(case, coolant_guess=...)`` simulates a moved case without checks."""
     out = []
     tstar = result.summary["max_temperature_K"]
     targets = []
-    if case.coolant.mode not in ("adiabatic", "isothermal"):
+    if case.coolant.kind.exchanges_heat:
         targets.append(("coolant temperature", "coolant", case.coolant.temperature))
-    if case.coolant.mode != "isothermal":
+    if not case.coolant.kind.holds_temperature:
         targets.append(("feed temperature", "feed", case.feed.temperature))
     # rtol 1e-6 (error ~1e-3 K at 600 K) resolves a hot-spot change of 0.3-3 K per K well enough for a screen
     loose = replace(case.numerics, rtol=max(case.numerics.rtol, 1e-6))
@@ -174,7 +173,7 @@ def runaway_sensitivity(case, result, step: float = 1.0) -> list[Finding]:
             moved = replace(case, coolant=replace(case.coolant, temperature=phi + step), numerics=loose)
         else:
             moved = replace(case, feed=replace(case.feed, temperature=phi + step), numerics=loose)
-        r = simulate(moved, checks=False, coolant_guess=float(result.columns["Tc_K"][0]))
+        r = resimulate(moved, coolant_guess=float(result.columns["Tc_K"][0]))
         if not r.ok:
             out.append(Finding(f"runaway_sensitivity_{which}", "warning", f"raising the {label} by {step:g} K "
                                f"stops the simulation ({r.reason}): runaway-sensitive"))
@@ -192,7 +191,7 @@ def semenov_bound(case, result) -> list[Finding]:
     the hot spot should stay within about R Tc^2 / E of the coolant temperature, the Semenov-type critical
     temperature rise of an Arrhenius heat source (from memory). E is that of the reaction releasing the
     most heat at the hot spot."""
-    if case.coolant.mode in ("adiabatic", "isothermal"):
+    if not case.coolant.kind.exchanges_heat:
         return []
     tc = case.coolant.temperature
     cols = result.columns
@@ -230,13 +229,16 @@ def correlation_ranges(case, result) -> list[Finding]:
     return [Finding("correlation_range", "warning", m) for m in msgs]
 
 
-def run_checks(case, result) -> list[Finding]:
+def run_checks(case, result, resimulate) -> list[Finding]:
+    """Every check of a simulation result. ``resimulate(case, coolant_guess=None)`` simulates a moved case
+    without checks (the runaway sensitivities need it; passed in so that the checks need not import the
+    simulator that calls them)."""
     out = []
     for check in (flow_regime, tube_to_particle):
         out += check(case)
     for check in (axial_dispersion, radial_gradient, temperature_limit, pressure_limit, correlation_ranges):
         out += check(case, result)
     if result.ok:
-        out += runaway_sensitivity(case, result)
+        out += runaway_sensitivity(case, result, resimulate)
         out += semenov_bound(case, result)
     return out

@@ -17,7 +17,7 @@ import numpy as np
 
 from .backend import NUMPY
 from .errors import CaseError, suggest
-from .reactions import heat_of_reaction
+from .reactions import heat_of_reaction, rate_units
 from .thermo import T_STD
 
 SIMPLE = {
@@ -50,9 +50,7 @@ def si_unit(case, path: str, source: str, key: str) -> str:
             _species(case, parts[4], source, key)
             return ""
         if field == "k_ref":
-            from .casefile import _rate_units
-
-            return _rate_units(rx.basis, rx.driving, sum(rx.orders.values()))
+            return rate_units(rx.basis, rx.driving, sum(rx.orders.values()))
         return "J/mol"
     allowed = list(SIMPLE) + ["feed.molar_flows.SPECIES"] + [f"chemistry.reactions.{r.name}.{f}"
                                                               for r in case.reactions for f in REACTION_FIELDS]

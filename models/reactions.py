@@ -23,6 +23,14 @@ from .thermo import P_STD, R_GAS, T_STD
 _TERM = re.compile(r"^\s*(?:(\d+(?:\.\d*)?|\.\d+)\s*(?=[A-Za-z_(\[])|(\d+(?:\.\d*)?|\.\d+)\s+)?(\S+)\s*$")
 
 
+
+def rate_units(basis: str, driving: str, order: float) -> str:
+    """The SI unit (pint string) of k_ref for a rate per ``basis`` ("volume" or "catalyst_mass") driven by
+    ``driving`` ("concentration" or "partial_pressure") with total forward order ``order``."""
+    rate = "mol/m^3/s" if basis == "volume" else "mol/kg/s"
+    drive = "mol/m^3" if driving == "concentration" else "Pa"
+    return f"({rate}) / ({drive})**{order!r}" if order else rate
+
 def parse_equation(text: str) -> tuple[dict[str, float], bool]:
     """``"A + 3 B -> 2 C"`` -> ({"A": -1, "B": -3, "C": 2}, reversible=False); ``<=>`` marks reversible.
     Raises ValueError with the reason when the text is not an equation."""

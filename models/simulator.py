@@ -7,88 +7,70 @@ A simulation never raises for a physical failure: it returns a ``SimulationResul
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
+from functools import partial
 
 import numpy as np
 from scipy.integrate import solve_ivp
+from scipy.optimize import brentq, root_scalar
 
 from .backend import NUMPY
 from .balances import axial_derivatives
-
-STATE_TAIL = ("T", "P", "Tc", "Q", "tau")
-PROFILE_POINTS = 201
-
-
-@dataclass
-class SimulationResult:
-    """Typed outcome of one simulation. ``columns`` holds the axial profiles as numpy arrays (SI, unit in
-    the name); ``profiles`` gives them as a pandas DataFrame (built on first use: the CLI's summary does not
-    pay for importing pandas)."""
-
-    status: str  # "ok" | "stopped" | "failed"
-    reason: str
-    summary: dict
-    columns: dict
-    findings: list = field(default_factory=list)  # checks.Finding
-    timings: dict = field(default_factory=dict)
-
-    @property
-    def ok(self) -> bool:
-        return self.status == "ok"
-
-    @property
-    def profiles(self):
-        import pandas as pd
-
-        return pd.DataFrame(self.columns)
+from .checks import run_checks
+from .outcomes import Reason, Status
+from .results import SimulationResult, build_result
+from .state import StateLayout
 
 
 def state_rhs(case):
-    """f(z, y) for y = [F_1..F_n, T, P, Tc, Q, tau] (per tube flows; y may carry extra trailing axes)."""
-    n = len(case.species)
+    """f(z, y) for y = [F_1..F_n, T, P, Tc, Q, tau] (models.state; per tube flows). y may carry trailing
+    axes (samples, or the perturbed columns of the complex step): the balances broadcast over them."""
+    layout = StateLayout.of(case)
+    flows = layout.flows
 
     def rhs(z, y):
-        flows = np.where(y[:n].real < 0.0, 0.0 * y[:n], y[:n])  # guard against integrator undershoot
-        d = axial_derivatives(NUMPY, case, list(flows), y[n], y[n + 1], y[n + 2])
-        parts = [*d.dF, d.dT, d.dP, d.dTc, d.dQ, d.dtau]
-        if y.ndim == 1:
-            return np.array(parts)
-        return np.array([np.broadcast_to(p, y.shape[1:]) for p in parts])
+        F = np.where(y[flows].real < 0.0, 0.0 * y[flows], y[flows])  # guard against integrator undershoot
+        _, T, P, Tc = layout.unpack(y)
+        d = axial_derivatives(NUMPY, case, list(F), T, P, Tc)
+        return layout.pack(d, y.shape[1:])
 
     return rhs
 
 
-def complex_step_jacobian(rhs, size):
+COMPLEX_STEP = 1e-30
+
+
+def complex_step_columns(rhs, z, y):
     """Exact-to-rounding Jacobian by the complex step (Squire and Trapp, SIAM Review 40, 1998, 110-112):
-    J[:, k] = Im f(y + i h e_k) / h, all columns in one vectorised evaluation."""
-    h = 1e-30
+    J[:, k] = Im f(y + i h e_k) / h, all columns in one vectorised evaluation. ``y`` has shape (size, ...)
+    (trailing sample axes allowed); returns d[i, k, ...] = df_i/dy_k per sample."""
+    y = np.asarray(y)
+    size = y.shape[0]
+    step = COMPLEX_STEP * np.maximum(1.0, np.abs(y))  # (size, ...)
+    cols = np.repeat(y.astype(complex)[:, None], size, axis=1)  # (state, perturbed component, ...)
+    cols[np.arange(size), np.arange(size)] += 1j * step
+    return rhs(z, cols).imag / step[None]
 
-    def jac(z, y):
-        cols = np.repeat(np.asarray(y, dtype=complex)[:, None], size, axis=1)
-        cols[np.arange(size), np.arange(size)] += 1j * h * np.maximum(1.0, np.abs(y))
-        return rhs(z, cols).imag / (h * np.maximum(1.0, np.abs(y)))[None, :]
 
-    return jac
+def complex_step_jacobian(rhs):
+    """The dense Jacobian function of one state vector, for solve_ivp."""
+    return partial(complex_step_columns, rhs)
 
 
 def initial_state(case, coolant_start: float | None = None) -> np.ndarray:
-    n_tubes = case.tube.count
-    F0 = np.array(case.feed.molar_flows) / n_tubes
-    tc = case.coolant.temperature if coolant_start is None else coolant_start
-    if tc is None:
-        tc = case.feed.temperature
-    return np.concatenate([F0, [case.feed.temperature, case.feed.pressure, tc, 0.0, 0.0]])
+    return StateLayout.of(case).initial(case, coolant_start)
 
 
 def _events(case):
-    n = len(case.species)
+    layout = StateLayout.of(case)
     num = case.numerics
+    i_p, i_t = layout.index("P"), layout.index("T")
 
     def pressure_floor(z, y):
-        return y[n + 1] - num.min_pressure
+        return y[i_p] - num.min_pressure
 
     def temperature_ceiling(z, y):
-        return num.temperature_ceiling - y[n]
+        return num.temperature_ceiling - y[i_t]
 
     pressure_floor.terminal = temperature_ceiling.terminal = True
     pressure_floor.direction = temperature_ceiling.direction = -1
@@ -101,10 +83,9 @@ def integrate(case, coolant_start: float | None = None, dense: bool = True):
     y0 = initial_state(case, coolant_start)
     num = case.numerics
     atol = num.atol * np.maximum(np.abs(y0), 1.0)
-    kwargs = {"jac": complex_step_jacobian(rhs, y0.size)}
     try:
         return solve_ivp(rhs, (0.0, case.tube.length), y0, method=num.method, rtol=num.rtol, atol=atol,
-                         events=_events(case), dense_output=dense, **kwargs)
+                         events=_events(case), dense_output=dense, jac=complex_step_jacobian(rhs))
     except (ValueError, FloatingPointError, ArithmeticError) as err:
         return _Failure(str(err))
 
@@ -120,18 +101,20 @@ class _Failure:
     t_events: object = None
 
 
-def _stop_reason(case, sol) -> tuple[str, str]:
+def stop_reason(case, sol) -> tuple[Status, Reason, str]:
+    """Status, reason code and message of one integration."""
     if isinstance(sol, _Failure):
-        return "failed", f"integrator error: {sol.message}"
+        return Status.FAILED, Reason.INTEGRATOR_ERROR, f"integrator error: {sol.message}"
     if sol.status == 1:
         z = sol.t[-1]
         if sol.t_events[0].size:
-            return "stopped", f"pressure fell to {case.numerics.min_pressure:.4g} Pa at z = {z:.4g} m"
-        return "stopped", (f"temperature passed the ceiling {case.numerics.temperature_ceiling:.1f} K at "
-                           f"z = {z:.4g} m (runaway?)")
+            return (Status.STOPPED, Reason.PRESSURE_FLOOR,
+                    f"pressure fell to {case.numerics.min_pressure:.4g} Pa at z = {z:.4g} m")
+        return Status.STOPPED, Reason.TEMPERATURE_CEILING, (
+            f"temperature passed the ceiling {case.numerics.temperature_ceiling:.1f} K at z = {z:.4g} m (runaway?)")
     if sol.status != 0:
-        return "failed", f"integrator failed at z = {sol.t[-1]:.4g} m: {sol.message}"
-    return "ok", "integrated to the tube outlet"
+        return Status.FAILED, Reason.INTEGRATOR_FAILED, f"integrator failed at z = {sol.t[-1]:.4g} m: {sol.message}"
+    return Status.OK, Reason.INTEGRATED, "integrated to the tube outlet"
 
 
 def shoot_countercurrent(case, guess: float | None = None):
@@ -139,9 +122,7 @@ def shoot_countercurrent(case, guess: float | None = None):
     integrated coolant temperature at z = L equals the inlet value. The residual is nearly linear in the
     guess, so the secant method from ``guess`` usually converges in 3-4 integrations; bracketing plus
     Brent's method is the fallback."""
-    from scipy.optimize import brentq, root_scalar
-
-    n = len(case.species)
+    i_tc = StateLayout.of(case).index("Tc")
     tc_in = case.coolant.temperature
     # the shooting passes need no tighter tolerance than 1e-8; the final pass uses the case's own
     shooting = replace(case, numerics=replace(case.numerics, rtol=max(case.numerics.rtol, 1e-8)))
@@ -151,7 +132,7 @@ def shoot_countercurrent(case, guess: float | None = None):
             sol = integrate(shooting, tc0, dense=False)
         if isinstance(sol, _Failure) or sol.status != 0:
             return np.nan
-        return sol.y[n + 2, -1] - tc_in
+        return sol.y[i_tc, -1] - tc_in
 
     start = tc_in + 1.0 if guess is None else guess
     try:
@@ -172,26 +153,24 @@ def shoot_countercurrent(case, guess: float | None = None):
     return None, "no coolant outlet temperature within 320 K of its inlet value closes the counter-current balance"
 
 
+
 def simulate(case, checks: bool = True, coolant_guess: float | None = None) -> SimulationResult:
     """Simulate one case. ``checks`` adds the validity and safety findings (which re-simulate for the
     runaway sensitivities). ``coolant_guess``: a starting guess of the counter-current coolant outlet
     temperature [K] (for re-simulations of a nearby case)."""
-    from . import summary as S
-
     t0 = time.perf_counter()
     tc_start = None
-    if case.coolant.mode == "countercurrent":
+    if case.coolant.kind.enters_at == "outlet":
         tc_start, why = shoot_countercurrent(case, coolant_guess)
         if tc_start is None:
             sol = integrate(case, case.coolant.temperature)
-            return S.build_result(case, sol, "failed", f"counter-current shooting failed: {why}", t0)
+            return build_result(case, sol, Status.FAILED, Reason.SHOOTING_FAILED,
+                                f"counter-current shooting failed: {why}", t0)
     sol = integrate(case, tc_start)
-    status, reason = _stop_reason(case, sol)
-    result = S.build_result(case, sol, status, reason, t0)
+    status, code, reason = stop_reason(case, sol)
+    result = build_result(case, sol, status, code, reason, t0)
     if checks and result.summary:
-        from .checks import run_checks
-
         t1 = time.perf_counter()
-        result.findings = run_checks(case, result)
+        result.findings = run_checks(case, result, partial(simulate, checks=False))
         result.timings["checks_s"] = time.perf_counter() - t1
     return result

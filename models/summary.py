@@ -1,31 +1,26 @@
-"""From an integrator solution to the typed result: axial profiles (pandas) and the summary fields
-(SI, unit in the name)."""
+"""From integrated states to figures: axial profile columns, the outlet figures (one formula for single
+simulations and for batches of samples) and the summary fields (SI, unit in the name)."""
 
 from __future__ import annotations
-
-import time
 
 import numpy as np
 
 from .backend import NUMPY
 from .balances import local_properties, rates
 from .reactions import heat_of_reaction
+from .state import TAIL, StateLayout
 
 
 def profile_columns(case, z, y) -> dict:
-    n = len(case.species)
+    layout = StateLayout.of(case)
     N = case.tube.count
     data = {"z_m": z}
     for i, name in enumerate(case.names):
-        data[f"F_{name}_mol_s"] = y[i] * N
-    data["T_K"] = y[n]
-    data["P_Pa"] = y[n + 1]
-    data["Tc_K"] = y[n + 2]
-    data["Q_W"] = y[n + 3]
-    data["tau_s"] = y[n + 4]
+        data[layout.column(name)] = y[i] * N
+    for state in TAIL:
+        data[layout.column(state)] = layout.get(y, state)
     key = case.index(case.key_reactant)
-    f_in = case.feed.molar_flows[key]
-    data["conversion"] = 1.0 - y[key] * N / f_in
+    data["conversion"] = 1.0 - y[key] * N / case.feed.molar_flows[key]
     return data
 
 
@@ -53,27 +48,48 @@ def formed_yield_selectivity(case, product: str, f_in, f_out):
     return formed, factor * formed / f_in[key], selectivity
 
 
+def outlet_figures(case, y_out, hot, hot_position) -> dict:
+    """The figures of the outlet state ``y_out`` (per tube; trailing sample axes allowed) and of the hot
+    spot: the outputs shared by the summary of one simulation and by the batches of screening."""
+    layout = StateLayout.of(case)
+    N = case.tube.count
+    shape = np.shape(y_out)[1:]
+    f_in = np.array([np.broadcast_to(f, shape) for f in case.feed.molar_flows], dtype=float)
+    f_out = np.asarray(y_out[layout.flows]) * N
+    key = case.index(case.key_reactant)
+    out = {
+        "max_temperature_K": np.asarray(hot, dtype=float),
+        "max_temperature_position_m": np.asarray(hot_position, dtype=float),
+        "conversion": (f_in[key] - f_out[key]) / f_in[key],
+        "pressure_drop_Pa": np.broadcast_to(case.feed.pressure, shape) - layout.get(y_out, "P"),
+        "outlet_pressure_Pa": np.asarray(layout.get(y_out, "P"), dtype=float),
+        "outlet_temperature_K": np.asarray(layout.get(y_out, "T"), dtype=float),
+        "heat_removed_W": np.asarray(layout.get(y_out, "Q"), dtype=float),
+        "residence_time_s": np.asarray(layout.get(y_out, "tau"), dtype=float),
+    }
+    if case.product:
+        formed, yld, sel = formed_yield_selectivity(case, case.product, f_in, f_out)
+        out["production_rate_mol_s"] = np.asarray(formed, dtype=float)
+        out["product_selectivity"] = np.asarray(sel, dtype=float)
+        out["product_yield"] = np.asarray(yld, dtype=float)
+    return out
+
+
 def summarise(case, z, y, y_out) -> dict:
-    n = len(case.species)
+    layout = StateLayout.of(case)
     N = case.tube.count
     names = case.names
+    i_max = int(np.argmax(layout.get(y, "T")))
+    figures = {k: float(v) for k, v in outlet_figures(case, y_out, layout.get(y, "T")[i_max], z[i_max]).items()}
+    if case.product and figures["production_rate_mol_s"] <= 0:
+        figures["product_selectivity"] = figures["product_yield"] = 0.0
     f_in = np.array(case.feed.molar_flows)
-    f_out = y_out[:n] * N
-    key = case.index(case.key_reactant)
-    converted = f_in[key] - f_out[key]
-    i_max = int(np.argmax(y[n]))
+    f_out = y_out[layout.flows] * N
     out = {
         "status": None,
         "length_m": float(z[-1]),
-        "conversion": float(converted / f_in[key]),
-        "outlet_temperature_K": float(y_out[n]),
-        "max_temperature_K": float(y[n, i_max]),
-        "max_temperature_position_m": float(z[i_max]),
-        "outlet_pressure_Pa": float(y_out[n + 1]),
-        "pressure_drop_Pa": float(case.feed.pressure - y_out[n + 1]),
-        "heat_removed_W": float(y_out[n + 3]),
-        "coolant_outlet_temperature_K": _coolant_outlet(case, y),
-        "residence_time_s": float(y_out[n + 4]),
+        **figures,
+        "coolant_outlet_temperature_K": coolant_outlet_temperature(case, y),
         "inner_diameter_m": case.tube.inner_diameter,
         "tube_count": N,
         "inlet_temperature_K": case.feed.temperature,
@@ -81,58 +97,33 @@ def summarise(case, z, y, y_out) -> dict:
         "yield": {},
         "selectivity": {},
     }
+    key = case.index(case.key_reactant)
     for i, name in enumerate(names):
         formed, yld, sel = formed_yield_selectivity(case, name, f_in, f_out)
         if i == key or formed <= 0:
             continue
         out["yield"][name] = float(yld)
         out["selectivity"][name] = float(sel)
-    if case.product:
-        formed, yld, sel = formed_yield_selectivity(case, case.product, f_in, f_out)
-        out["production_rate_mol_s"] = float(formed)
-        out["product_yield"] = float(yld) if formed > 0 else 0.0
-        out["product_selectivity"] = float(sel) if formed > 0 else 0.0
     return out
 
 
-def _coolant_outlet(case, y) -> float | None:
-    n = len(case.species)
-    mode = case.coolant.mode
-    if mode == "cocurrent":
-        return float(y[n + 2, -1])
-    if mode == "countercurrent":
-        return float(y[n + 2, 0])
-    if mode in ("constant", "boiling_water"):
+def coolant_outlet_temperature(case, y) -> float | None:
+    """The coolant temperature where the coolant leaves (opposite its entry), the constant coolant
+    temperature, or None without a coolant (models.coolant_modes)."""
+    mode = case.coolant.kind
+    if mode.has_coolant_flow:
+        tc = StateLayout.of(case).get(y, "Tc")
+        return float(tc[-1] if mode.enters_at == "inlet" else tc[0])
+    if mode.exchanges_heat:
         return float(case.coolant.temperature)
     return None
 
 
-def build_result(case, sol, status, reason, t0):
-    from .simulator import PROFILE_POINTS, SimulationResult
-
-    elapsed = time.perf_counter() - t0
-    if sol is None or getattr(sol, "t", None) is None or len(sol.t) < 2:
-        return SimulationResult(status, reason, {}, {}, [], {"simulate_s": elapsed})
-    z_end = float(sol.t[-1])
-    if sol.sol is not None:
-        z = np.union1d(np.linspace(0.0, z_end, 2001), sol.t)
-        y = sol.sol(z)
-        y[:, -1] = sol.y[:, -1]
-    else:
-        z, y = sol.t, sol.y
-    summary = summarise(case, z, y, sol.y[:, -1])
-    summary["status"] = status
-    summary["reason"] = reason
-    pick = np.unique(np.searchsorted(z, np.linspace(0.0, z_end, PROFILE_POINTS)).clip(0, z.size - 1))
-    pick = np.union1d(pick, [int(np.argmax(y[len(case.species)]))])
-    columns = profile_columns(case, z[pick], y[:, pick])
-    return SimulationResult(status, reason, summary, columns, [], {"simulate_s": elapsed})
-
-
 def reaction_heats(case, columns) -> np.ndarray:
     """Heat released by each reaction [W/m^3 of bed] along the profile columns: shape (reactions, points)."""
+    layout = StateLayout.of(case)
     n_t = case.tube.count
-    F = [np.asarray(columns[f"F_{name}_mol_s"]) / n_t for name in case.names]
+    F = [np.asarray(columns[layout.column(name)]) / n_t for name in case.names]
     T, P = np.asarray(columns["T_K"]), np.asarray(columns["P_Pa"])
     local = local_properties(NUMPY, case, F, T, P)
     return np.array([-heat_of_reaction(NUMPY, rx, case.species_map, T) * r

@@ -17,9 +17,8 @@ import pyomo.dae as dae
 import pyomo.environ as pyo
 from tubewright.models.backend import NUMPY, pyomo_backend
 from tubewright.models.balances import axial_derivatives
+from tubewright.models.state import TAIL, StateLayout
 from tubewright.optimizer.design.spec import DESIGN_KEYS, case_value
-
-STATES = ("T", "P", "Tc", "Q", "tau")
 
 
 def _design_component(model, name, spec, value):
@@ -88,21 +87,20 @@ def build_tube_model(case, spec, nfe: int = 40, ncp: int = 3):
     L = pcase.tube.length
     points = [x for x in m.xi if x > 0.0]
     m.ode_F = pyo.Constraint(m.S, points)
-    m.ode = pyo.Constraint(STATES, points)
+    m.ode = pyo.Constraint(TAIL, points)
     for x in points:
         d = axial_derivatives(pm, pcase, [m.F[s, x] for s in names], m.T[x], m.P[x], m.Tc[x])
         for s, rate in zip(names, d.dF):
             m.ode_F[s, x] = m.dF[s, x] == L * rate
-        for state, rhs in zip(STATES, (d.dT, d.dP, d.dTc, d.dQ, d.dtau)):
-            var = getattr(m, f"d{state}")[x]
-            m.ode[state, x] = var == L * rhs
+        for state, rhs in d.tail.items():
+            m.ode[state, x] = getattr(m, f"d{state}")[x] == L * rhs
     N = pcase.tube.count
     m.inlet_F = pyo.Constraint(m.S, rule=lambda m, s: m.F[s, 0.0] * N == case.feed.molar_flows[names.index(s)])
     m.inlet_T = pyo.Constraint(expr=m.T[0.0] == pcase.feed.temperature)
     m.inlet_P = pyo.Constraint(expr=m.P[0.0] == pcase.feed.pressure)
     m.inlet_Q = pyo.Constraint(expr=m.Q[0.0] == 0.0)
     m.inlet_tau = pyo.Constraint(expr=m.tau[0.0] == 0.0)
-    coolant_end = 1.0 if case.coolant.mode == "countercurrent" else 0.0
+    coolant_end = 1.0 if case.coolant.kind.enters_at == "outlet" else 0.0
     tc_in = pcase.coolant.temperature if pcase.coolant.temperature is not None else pcase.feed.temperature
     m.coolant_in = pyo.Constraint(expr=m.Tc[coolant_end] == tc_in)
     return m, pcase
@@ -111,39 +109,32 @@ def build_tube_model(case, spec, nfe: int = 40, ncp: int = 3):
 def initialise_from_simulation(m, case, result):
     """Set every state and derivative variable from an adaptive-integrator solution of the same design."""
     cols = result.columns
+    layout = StateLayout.of(case)
     L = case.tube.length
     z = cols["z_m"]
     names = case.names
     n_t = case.tube.count
     for x in m.xi:
         zz = min(x * L, z[-1])
-        F = [float(np.interp(zz, z, cols[f"F_{s}_mol_s"])) / n_t for s in names]
-        T, P, Tc = (float(np.interp(zz, z, cols[c])) for c in ("T_K", "P_Pa", "Tc_K"))
+        F = [max(float(np.interp(zz, z, cols[layout.column(s)])) / n_t, 0.0) for s in names]
+        tail = {state: float(np.interp(zz, z, cols[layout.column(state)])) for state in TAIL}
         for s, f in zip(names, F):
-            m.F[s, x].set_value(max(f, 0.0), skip_validation=True)
-        m.T[x].set_value(T, skip_validation=True)
-        m.P[x].set_value(P, skip_validation=True)
-        m.Tc[x].set_value(Tc, skip_validation=True)
-        m.Q[x].set_value(float(np.interp(zz, z, cols["Q_W"])), skip_validation=True)
-        m.tau[x].set_value(float(np.interp(zz, z, cols["tau_s"])), skip_validation=True)
-        d = axial_derivatives(NUMPY, case, [max(f, 0.0) for f in F], T, P, Tc)
+            m.F[s, x].set_value(f, skip_validation=True)
+        for state, v in tail.items():
+            getattr(m, state)[x].set_value(v, skip_validation=True)
+        d = axial_derivatives(NUMPY, case, F, tail["T"], tail["P"], tail["Tc"])
         for s, rate in zip(names, d.dF):
             m.dF[s, x].set_value(L * float(rate), skip_validation=True)
-        for state, rhs in zip(STATES, (d.dT, d.dP, d.dTc, d.dQ, d.dtau)):
+        for state, rhs in d.tail.items():
             getattr(m, f"d{state}")[x].set_value(L * float(rhs), skip_validation=True)
 
 
 def state_scaling(m, case, result) -> dict:
     """Scale factors (1/typical magnitude) per state, from the initialising simulation."""
     cols = result.columns
+    layout = StateLayout.of(case)
     n_t = case.tube.count
-    f_ref = {s: max(float(np.max(np.abs(cols[f"F_{s}_mol_s"]))) / n_t, 1e-3 * sum(case.feed.molar_flows) / n_t)
+    f_ref = {s: max(float(np.max(np.abs(cols[layout.column(s)]))) / n_t, 1e-3 * sum(case.feed.molar_flows) / n_t)
              for s in case.names}
-    return {
-        "F": f_ref,
-        "T": max(float(np.max(cols["T_K"])), 1.0),
-        "P": max(float(np.max(cols["P_Pa"])), 1.0),
-        "Tc": max(float(np.max(cols["Tc_K"])), 1.0),
-        "Q": max(float(np.max(np.abs(cols["Q_W"]))), 1.0),
-        "tau": max(float(np.max(cols["tau_s"])), 1e-6),
-    }
+    floor = {"T": 1.0, "P": 1.0, "Tc": 1.0, "Q": 1.0, "tau": 1e-6}
+    return {"F": f_ref, **{s: max(float(np.max(np.abs(cols[layout.column(s)]))), floor[s]) for s in TAIL}}

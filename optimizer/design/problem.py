@@ -12,6 +12,7 @@ import numpy as np
 import pyomo.environ as pyo
 from tubewright.models.backend import pyomo_backend
 from tubewright.models.simulator import simulate
+from tubewright.models.state import TAIL
 from tubewright.models.summary import stoichiometric_factor
 from tubewright.models.thermo import R_GAS
 from tubewright.optimizer.design import costs as C
@@ -198,7 +199,7 @@ class DesignProblem:
             if name in lim:
                 add(name, pyo.Constraint(expr=(ratio >= b[name]) if kind == "min" else (ratio <= b[name])), kind, ratio)
         if "max_coolant_outlet_temperature" in lim:
-            end = 0.0 if case.coolant.mode == "countercurrent" else 1.0
+            end = 0.0 if case.coolant.kind.enters_at == "outlet" else 1.0
             add("max_coolant_outlet_temperature", pyo.Constraint(expr=m.Tc[end] <= b["max_coolant_outlet_temperature"]),
                 "max", m.Tc[end])
         if "runaway_margin" in lim:
@@ -242,7 +243,7 @@ class DesignProblem:
         for (sp, x), v in m.F.items():
             factors[id(v)] = 1.0 / s["F"][sp]
             factors[id(m.dF[sp, x])] = 1.0 / s["F"][sp]
-        for state in ("T", "P", "Tc", "Q", "tau"):
+        for state in TAIL:
             for x in m.xi:
                 factors[id(getattr(m, state)[x])] = 1.0 / s[state]
                 factors[id(getattr(m, f"d{state}")[x])] = 1.0 / s[state]
@@ -257,7 +258,7 @@ class DesignProblem:
         for (state, _), c in m.ode.items():
             if id(c) in row:
                 g_s[row[id(c)]] = 1.0 / s[state]
-        for state in ("F", "T", "P", "Tc", "Q", "tau"):
+        for state in ("F", *TAIL):
             disc = getattr(m, f"d{state}_disc_eq")
             for idx, c in disc.items():
                 ref = s["F"][idx[0]] if state == "F" else s[state]

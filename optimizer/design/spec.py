@@ -6,6 +6,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field, fields
 
 from tubewright.models.casefile import Table
+from tubewright.models.coolant_modes import COOLANT_MODES
 from tubewright.models.errors import CaseError
 from tubewright.models.units import quantity, to_si
 from tubewright.optimizer.design.costs import CostModel
@@ -128,10 +129,11 @@ def read_design(case) -> DesignSpec:
                 fixed[key] = _value(spec, dim, source, f"design.{key}")
             t.used.add(key)
         t.finish()
-    if "coolant_flow" in free and case.coolant.mode not in ("cocurrent", "countercurrent"):
+    if "coolant_flow" in free and not case.coolant.kind.has_coolant_flow:
+        with_flow = ", ".join(f'"{k}"' for k, row in COOLANT_MODES.items() if row.has_coolant_flow)
         raise CaseError(source, "design.coolant_flow", f'coolant mode "{case.coolant.mode}" has no coolant flow; '
-                        'free it only with "cocurrent" or "countercurrent"')
-    if "coolant_temperature" in free and case.coolant.mode in ("adiabatic", "isothermal"):
+                        f"free it only with {with_flow}")
+    if "coolant_temperature" in free and not case.coolant.kind.exchanges_heat:
         raise CaseError(source, "design.coolant_temperature", f'coolant mode "{case.coolant.mode}" has no coolant '
                         "temperature")
     if standard and "inner_diameter" in free:

@@ -17,7 +17,7 @@ def plot_profiles(case, result, path: Path, limits=None) -> Path:
     fig, axes = plt.subplots(3, 1, figsize=(7.0, 8.0), sharex=True)
     ax = axes[0]
     ax.plot(z, cols["T_K"], label="fluid")
-    if case.coolant.mode not in ("adiabatic", "isothermal"):
+    if case.coolant.kind.exchanges_heat:
         ax.plot(z, cols["Tc_K"], "--", label="coolant")
     t_limit = case.limits.get("max_temperature")
     for row in limits or []:

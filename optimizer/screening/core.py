@@ -82,7 +82,7 @@ def evaluate(case, items, unit_x, batch_size: int = 500, batched: bool = True, p
     status = np.array(["ok"] * n, dtype=object)
     reason = [""] * n
     handed = 0
-    if case.coolant.mode == "countercurrent":
+    if not case.coolant.kind.batchable:
         batched = False
     done = 0
 

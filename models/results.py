@@ -1,0 +1,64 @@
+"""The typed result of a simulation, built from an integrator solution. Kept apart from the simulator and
+the checks so that both can use it without importing each other."""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .outcomes import Reason, Status
+from .state import StateLayout
+from .summary import profile_columns, summarise
+
+PROFILE_POINTS = 201
+
+
+@dataclass
+class SimulationResult:
+    """Typed outcome of one simulation. ``columns`` holds the axial profiles as numpy arrays (SI, unit in
+    the name); ``profiles`` gives them as a pandas DataFrame (built on first use: the CLI's summary does not
+    pay for importing pandas). ``reason_code`` is the machine-readable reason beside ``reason``."""
+
+    status: Status
+    reason: str
+    summary: dict
+    columns: dict
+    findings: list = field(default_factory=list)  # checks.Finding
+    timings: dict = field(default_factory=dict)
+    reason_code: Reason = Reason.INTEGRATED
+
+    @property
+    def ok(self) -> bool:
+        return self.status == Status.OK
+
+    @property
+    def profiles(self):
+        import pandas as pd
+
+        return pd.DataFrame(self.columns)
+
+
+def build_result(case, sol, status: Status, code: Reason, reason: str, t0: float) -> SimulationResult:
+    """The result from a solve_ivp solution (dense when available): summary on a fine grid, profile
+    columns on PROFILE_POINTS points plus the hot spot."""
+    elapsed = time.perf_counter() - t0
+    if sol is None or getattr(sol, "t", None) is None or len(sol.t) < 2:
+        return SimulationResult(status, reason, {}, {}, [], {"simulate_s": elapsed}, code)
+    layout = StateLayout.of(case)
+    z_end = float(sol.t[-1])
+    if sol.sol is not None:
+        z = np.union1d(np.linspace(0.0, z_end, 2001), sol.t)
+        y = sol.sol(z)
+        y[:, -1] = sol.y[:, -1]
+    else:
+        z, y = sol.t, sol.y
+    summary = summarise(case, z, y, sol.y[:, -1])
+    summary["status"] = status
+    summary["reason"] = reason
+    summary["reason_code"] = code
+    pick = np.unique(np.searchsorted(z, np.linspace(0.0, z_end, PROFILE_POINTS)).clip(0, z.size - 1))
+    pick = np.union1d(pick, [int(np.argmax(layout.get(y, "T")))])
+    columns = profile_columns(case, z[pick], y[:, pick])
+    return SimulationResult(status, reason, summary, columns, [], {"simulate_s": elapsed}, code)

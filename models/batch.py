@@ -21,10 +21,10 @@ from .outcomes import Reason, Status
 from .parameters import apply
 from .simulator import complex_step_columns, simulate, state_rhs
 from .state import StateLayout
-from .summary import outlet_figures
+from .summary import outlet_figures, pointwise_maxima
 
 TRAP_BAND = 25.0  # K
-GRID = 801  # axial points on which the hot spot is located (then refined by a parabola through the maximum)
+GRID = 801  # axial points per tube length on which the hot spot and the other pointwise maxima are located
 
 
 @dataclass
@@ -110,7 +110,8 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> Bat
     case = apply(base, values)
     y = layout.initial(case, samples=n)
     atol_all = num.atol * np.maximum(np.abs(y), 1.0)
-    hot = y[i_t].copy()
+    i_tc = layout.index("Tc")
+    maxima = pointwise_maxima(case, y[i_t][None], y[i_tc][None])  # the inlet, until the first segment
     pos = np.zeros(n)
     end = np.full((ns, n), np.nan)
     handover = np.zeros(n, dtype=bool)
@@ -138,11 +139,13 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> Bat
             break
         z_end = float(sol.t[-1])
         grid = np.linspace(z0, z_end, max(int(GRID * (z_end - z0) / length), 3))
-        Yg = sol.sol(grid).reshape(m, ns, grid.size)[:, i_t]
-        i_max = np.argmax(Yg, axis=1)
-        better = Yg[np.arange(m), i_max] > hot[active]
-        hot[active[better]] = Yg[np.arange(m), i_max][better]
+        Yg = sol.sol(grid).reshape(m, ns, grid.size)
+        T, Tc = Yg[:, i_t].T, Yg[:, i_tc].T  # (grid, sample)
+        i_max = np.argmax(T, axis=0)
+        better = T[i_max, np.arange(m)] > maxima["max_temperature_K"][active]
         pos[active[better]] = grid[i_max][better]
+        for name, value in pointwise_maxima(sub, T, Tc).items():
+            maxima[name][active] = np.fmax(maxima[name][active], value)
         last = sol.y[:, -1].reshape(m, ns).T
         y[:, active] = last
         if sol.status == 0:
@@ -158,11 +161,11 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> Bat
         z0 = z_end
     # a sharp peak can pass the trap and fall back within one step, unseen by the event: the dense
     # solution shows it, and such a sample is simulated on its own too
-    handover |= hot >= trap
+    handover |= maxima["max_temperature_K"] >= trap
     status = np.array([Status.OK] * n, dtype=object)
     codes = np.array([Reason.INTEGRATED] * n, dtype=object)
     reason = ["integrated to the tube outlet"] * n
-    figures = outlet_figures(case, np.nan_to_num(end), hot, pos)
+    figures = outlet_figures(case, layout.initial(case, samples=n), np.nan_to_num(end), maxima, pos)
     outputs = {key: np.array(np.broadcast_to(figures[key], (n,)), dtype=float) for key in OUTPUTS if key in figures}
     censored = {key: v.copy() for key, v in outputs.items()}
     for j in np.flatnonzero(handover):
@@ -176,7 +179,9 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> Bat
 
 
 OUTPUTS = ("max_temperature_K", "max_temperature_position_m", "conversion", "pressure_drop_Pa",
-           "outlet_temperature_K", "heat_removed_W", "production_rate_mol_s", "product_selectivity", "product_yield")
+           "outlet_temperature_K", "heat_removed_W", "production_rate_mol_s", "product_selectivity", "product_yield",
+           "max_temperature_difference_K", "max_runaway_group", "coolant_outlet_temperature_K",
+           "inlet_velocity_m_s", "reynolds", "length_to_diameter")
 
 
 def single_outputs(result, censored: bool = False) -> dict:
@@ -185,6 +190,6 @@ def single_outputs(result, censored: bool = False) -> dict:
     passed, a lower bound)."""
     s = result.summary
     keep = result.ok or (censored and bool(s))
-    return {k: (float(s[k]) if keep and k in s else np.nan) for k in OUTPUTS}
+    return {k: (float(s[k]) if keep and s.get(k) is not None else np.nan) for k in OUTPUTS}
 
 

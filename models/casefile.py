@@ -13,6 +13,7 @@ from .correlations import water_saturation_temperature
 from .elements import molar_mass as formula_mass
 from .elements import parse_formula
 from .errors import CaseError, suggest
+from .limits import LIMITS, PAIRS
 from .reactions import Adsorption, Reaction, parse_equation, rate_units
 from .thermo import ConstantCp, Nasa7, Shomate, Species, cp_problem
 from .units import quantity, to_si
@@ -214,7 +215,7 @@ def build_case(data: dict, source: str) -> C.Case:
             raise CaseError(source, "bed.particle_diameter", "must be smaller than tube.inner_diameter")
     coolant = _coolant(top.sub("coolant"), feed, source)
     heat = _heat_transfer(top.sub("heat_transfer", required=False), coolant, bed, feed, source)
-    limits = _limits(top.sub("limits", required=False))
+    limits = _limits(top.sub("limits", required=False), species, product, coolant, source)
     num_t = top.sub("numerics", {"rtol", "atol", "method", "temperature_ceiling", "min_pressure",
                                  "finite_elements", "collocation_points", "verify_tolerance"}, required=False)
     numerics = C.Numerics()
@@ -504,17 +505,45 @@ def _heat_transfer(t: Table | None, coolant, bed, feed, source):
     return ht
 
 
-LIMIT_KEYS = {"max_temperature": "temperature", "max_pressure_drop": "pressure"}
-
-
-def _limits(t: Table | None) -> dict:
+def _limits(t: Table | None, species, product, coolant, source) -> dict:
+    """[limits] by the rows of models.limits: each bound in SI; a limit that cannot apply (no product, a
+    coolant mode without heat exchange or without a coolant flow) is refused."""
     if t is None:
         return {}
+    t.allowed = set(LIMITS)
     out = {}
     for key in t.data:
-        if key in LIMIT_KEYS:
-            out[key] = t.quantity(key, LIMIT_KEYS[key])
+        row = LIMITS.get(key)
+        if row is None:
+            continue  # reported by finish()
+        if row.needs_product and not product:
+            raise CaseError(source, t.key(key), "needs chemistry.product")
+        if row.needs_coolant and not coolant.kind.exchanges_heat:
+            raise CaseError(source, t.key(key), f'does not apply to coolant mode "{coolant.mode}" (no heat exchange)')
+        if row.needs_coolant_flow and not coolant.kind.has_coolant_flow:
+            raise CaseError(source, t.key(key), f'does not apply to coolant mode "{coolant.mode}" (no coolant flow)')
+        if row.dimension == "production":
+            out[key] = _production_rate(t.raw(key), species, product, source, t.key(key))
+        elif row.dimension == "dimensionless":
+            out[key] = t.number(key)
         else:
-            t.used.add(key)  # limits of the optimiser are read there; kept raw
+            out[key] = t.quantity(key, row.dimension, positive=False, minimum=0.0)
+    t.finish()
+    for lo, hi in PAIRS:
+        if lo in out and hi in out and out[lo] > out[hi]:
+            raise CaseError(source, t.key(lo), f"is above limits.{hi}")
     return out
 
+
+def _production_rate(value, species, product, source, key) -> float:
+    """A molar rate, or a mass rate converted with the product's molar mass."""
+    try:
+        return to_si(value, "mol/s", source, key)
+    except CaseError:
+        pass
+    try:
+        mass = to_si(value, "kg/s", source, key)
+    except CaseError as err:
+        raise CaseError(source, key, f'"{value}" must be a molar rate ("mol/s") or a mass rate ("t/year", '
+                        '"kg/h")') from err
+    return mass / next(s for s in species if s.name == product).molar_mass

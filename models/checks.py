@@ -13,6 +13,8 @@ import numpy as np
 
 from . import correlations as corr
 from .backend import NUMPY
+from .figures import critical_reaction, runaway_group
+from .limits import LIMITS
 from .summary import reaction_heats
 from .thermo import R_GAS
 
@@ -130,27 +132,27 @@ def _cp_mass(case, T):
     return float(cp / sum(fi * s.molar_mass for fi, s in zip(f, case.species)))
 
 
-def temperature_limit(case, result) -> list[Finding]:
-    limit = case.limits.get("max_temperature")
-    if limit is None:
-        return []
-    tmax = result.summary["max_temperature_K"]
-    margin = limit - tmax
-    if margin < 0:
-        return [Finding("temperature_limit", "warning", f"hot spot {tmax:.1f} K exceeds the limit {limit:.1f} K "
-                        f"by {-margin:.1f} K", tmax, limit)]
-    level = "warning" if margin < 10.0 else "info"
-    return [Finding("temperature_limit", level, f"hot spot {tmax:.1f} K is {margin:.1f} K below the limit "
-                    f"{limit:.1f} K", tmax, limit)]
-
-
-def pressure_limit(case, result) -> list[Finding]:
-    limit = case.limits.get("max_pressure_drop")
-    if limit is None:
-        return []
-    dp = result.summary["pressure_drop_Pa"]
-    level = "warning" if dp > limit else "info"
-    return [Finding("pressure_limit", level, f"pressure drop {dp:.4g} Pa, limit {limit:.4g} Pa", dp, limit)]
+def limit_findings(case, result) -> list[Finding]:
+    """Every limit of [limits] (models.limits) against its figure in the summary: a warning when it is
+    violated, or when a temperature limit is kept by less than 10 K (common practice for a screening
+    margin); info otherwise."""
+    out = []
+    for name, bound in case.limits.items():
+        row = LIMITS[name]
+        value = result.summary.get(row.figure)
+        if value is None:
+            continue
+        word = "at most" if row.kind == "max" else "at least"
+        unit = "" if row.unit == "-" else f" {row.unit}"
+        if not row.passes(value, bound):
+            level, verdict = "warning", "violates"
+        elif row.unit == "K" and abs(bound - value) < 10.0:
+            level, verdict = "warning", "keeps, by less than 10 K,"
+        else:
+            level, verdict = "info", "keeps"
+        out.append(Finding(f"limit_{name}", level, f"{row.description}: {value:.6g}{unit} {verdict} the limit "
+                           f"({word} {bound:.6g}{unit})", float(value), float(bound)))
+    return out
 
 
 def runaway_sensitivity(case, result, resimulate, step: float = 1.0) -> list[Finding]:
@@ -186,22 +188,24 @@ def runaway_sensitivity(case, result, resimulate, step: float = 1.0) -> list[Fin
     return out
 
 
-def semenov_bound(case, result) -> list[Finding]:
-    """Quick runaway screen in the spirit of van Welsenaere and Froment (Chem. Eng. Sci. 25, 1970, 1503):
-    the hot spot should stay within about R Tc^2 / E of the coolant temperature, the Semenov-type critical
-    temperature rise of an Arrhenius heat source (from memory). E is that of the reaction releasing the
-    most heat at the hot spot."""
+def runaway_criterion(case, result) -> list[Finding]:
+    """The runaway criterion of models.figures.runaway_group (the one every verb uses): the largest local
+    (T - Tc) E / (R Tc^2) along the tube against the Semenov-type bound 1 (van Welsenaere and Froment,
+    1970), with E of the critical reaction."""
     if not case.coolant.kind.exchanges_heat:
         return []
-    tc = case.coolant.temperature
     cols = result.columns
-    heats = reaction_heats(case, cols)[:, int(np.argmax(cols["T_K"]))]
-    e_a = case.reactions[int(np.argmax(heats))].activation_energy or 1.0
-    bound = R_GAS * tc**2 / e_a
-    rise = result.summary["max_temperature_K"] - tc
-    level = "warning" if rise > bound else "info"
-    return [Finding("semenov_bound", level, f"hot spot {rise:.1f} K above the coolant; bound R Tc^2/E = "
-                    f"{bound:.1f} K", rise, bound)]
+    j = critical_reaction(case)
+    group = runaway_group(case, np.asarray(cols["T_K"]), np.asarray(cols["Tc_K"]), j)
+    i = int(np.argmax(group))
+    tc = float(cols["Tc_K"][i])
+    rise = float(cols["T_K"][i] - tc)
+    bound = R_GAS * tc**2 / case.reactions[j].activation_energy
+    level = "warning" if group[i] > 1.0 else "info"
+    return [Finding("runaway_criterion", level, f"fluid {rise:.1f} K above the local coolant at z = "
+                    f"{cols['z_m'][i]:.3g} m; Semenov-type bound R Tc^2/E = {bound:.1f} K (E of reaction "
+                    f'"{case.reactions[j].name}"): (T - Tc) E/(R Tc^2) = {group[i]:.3g} (limit 1)',
+                    float(group[i]), 1.0)]
 
 
 def correlation_ranges(case, result) -> list[Finding]:
@@ -236,9 +240,9 @@ def run_checks(case, result, resimulate) -> list[Finding]:
     out = []
     for check in (flow_regime, tube_to_particle):
         out += check(case)
-    for check in (axial_dispersion, radial_gradient, temperature_limit, pressure_limit, correlation_ranges):
+    for check in (axial_dispersion, radial_gradient, limit_findings, correlation_ranges):
         out += check(case, result)
     if result.ok:
         out += runaway_sensitivity(case, result, resimulate)
-        out += semenov_bound(case, result)
+        out += runaway_criterion(case, result)
     return out

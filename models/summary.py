@@ -7,6 +7,7 @@ import numpy as np
 
 from .backend import NUMPY
 from .balances import local_properties, rates
+from .figures import POINTWISE, critical_reaction, layout_figures
 from .reactions import heat_of_reaction
 from .state import TAIL, StateLayout
 
@@ -34,44 +35,87 @@ def stoichiometric_factor(case, product: str) -> float:
     return 1.0
 
 
-def formed_yield_selectivity(case, product: str, f_in, f_out):
-    """Net formation [mol/s], yield and selectivity of ``product`` relative to the key reactant, for feed
-    and outlet flows of the whole reactor (numbers, or arrays of samples): yield = formed * factor / fed,
-    selectivity = formed * factor / converted, with the stoichiometric factor of stoichiometric_factor
-    (NaN selectivity where nothing converted)."""
+def product_figures(case, product: str, f_in, f_out):
+    """Net formation [mol/s], yield and selectivity of ``product`` relative to the key reactant (arithmetic
+    only, so that numbers, arrays and Pyomo expressions share it): yield = factor * formed / fed,
+    selectivity = factor * formed / converted, with the factor of stoichiometric_factor."""
     key, p = case.index(case.key_reactant), case.index(product)
     formed = f_out[p] - f_in[p]
-    converted = f_in[key] - f_out[key]
     factor = stoichiometric_factor(case, product)
+    return formed, factor * formed / f_in[key], factor * formed / (f_in[key] - f_out[key])
+
+
+def formed_yield_selectivity(case, product: str, f_in, f_out):
+    """product_figures for numbers or arrays of samples, with NaN selectivity where nothing converted."""
+    key = case.index(case.key_reactant)
+    converted = np.asarray(f_in[key] - f_out[key])
     with np.errstate(divide="ignore", invalid="ignore"):
-        selectivity = np.where(converted > 0, factor * formed / np.where(converted > 0, converted, 1.0), np.nan)
-    return formed, factor * formed / f_in[key], selectivity
+        formed, yld, selectivity = product_figures(case, product, f_in, f_out)
+    return formed, yld, np.where(converted > 0, selectivity, np.nan)
 
 
-def outlet_figures(case, y_out, hot, hot_position) -> dict:
-    """The figures of the outlet state ``y_out`` (per tube; trailing sample axes allowed) and of the hot
-    spot: the outputs shared by the summary of one simulation and by the batches of screening."""
+def conversion(case, f_in, f_out):
+    """Conversion of the key reactant from feed and outlet flows (arithmetic only: any backend)."""
+    key = case.index(case.key_reactant)
+    return (f_in[key] - f_out[key]) / f_in[key]
+
+
+def key_lost(case, f_in, f_out):
+    """Key reactant converted to anything but the product [mol/s] (arithmetic only: any backend)."""
+    key, p = case.index(case.key_reactant), case.index(case.product)
+    return f_in[key] - f_out[key] - stoichiometric_factor(case, case.product) * (f_out[p] - f_in[p])
+
+
+def pointwise_maxima(case, T, Tc) -> dict:
+    """The largest value along the tube of every pointwise figure (models.figures.POINTWISE), from the
+    temperatures T and Tc on the axial points (first axis; trailing sample axes allowed)."""
+    j = critical_reaction(case)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return {name: np.max(np.asarray(f(case, T, Tc, j)), axis=0) for name, f in POINTWISE.items()}
+
+
+def coolant_outlet_temperature(case, y_in, y_out, shape=()):
+    """The coolant temperature where the coolant leaves (opposite its entry: from the outlet state for a
+    coolant entering at z = 0, from the inlet state for one entering at z = L), the constant coolant
+    temperature, or NaN without a coolant (models.coolant_modes)."""
+    mode = case.coolant.kind
+    layout = StateLayout.of(case)
+    if mode.has_coolant_flow:
+        value = layout.get(y_out if mode.enters_at == "inlet" else y_in, "Tc")
+    elif mode.exchanges_heat:
+        value = case.coolant.temperature
+    else:
+        value = np.nan
+    return np.broadcast_to(np.asarray(value, dtype=float), shape).astype(float)
+
+
+def outlet_figures(case, y_in, y_out, maxima: dict, hot_position) -> dict:
+    """The figures of one tube from its inlet and outlet states (per tube; trailing sample axes allowed),
+    the pointwise maxima (pointwise_maxima) and the hot-spot position: the outputs shared by the summary of
+    one simulation and by the batches of screening. Every figure a limit bounds (models.limits) is here."""
     layout = StateLayout.of(case)
     N = case.tube.count
     shape = np.shape(y_out)[1:]
     f_in = np.array([np.broadcast_to(f, shape) for f in case.feed.molar_flows], dtype=float)
     f_out = np.asarray(y_out[layout.flows]) * N
-    key = case.index(case.key_reactant)
     out = {
-        "max_temperature_K": np.asarray(hot, dtype=float),
+        **{k: np.asarray(v, dtype=float) for k, v in maxima.items()},
         "max_temperature_position_m": np.asarray(hot_position, dtype=float),
-        "conversion": (f_in[key] - f_out[key]) / f_in[key],
+        "conversion": conversion(case, f_in, f_out),
         "pressure_drop_Pa": np.broadcast_to(case.feed.pressure, shape) - layout.get(y_out, "P"),
         "outlet_pressure_Pa": np.asarray(layout.get(y_out, "P"), dtype=float),
         "outlet_temperature_K": np.asarray(layout.get(y_out, "T"), dtype=float),
         "heat_removed_W": np.asarray(layout.get(y_out, "Q"), dtype=float),
         "residence_time_s": np.asarray(layout.get(y_out, "tau"), dtype=float),
+        "coolant_outlet_temperature_K": coolant_outlet_temperature(case, y_in, y_out, shape),
+        **{k: np.broadcast_to(v, shape).astype(float) for k, v in layout_figures(case).items()},
     }
     if case.product:
         formed, yld, sel = formed_yield_selectivity(case, case.product, f_in, f_out)
         out["production_rate_mol_s"] = np.asarray(formed, dtype=float)
         out["product_selectivity"] = np.asarray(sel, dtype=float)
         out["product_yield"] = np.asarray(yld, dtype=float)
+        out["key_lost_mol_s"] = np.asarray(key_lost(case, f_in, f_out), dtype=float)
     return out
 
 
@@ -79,17 +123,21 @@ def summarise(case, z, y, y_out) -> dict:
     layout = StateLayout.of(case)
     N = case.tube.count
     names = case.names
-    i_max = int(np.argmax(layout.get(y, "T")))
-    figures = {k: float(v) for k, v in outlet_figures(case, y_out, layout.get(y, "T")[i_max], z[i_max]).items()}
+    T, Tc = layout.get(y, "T"), layout.get(y, "Tc")
+    i_max = int(np.argmax(T))
+    figures = outlet_figures(case, y[:, 0], y_out, pointwise_maxima(case, T, Tc), z[i_max])
+    figures = {k: float(v) for k, v in figures.items()}
     if case.product and figures["production_rate_mol_s"] <= 0:
         figures["product_selectivity"] = figures["product_yield"] = 0.0
+    if not case.coolant.kind.exchanges_heat:
+        for k in ("coolant_outlet_temperature_K", "max_temperature_difference_K", "max_runaway_group"):
+            figures[k] = None
     f_in = np.array(case.feed.molar_flows)
     f_out = y_out[layout.flows] * N
     out = {
         "status": None,
         "length_m": float(z[-1]),
         **figures,
-        "coolant_outlet_temperature_K": coolant_outlet_temperature(case, y),
         "inner_diameter_m": case.tube.inner_diameter,
         "tube_count": N,
         "inlet_temperature_K": case.feed.temperature,
@@ -105,18 +153,6 @@ def summarise(case, z, y, y_out) -> dict:
         out["yield"][name] = float(yld)
         out["selectivity"][name] = float(sel)
     return out
-
-
-def coolant_outlet_temperature(case, y) -> float | None:
-    """The coolant temperature where the coolant leaves (opposite its entry), the constant coolant
-    temperature, or None without a coolant (models.coolant_modes)."""
-    mode = case.coolant.kind
-    if mode.has_coolant_flow:
-        tc = StateLayout.of(case).get(y, "Tc")
-        return float(tc[-1] if mode.enters_at == "inlet" else tc[0])
-    if mode.exchanges_heat:
-        return float(case.coolant.temperature)
-    return None
 
 
 def reaction_heats(case, columns) -> np.ndarray:

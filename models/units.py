@@ -22,8 +22,10 @@ def registry():
 # Dimension names used in the case schema -> a pint unit whose dimensionality is the one required.
 DIMENSIONS = {
     "length": "m",
+    "velocity": "m/s",
     "mass": "kg",
     "temperature": "K",
+    "temperature_difference": "K",
     "pressure": "Pa",
     "molar_flow": "mol/s",
     "mass_flow": "kg/s",

@@ -270,8 +270,8 @@ def cmd_screen(args) -> int:
     import warnings
 
     from tubewright.models import load_case
-    from tubewright.optimizer.screening.core import screen
     from tubewright.optimizer.screening.report import as_json, ranking_lines, write_files
+    from tubewright.optimizer.screening.screen import screen
 
     if args.samples < 2:
         raise ValueError("--samples must be at least 2")

@@ -10,7 +10,9 @@ pytest.importorskip("SALib")
 
 from builders import DEMO, liquid_case, make  # noqa: E402
 from tubewright.models import CaseError, load_case  # noqa: E402
-from tubewright.optimizer.screening.core import evaluate, function_evaluator, run, screen  # noqa: E402
+from tubewright.optimizer.screening.analysis import run  # noqa: E402
+from tubewright.optimizer.screening.evaluation import evaluate, function_evaluator  # noqa: E402
+from tubewright.optimizer.screening.screen import screen  # noqa: E402
 from tubewright.optimizer.screening.uncertain import Uncertain, read_uncertain, salib_problem  # noqa: E402
 
 
@@ -99,7 +101,7 @@ def test_parameter_without_effect_has_zero_total_index():
 def test_batched_and_one_at_a_time_evaluations_agree():
     case = load_case(DEMO / "oxidation-screen.toml")
     items = read_uncertain(case)
-    from tubewright.optimizer.screening.core import sample
+    from tubewright.optimizer.screening.sampling import sample
 
     ux = sample(salib_problem(items), "sobol", 8, seed=0)
     batched = evaluate(case, items, ux, batched=True)
@@ -169,7 +171,7 @@ def test_cli_screen_warns_for_sobol_sample_count_and_rejects_bad_entries(tmp_pat
 def test_parallel_and_single_process_batches_agree():
     case = load_case(DEMO / "oxidation-screen.toml")
     items = read_uncertain(case)
-    from tubewright.optimizer.screening.core import sample
+    from tubewright.optimizer.screening.sampling import sample
 
     ux = sample(salib_problem(items), "sobol", 16, seed=2)
     one = evaluate(case, items, ux, batch_size=64, workers=1)

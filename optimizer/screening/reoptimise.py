@@ -9,7 +9,8 @@ import numpy as np
 import pyomo.environ as pyo
 from tubewright.models.errors import CaseError
 from tubewright.optimizer.design.problem import DesignProblem
-from tubewright.optimizer.screening.core import Evaluations, to_parameters
+from tubewright.optimizer.screening.evaluation import Evaluations
+from tubewright.optimizer.screening.sampling import to_parameters
 
 DESIGN_INPUTS = {"feed.temperature": "inlet_temperature", "feed.pressure": "inlet_pressure",
                  "coolant.temperature": "coolant_temperature", "coolant.mass_flow": "coolant_flow"}

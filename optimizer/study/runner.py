@@ -27,7 +27,7 @@ def _child(spec, conn):
 PRELOAD = {"simulate": ("tubewright.models.simulator", "tubewright.models.checks"),
            "optimize": ("tubewright.optimizer.design.problem",),
            "pareto": ("tubewright.optimizer.design.alternatives",),
-           "screen": ("tubewright.optimizer.screening.core",)}
+           "screen": ("tubewright.optimizer.screening.screen",)}
 
 
 def run_local(tasks, workers: int, on_done, poll: float = 0.05):

@@ -65,8 +65,8 @@ def _run(spec) -> dict:
                 "summary": {"cheapest": front["cheapest"], "most_selective": front["most_selective"]},
                 "tables": {"front": table}}
     if kind == "screen":
-        from tubewright.optimizer.screening.core import screen
         from tubewright.optimizer.screening.report import as_json
+        from tubewright.optimizer.screening.screen import screen
 
         res = screen(case, opts["method"], opts["samples"], opts["seed"], opts["policy"], workers=1)
         return {"status": "done", "reason": f"{opts['method']} screening", "summary": as_json(res),

@@ -12,7 +12,8 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[2]
 
 from tubewright.models import load_case  # noqa: E402
-from tubewright.optimizer.screening.core import evaluate, sample  # noqa: E402
+from tubewright.optimizer.screening.evaluation import evaluate  # noqa: E402
+from tubewright.optimizer.screening.sampling import sample  # noqa: E402
 from tubewright.optimizer.screening.uncertain import read_uncertain, salib_problem  # noqa: E402
 
 

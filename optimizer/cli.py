@@ -10,11 +10,18 @@ import json
 import math
 import os
 import sys
+import warnings
 from pathlib import Path
 
+from tubewright.models.casefile import load_case
+from tubewright.models.errors import CaseError
+from tubewright.models.outcomes import Status
+from tubewright.optimizer import verbs
+from tubewright.optimizer.design.spec import DESIGN_FIELDS
 from tubewright.optimizer.output.caution import CAUTION
 from tubewright.optimizer.output.jsonsafe import finite
 from tubewright.optimizer.output.progress import ProgressBar
+from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES
 
 EXIT_OK, EXIT_NOT_OK, EXIT_BAD_INPUT = 0, 1, 2
 
@@ -72,10 +79,8 @@ def summary_lines(case, result) -> list[str]:
 
 
 def cmd_simulate(args) -> int:
-    from tubewright.models import load_case, simulate
-
     case = load_case(args.case, _parse_sets(args.set))
-    result = simulate(case)
+    result = verbs.simulate(case)
     files = {}
     if args.out:
         out = Path(args.out)
@@ -93,11 +98,11 @@ def cmd_simulate(args) -> int:
     else:
         print(f"{case.title}\n  case file: {case.source}")
         print("\n".join(summary_lines(case, result)))
-        warnings = [f for f in result.findings if f.level == "warning"]
+        warned = [f for f in result.findings if f.level == "warning"]
         infos = [f for f in result.findings if f.level != "warning"]
-        if warnings:
+        if warned:
             print("\nwarnings:")
-            for f in warnings:
+            for f in warned:
                 print(f"  ! {f.code}: {f.message}")
         if infos:
             print("\nchecks passed:")
@@ -164,66 +169,30 @@ def optimisation_lines(case, res) -> list[str]:
     return lines
 
 
-def _optimisation_answer(case, res, files, extras=None) -> dict:
-    extras = extras or {}
-    return finite({"case": case.source, "title": case.title, **res.as_dict(), "files": files, "caution": CAUTION,
-                   **extras})
+def _optimisation_answer(case, res, files) -> dict:
+    return finite({"case": case.source, "title": case.title, **res.as_dict(), "files": files, "caution": CAUTION})
 
 
 def cmd_optimize(args) -> int:
-    from tubewright.models import load_case
-    from tubewright.optimizer.design.problem import design_case, optimise
-
     case = load_case(args.case, _parse_sets(args.set))
-    from tubewright.optimizer.design.spec import read_design
-
-    spec = read_design(case)
-    if args.starts is not None and args.starts < 1:
-        raise ValueError("--starts must be at least 1")
-    if args.pareto is not None and args.pareto < 2:
-        raise ValueError("--pareto needs at least 2 points")
-    extras = {}
-    if spec.standard_tubes:
-        from tubewright.optimizer.design.alternatives import rank_standard_tubes
-
-        ranking = rank_standard_tubes(case)
-        extras["standard_tubes"] = ranking
-        best = next((r for r in ranking if r["objective"] is not None), None)
-        if best is not None:
-            chosen = {"tube.inner_diameter": f"{best['inner_diameter_m']} m",
-                      "tube.wall_thickness": f"{best['wall_thickness_m']} m", "design.standard_tubes": False}
-            case = load_case(args.case, {**_parse_sets(args.set), **chosen})
-    res = optimise(case)
-    if args.ideal and res.ok:
-        from tubewright.optimizer.design.ideal import ideal_bound
-
-        bound = ideal_bound(case)
-        bound["gap"] = (res.objective - bound["objective"]) if bound["success"] else None
-        extras["ideal_bound"] = bound
-    if args.starts:
-        from tubewright.optimizer.design.alternatives import multistart
-
-        extras["multistart"] = multistart(case, args.starts, args.seed)
-    if args.pareto:
-        from tubewright.optimizer.design.alternatives import pareto_front
-
-        extras["pareto"] = pareto_front(case, args.pareto)
+    res = verbs.optimize(case, ideal=args.ideal, starts=args.starts, seed=args.seed, pareto=args.pareto)
+    extras = res.extras
     files = {}
     if args.out and res.simulation is not None and res.simulation.columns:
+        from tubewright.optimizer.design.problem import design_case
+        from tubewright.optimizer.output.plots import plot_profiles
+
         out = Path(args.out)
         out.mkdir(parents=True, exist_ok=True)
         files["profiles_csv"] = str(out / "optimal_profiles.csv")
         res.simulation.profiles.to_csv(files["profiles_csv"], index=False)
-        from tubewright.optimizer.output.plots import plot_profiles
-
-        best = design_case(case, _design_values(res))
+        best = design_case(res.case, _design_values(res))
         files["plot_png"] = str(plot_profiles(best, res.simulation, out / "optimal_profiles.png",
                                               limits=res.limits))
         files["result_json"] = str(out / "optimum.json")
-        Path(files["result_json"]).write_text(json.dumps(_optimisation_answer(case, res, files, extras), indent=2)
-                                              + "\n")
+        Path(files["result_json"]).write_text(json.dumps(_optimisation_answer(case, res, files), indent=2) + "\n")
     if args.json:
-        print(json.dumps(_optimisation_answer(case, res, files, extras), indent=2))
+        print(json.dumps(_optimisation_answer(case, res, files), indent=2))
     else:
         print(f"{case.title}\n  case file: {case.source}")
         print("\n".join(optimisation_lines(case, res)))
@@ -231,7 +200,7 @@ def cmd_optimize(args) -> int:
         for label, path in files.items():
             print(f"  wrote {label}: {path}")
         print(f"\nCAUTION: {CAUTION}")
-    return EXIT_OK if res.status in ("optimal", "not_optimised") else EXIT_NOT_OK
+    return EXIT_OK if res.status in (Status.OPTIMAL, Status.NOT_OPTIMISED) else EXIT_NOT_OK
 
 
 def extra_lines(res, extras) -> list[str]:
@@ -260,30 +229,24 @@ def extra_lines(res, extras) -> list[str]:
 
 
 def _design_values(res) -> dict:
-    from tubewright.optimizer.design.spec import DESIGN_FIELDS
-
     back = {field: key for key, field in DESIGN_FIELDS.items()}
     return {back[k]: v for k, v in res.design.items()}
 
 
 def cmd_screen(args) -> int:
-    import warnings
-
-    from tubewright.models import load_case
     from tubewright.optimizer.screening.report import as_json, ranking_lines, write_files
-    from tubewright.optimizer.screening.screen import screen
 
-    if args.samples < 2:
+    if args.samples is not None and args.samples < 2:
         raise ValueError("--samples must be at least 2")
-    if args.method == "sobol" and args.samples & (args.samples - 1):
+    if args.method == "sobol" and args.samples is not None and args.samples & (args.samples - 1):
         print(f"warning: --samples {args.samples} is not a power of two; Sobol sequences balance best at powers of "
               "two (SALib's advice)", file=sys.stderr)
     case = load_case(args.case, _parse_sets(args.set))
     progress = ProgressBar("samples", enabled=not args.json, delay=2.0)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", UserWarning)  # SALib's power-of-two warning: given above, once
-        res = screen(case, args.method, args.samples, args.seed, args.policy, batched=not args.no_batch,
-                     progress=progress, reoptimise=args.reoptimise, workers=args.workers)
+        res = verbs.screen(case, args.method, args.samples, args.seed, args.policy, reoptimise=args.reoptimise,
+                           batched=not args.no_batch, workers=args.workers, progress=progress)
     progress.close()
     answer = as_json(res)
     answer.update(case=case.source, title=case.title, caution=CAUTION)
@@ -310,12 +273,8 @@ def cmd_screen(args) -> int:
 
 
 def cmd_run(args) -> int:
-    from tubewright.optimizer.study.runner import run_study
-
-    if args.workers < 1:
-        raise ValueError("--workers must be at least 1")
-    summary = run_study(args.study, args.out, args.workers, args.scheduler, args.retry_failed,
-                        progress=not args.json)
+    summary = verbs.run_study(args.study, args.out, args.workers, args.scheduler, args.retry_failed,
+                              progress=not args.json)
     if args.json:
         print(json.dumps(summary, indent=2))
     else:
@@ -379,7 +338,8 @@ def build_parser() -> argparse.ArgumentParser:
     scr.add_argument("case", help="case file (TOML) with an [uncertain] section")
     scr.add_argument("--method", choices=("morris", "sobol"), default="morris")
     scr.add_argument("--samples", type=int, default=None,
-                     help="Morris trajectories or Sobol base samples (default 20 for Morris, 1024 for Sobol)")
+                     help="Morris trajectories or Sobol base samples (default "
+                     + ", ".join(f"{n} for {m}" for m, n in DEFAULT_SAMPLES.items()) + ")")
     scr.add_argument("--seed", type=int, default=0, help="seed of the samples and bootstrap (default 0)")
     scr.add_argument("--policy", choices=("report", "censor"), default="report",
                      help="failed samples: report them and skip the output (default), or censor them")
@@ -413,10 +373,6 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv=None) -> int:
     args = build_parser().parse_args(argv)
-    if getattr(args, "verb", None) == "screen" and args.samples is None:
-        args.samples = 1024 if args.method == "sobol" else 20
-    from tubewright.models.errors import CaseError
-
     try:
         return args.func(args)
     except CaseError as err:

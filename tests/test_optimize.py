@@ -8,7 +8,8 @@ pytest.importorskip("cyipopt")
 
 from builders import liquid_case, logsdon_biegler_data, make, min_volume_case  # noqa: E402
 from tubewright.models import CaseError  # noqa: E402
-from tubewright.optimizer.design.problem import DesignProblem, optimise  # noqa: E402
+from tubewright.optimizer.design.optimise import optimise  # noqa: E402
+from tubewright.optimizer.design.problem import DesignProblem  # noqa: E402
 from tubewright.optimizer.design.spec import read_design  # noqa: E402
 
 K1 = 0.01  # 1/s, the first-order rate constant of liquid_case at 350 K

@@ -13,12 +13,12 @@ from tubewright.optimizer.design.tubes import standard_tubes
 
 def pareto_front(case, points: int) -> dict:
     """Minimum annual cost for selectivities from that of the cheapest design up to the best achievable
-    (epsilon constraint e_selectivity >= eps on the compiled cost problem)."""
+    (epsilon constraint product_selectivity >= eps on the compiled cost problem)."""
     if case.product is None:
         raise ValueError("a cost-selectivity front needs chemistry.product")
     cheap = DesignProblem(case, goal="min_cost").build()
     first = cheap.solve_nlp()
-    s_low = float(pyo.value(cheap.model.e_selectivity))
+    s_low = float(pyo.value(cheap.model.figures["product_selectivity"]))
     selective = DesignProblem(case, goal="max_selectivity").build()
     best = selective.solve_nlp()
     s_high = float(best.objective) if best.success else s_low
@@ -26,8 +26,9 @@ def pareto_front(case, points: int) -> dict:
     for eps in np.linspace(s_low, s_high, max(points, 2)):
         cheap.model.pareto_eps = float(eps)
         out = cheap.solve_nlp(warm_start=True)
-        front.append({"selectivity": float(pyo.value(cheap.model.e_selectivity)), "annual_cost_per_year":
-                      float(out.objective), "status": out.status_name, "design": cheap.design_values()})
+        selectivity = float(pyo.value(cheap.model.figures["product_selectivity"]))
+        front.append({"selectivity": selectivity, "annual_cost_per_year": float(out.objective),
+                      "status": out.status_name, "design": cheap.design_values()})
     return {"cheapest": {"status": first.status_name, "annual_cost_per_year": first.objective,
                          "selectivity": s_low},
             "most_selective": {"status": best.status_name, "selectivity": s_high}, "points": front}

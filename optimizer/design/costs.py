@@ -64,3 +64,15 @@ def annual_cost(m, cm: CostModel, *, area, catalyst_mass, inlet_volumetric_flow,
     }
     parts["total"] = sum(parts.values())
     return parts
+
+
+def cost_figures(m, cm: CostModel, case, figures: dict, coolant_flow) -> dict:
+    """The annual cost parts of a design from its figures (Pyomo expressions of the collocation model, or
+    the numbers of a simulation summary): one cost formula for the objective and for the report.
+    ``coolant_flow`` [kg/s] is the coolant mass flow, 0 without one."""
+    catalyst = figures["volume_m3"] * case.bed.density if case.bed is not None else 0.0
+    lost = figures["key_lost_mol_s"] if case.product else 0.0
+    return annual_cost(m, cm, area=figures["outer_area_m2"], catalyst_mass=catalyst,
+                       inlet_volumetric_flow=figures["inlet_volumetric_flow_m3_s"],
+                       pressure_drop=figures["pressure_drop_Pa"], coolant_flow=coolant_flow, key_lost=lost,
+                       key_molar_mass=case.species_map[case.key_reactant].molar_mass)

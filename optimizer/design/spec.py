@@ -1,5 +1,6 @@
-"""Reading [design], [limits], [goal] and [costs] of a case: which design quantities are free and between
-which bounds, which limits apply, what to optimise. Bad input raises CaseError naming the file and key."""
+"""Reading [design], [goal] and [costs] of a case: which design quantities are free and between which
+bounds, what to optimise (optimizer.design.goals) and at what prices; [limits] is read with the case
+(models.limits). Bad input raises CaseError naming the file and key."""
 
 from __future__ import annotations
 
@@ -8,8 +9,9 @@ from dataclasses import dataclass, field, fields
 from tubewright.models.casefile import Table
 from tubewright.models.coolant_modes import COOLANT_MODES
 from tubewright.models.errors import CaseError
-from tubewright.models.units import quantity, to_si
+from tubewright.models.units import quantity
 from tubewright.optimizer.design.costs import CostModel
+from tubewright.optimizer.design.goals import GOALS
 
 # design key -> (unit dimension, where the value lives in the case, human name)
 DESIGN_KEYS = {
@@ -26,29 +28,6 @@ DESIGN_KEYS = {
 DESIGN_FIELDS = {"length": "length_m", "inner_diameter": "inner_diameter_m", "tube_count": "tube_count",
                  "inlet_temperature": "inlet_temperature_K", "inlet_pressure": "inlet_pressure_Pa",
                  "coolant_flow": "coolant_flow_kg_s", "coolant_temperature": "coolant_temperature_K"}
-
-GOALS = ("min_cost", "max_selectivity", "max_yield", "max_productivity", "min_volume")
-
-LIMIT_KEYS = {
-    "production_rate": None,  # mol/s or mass/time (converted with the product's molar mass)
-    "min_conversion": "dimensionless",
-    "min_selectivity": "dimensionless",
-    "max_temperature": "temperature",
-    "max_temperature_difference": "temperature",
-    "max_pressure_drop": "pressure",
-    "min_velocity": "velocity",
-    "max_velocity": "velocity",
-    "min_reynolds": "dimensionless",
-    "max_reynolds": "dimensionless",
-    "min_length_to_diameter": "dimensionless",
-    "max_length_to_diameter": "dimensionless",
-    "max_coolant_outlet_temperature": "temperature",
-    "runaway_margin": "dimensionless",
-}
-
-_UNITS = {"velocity": "m/s", "temperature": "K", "pressure": "Pa", "dimensionless": "", "length": "m",
-          "mass_flow": "kg/s"}
-
 
 @dataclass(frozen=True)
 class FreeVariable:
@@ -139,13 +118,13 @@ def read_design(case) -> DesignSpec:
     if standard and "inner_diameter" in free:
         raise CaseError(source, "design.standard_tubes", "give either standard_tubes = true or a free "
                         "inner_diameter, not both")
-    limits = _read_limits(case)
+    limits = dict(case.limits)  # read and checked by the case reader (models.limits)
     goal = "min_cost"
     if "goal" in raw:
         g = Table(raw["goal"], source, "goal", {"objective"})
-        goal = g.choice("objective", GOALS)
+        goal = g.choice("objective", tuple(GOALS))
         g.finish()
-        if goal in ("max_selectivity", "max_yield", "max_productivity") and case.product is None:
+        if GOALS[goal].needs_product and case.product is None:
             raise CaseError(source, "goal.objective", f'"{goal}" needs chemistry.product')
     costs = CostModel()
     if "costs" in raw:
@@ -169,46 +148,3 @@ def _value(text, dim, source, key):
             raise CaseError(source, key, f"must be a number, got {text!r}")
         return float(text)
     return quantity(text, dim, source, key)
-
-
-def _read_limits(case) -> dict:
-    raw = case.raw.get("limits")
-    if raw is None:
-        return {}
-    t = Table(raw, case.source, "limits", set(LIMIT_KEYS))
-    out = {}
-    for key in t.data:
-        if key not in LIMIT_KEYS:
-            continue
-        t.used.add(key)
-        value = t.data[key]
-        where = f"limits.{key}"
-        if key == "production_rate":
-            out[key] = _production_rate(case, value, where)
-        elif LIMIT_KEYS[key] == "dimensionless":
-            out[key] = _value(value, "dimensionless", case.source, where)
-        else:
-            out[key] = to_si(value, _UNITS[LIMIT_KEYS[key]], case.source, where)
-    t.finish()
-    for lo, hi in (("min_velocity", "max_velocity"), ("min_reynolds", "max_reynolds"),
-                   ("min_length_to_diameter", "max_length_to_diameter")):
-        if lo in out and hi in out and out[lo] > out[hi]:
-            raise CaseError(case.source, f"limits.{lo}", f"is above limits.{hi}")
-    if "production_rate" in out and case.product is None:
-        raise CaseError(case.source, "limits.production_rate", "needs chemistry.product")
-    return out
-
-
-def _production_rate(case, value, where) -> float:
-    try:
-        return to_si(value, "mol/s", case.source, where)
-    except CaseError:
-        pass
-    try:
-        mass = to_si(value, "kg/s", case.source, where)
-    except CaseError as err:
-        raise CaseError(case.source, where, f'"{value}" must be a molar rate ("mol/s") or a mass rate '
-                        '("t/year", "kg/h")') from err
-    if case.product is None:
-        raise CaseError(case.source, where, "a mass rate needs chemistry.product")
-    return mass / case.species_map[case.product].molar_mass

@@ -8,6 +8,7 @@ import html
 import io
 from pathlib import Path
 
+from tubewright.models.outcomes import Status
 from tubewright.optimizer.output.caution import CAUTION
 from tubewright.optimizer.study.store import Store
 
@@ -29,7 +30,8 @@ def status(folder) -> dict:
         counts[r["status"]] = counts.get(r["status"], 0) + 1
     return {"study": meta.get("study_path"), "title": meta.get("title"), "counts": counts,
             "tasks": [{"task_id": r["task_id"], "name": r["name"], "kind": r["kind"], "status": r["status"],
-                       "reason": r["reason"], "seconds": r["seconds"]} for r in rows]}
+                       "reason_code": r["reason_code"] or None, "reason": r["reason"], "seconds": r["seconds"]}
+                      for r in rows]}
 
 
 def _png(fig) -> str:
@@ -76,7 +78,7 @@ def report(folder, out: Path | None = None) -> dict:
                  "<th>results</th><th>s</th></tr>" + "".join(table_rows) + "</table>")
     groups = {}
     for r in rows:
-        if r["group"] and r["status"] == "done":
+        if r["group"] and r["status"] == Status.DONE:
             groups.setdefault(r["group"], []).append(r)
     for name, members in groups.items():
         key = next(iter(members[0]["swept"]))
@@ -91,7 +93,7 @@ def report(folder, out: Path | None = None) -> dict:
         fig.tight_layout()
         parts.append(f"<h2>Sweep: {html.escape(name)}</h2>" + _png(fig))
     for r in rows:
-        if r["status"] != "done":
+        if r["status"] != Status.DONE:
             continue
         if r["kind"] in ("optimize", "simulate") and "profiles" in r["tables"] and r["kind"] == "optimize":
             prof = pd.read_parquet(folder / r["tables"]["profiles"])

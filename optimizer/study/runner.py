@@ -3,18 +3,16 @@ finished task; failures and time-outs recorded, never fatal; resume by re-runnin
 
 from __future__ import annotations
 
-import multiprocessing
 import time
 from collections import deque
 from multiprocessing.connection import wait as wait_ready
 
+from tubewright.models.outcomes import RETRYABLE, Reason, Status
 from tubewright.optimizer.output.progress import ProgressBar
+from tubewright.optimizer.processes import process_context
 from tubewright.optimizer.study.spec import load_study
 from tubewright.optimizer.study.store import Store
-from tubewright.optimizer.study.tasks import execute
-
-DONE_STATES = ("done",)
-RETRYABLE = ("failed", "error", "timeout", "stopped", "lost")
+from tubewright.optimizer.study.tasks import execute, failure
 
 
 def _child(spec, conn):
@@ -24,21 +22,23 @@ def _child(spec, conn):
         conn.close()
 
 
-PRELOAD = {"simulate": ("tubewright.models.simulator", "tubewright.models.checks"),
-           "optimize": ("tubewright.optimizer.design.problem",),
+PRELOAD = {"simulate": ("tubewright.models.simulator",),
+           "optimize": ("tubewright.optimizer.design.optimise", "tubewright.optimizer.design.alternatives",
+                        "tubewright.optimizer.design.ideal"),
            "pareto": ("tubewright.optimizer.design.alternatives",),
            "screen": ("tubewright.optimizer.screening.screen",)}
 
 
 def run_local(tasks, workers: int, on_done, poll: float = 0.05):
-    """Each task in its own forked process (so that a crash or a time-out kills only that task). The modules
-    the tasks need are imported once here, before forking, so that no task pays for its imports."""
+    """Each task in its own process (so that a crash or a time-out kills only that task), started by the
+    platform's method (optimizer.processes). The modules the tasks need are imported once here, before
+    forking, so that no forked task pays for its imports."""
     import importlib
 
     for kind in {t.kind for t in tasks}:
         for module in PRELOAD.get(kind, ()):
             importlib.import_module(module)
-    ctx = multiprocessing.get_context("fork")
+    ctx = process_context()
     pending = deque(tasks)
     running = []
     while pending or running:
@@ -56,18 +56,19 @@ def run_local(tasks, workers: int, on_done, poll: float = 0.05):
                 try:
                     result = conn.recv()
                 except EOFError:
-                    result = {"status": "error", "reason": f"worker ended without a result (exit code "
-                              f"{proc.exitcode})", "summary": {}, "tables": {}}
+                    result = failure(Status.ERROR, Reason.WORKER_LOST,
+                                     f"worker ended without a result (exit code {proc.exitcode})")
                 proc.join()
                 on_done(task, result, started)
             elif not proc.is_alive():
-                on_done(task, {"status": "error", "reason": f"worker died (exit code {proc.exitcode})",
-                               "summary": {}, "tables": {}, "seconds": time.perf_counter() - t0}, started)
+                on_done(task, failure(Status.ERROR, Reason.WORKER_LOST, f"worker died (exit code {proc.exitcode})",
+                                      time.perf_counter() - t0), started)
             elif task.timeout is not None and time.perf_counter() - t0 > task.timeout:
                 proc.kill()
                 proc.join()
-                on_done(task, {"status": "timeout", "reason": f"exceeded its time limit of {task.timeout:g} s",
-                               "summary": {}, "tables": {}, "seconds": time.perf_counter() - t0}, started)
+                on_done(task, failure(Status.TIMEOUT, Reason.TIME_LIMIT,
+                                      f"exceeded its time limit of {task.timeout:g} s", time.perf_counter() - t0),
+                        started)
             else:
                 still.append((proc, conn, task, started, t0))
         running = still
@@ -94,13 +95,13 @@ def run_dask(tasks, address: str, on_done, poll: float = 0.2):
                     try:
                         result = fut.result()
                     except Exception as err:  # a lost worker or a pickling problem: recorded, not fatal
-                        result = {"status": "error", "reason": f"Dask: {err!r}", "summary": {}, "tables": {}}
+                        result = failure(Status.ERROR, Reason.WORKER_LOST, f"Dask: {err!r}")
                     on_done(task, result, started)
                     del futures[fut]
                 elif task.timeout is not None and time.perf_counter() - t0 > task.timeout:
                     fut.cancel()
-                    on_done(task, {"status": "timeout", "reason": f"exceeded its time limit of {task.timeout:g} s",
-                                   "summary": {}, "tables": {}}, started)
+                    on_done(task, failure(Status.TIMEOUT, Reason.TIME_LIMIT,
+                                          f"exceeded its time limit of {task.timeout:g} s"), started)
                     del futures[fut]
     finally:
         client.close()
@@ -117,7 +118,7 @@ def run_study(study_path, folder=None, workers: int = 1, scheduler: str | None =
     store.register(study.tasks)
     known = store.statuses()
     unique = list({t.task_id: t for t in reversed(study.tasks)}.values())[::-1]  # one computation per identity
-    todo = [t for t in unique if known.get(t.task_id) not in DONE_STATES
+    todo = [t for t in unique if known.get(t.task_id) != Status.DONE
             and (retry_failed or known.get(t.task_id) not in RETRYABLE)]
     skipped_failed = [t for t in unique if known.get(t.task_id) in RETRYABLE and not retry_failed]
     bar = ProgressBar("tasks", enabled=progress)
@@ -131,7 +132,7 @@ def run_study(study_path, folder=None, workers: int = 1, scheduler: str | None =
 
     def on_done(task, result, started):
         store.record(task, result, started)
-        ok = result["status"] == "done"
+        ok = result["status"] == Status.DONE
         counts["done" if ok else "not_done"] += 1
         log.write(f"{time.strftime('%Y-%m-%d %H:%M:%S')} {task.task_id} {result['status']:<8} "
                   f"{result.get('seconds') or 0:8.2f} s  {task.name}: {result.get('reason', '')}\n")

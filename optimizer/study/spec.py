@@ -29,6 +29,7 @@ from pathlib import Path
 from tubewright.models.casefile import apply_overrides, build_case, read_toml, resolve_includes
 from tubewright.models.errors import CaseError
 from tubewright.models.units import registry
+from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES
 
 from tubewright import __version__
 
@@ -198,6 +199,6 @@ def _options(t, kind, src, where) -> dict:
         method = t.get("method", "morris")
         if method not in ("morris", "sobol"):
             raise CaseError(src, f"{where}.method", 'allowed: "morris", "sobol"')
-        return {"method": method, "samples": int(t.get("samples", 20 if method == "morris" else 256)),
+        return {"method": method, "samples": int(t.get("samples", DEFAULT_SAMPLES[method])),
                 "seed": int(t.get("seed", 0)), "policy": t.get("policy", "report")}
     return {}

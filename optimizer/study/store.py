@@ -54,6 +54,9 @@ class Store:
         # WAL with synchronous=NORMAL survives a killed process (only a power cut can lose the last commits)
         self.conn.execute("PRAGMA synchronous=NORMAL")
         self.conn.executescript(SCHEMA)
+        columns = {row[1] for row in self.conn.execute("PRAGMA table_info(tasks)")}
+        if "reason_code" not in columns:  # stores written before reason codes existed
+            self.conn.execute("ALTER TABLE tasks ADD COLUMN reason_code TEXT")
         if study is not None:
             with self.conn:
                 for key, value in (("study_path", str(study.path)), ("title", study.title)):
@@ -103,19 +106,21 @@ class Store:
                       "seed": task.options.get("seed"), "host": platform.node()}
         with self.conn:
             self.conn.execute(
-                "UPDATE tasks SET status = ?, reason = ?, summary_json = ?, tables_json = ?, started = ?, "
-                "finished = ?, seconds = ?, attempts = attempts + 1, provenance_json = ? WHERE task_id = ?",
-                (result["status"], result.get("reason", ""), dumps(result.get("summary", {})), dumps(files), started,
-                 time.time(), result.get("seconds"), dumps(provenance), task.task_id))
+                "UPDATE tasks SET status = ?, reason_code = ?, reason = ?, summary_json = ?, tables_json = ?, "
+                "started = ?, finished = ?, seconds = ?, attempts = attempts + 1, provenance_json = ? "
+                "WHERE task_id = ?",
+                (str(result["status"]), str(result.get("reason_code") or ""), result.get("reason", ""),
+                 dumps(result.get("summary", {})), dumps(files), started, time.time(), result.get("seconds"),
+                 dumps(provenance), task.task_id))
 
     def rows(self, task_ids=None) -> list[dict]:
         cur = self.conn.execute("SELECT t.task_id, m.position, m.name, t.kind, m.grp, m.swept_json, t.status, "
-                                "t.reason, t.summary_json, t.tables_json, t.seconds, t.attempts FROM members m "
-                                "JOIN tasks t ON t.task_id = m.task_id ORDER BY m.position")
+                                "t.reason_code, t.reason, t.summary_json, t.tables_json, t.seconds, t.attempts "
+                                "FROM members m JOIN tasks t ON t.task_id = m.task_id ORDER BY m.position")
         out = []
         for r in cur.fetchall():
-            row = dict(zip(("task_id", "position", "name", "kind", "group", "swept", "status", "reason", "summary",
-                            "tables", "seconds", "attempts"), r))
+            row = dict(zip(("task_id", "position", "name", "kind", "group", "swept", "status", "reason_code", "reason",
+                            "summary", "tables", "seconds", "attempts"), r))
             row["swept"] = json.loads(row["swept"] or "{}")
             row["summary"] = json.loads(row["summary"] or "{}")
             row["tables"] = json.loads(row["tables"] or "{}")

@@ -1,75 +1,70 @@
-"""Executing one concrete study task (in a worker process or on a Dask worker). Returns plain data:
-status, reason, summary (JSON-able) and tables (column dicts, written to Parquet by the coordinator)."""
+"""Executing one concrete study task (in a worker process or on a Dask worker) through the same verbs as
+the command line (optimizer.verbs). Returns plain data: status, reason code and reason, summary
+(JSON-able) and tables (column dicts, written to Parquet by the coordinator)."""
 
 from __future__ import annotations
 
 import time
 import traceback
 
+from tubewright.models.casefile import build_case
+from tubewright.models.outcomes import Reason, Status
+from tubewright.optimizer import verbs
+from tubewright.optimizer.screening.report import as_json
+
 
 def execute(spec: dict) -> dict:
-    """Run a task spec (see study.Task.spec). Never raises: an exception becomes status "error" with its
+    """Run a task spec (see study.spec.Task.spec). Never raises: an exception becomes status ERROR with its
     reason and the last lines of its traceback."""
     t0 = time.perf_counter()
     try:
         out = _run(spec)
     except Exception as err:  # isolation: one task's failure is recorded, the batch goes on
         tb = traceback.format_exc().strip().splitlines()[-3:]
-        out = {"status": "error", "reason": f"{type(err).__name__}: {err} | {' / '.join(tb)}", "summary": {},
-               "tables": {}}
+        out = failure(Status.ERROR, Reason.EXCEPTION, f"{type(err).__name__}: {err} | {' / '.join(tb)}")
     out["seconds"] = time.perf_counter() - t0
     return out
 
 
-def _run(spec) -> dict:
-    from tubewright.models.casefile import build_case
+def failure(status: Status, code: Reason, reason: str, seconds: float | None = None) -> dict:
+    """The record of a task that produced nothing."""
+    out = {"status": status, "reason_code": code, "reason": reason, "summary": {}, "tables": {}}
+    if seconds is not None:
+        out["seconds"] = seconds
+    return out
 
+
+def _run(spec) -> dict:
     case = build_case(spec["case_data"], spec["case_source"])
     kind, opts = spec["kind"], spec["options"]
     if kind == "simulate":
-        from tubewright.models.simulator import simulate
-
-        r = simulate(case)
+        r = verbs.simulate(case)
         summary = dict(r.summary)
         summary["findings"] = [f.as_dict() for f in r.findings]
-        return {"status": "done" if r.ok else r.status, "reason": r.reason, "summary": summary,
-                "tables": {"profiles": r.columns}}
+        return {"status": Status.DONE if r.ok else r.status, "reason_code": r.reason_code, "reason": r.reason,
+                "summary": summary, "tables": {"profiles": r.columns}}
     if kind == "optimize":
-        from tubewright.optimizer.design.problem import optimise
-
-        res = optimise(case)
-        summary = res.as_dict()
-        if opts.get("starts"):
-            from tubewright.optimizer.design.alternatives import multistart
-
-            ms = multistart(case, opts["starts"], opts.get("seed", 0))
-            summary["multistart"] = {k: ms[k] for k in ("seed", "starts", "converged", "best", "spread")}
-        if opts.get("ideal") and res.ok:
-            from tubewright.optimizer.design.ideal import ideal_bound
-
-            b = ideal_bound(case)
-            summary["ideal_bound"] = {"objective": b["objective"], "status": b["status"]}
+        res = verbs.optimize(case, ideal=opts.get("ideal", False), starts=opts.get("starts") or None,
+                             seed=opts.get("seed", 0))
         tables = {"profiles": res.simulation.columns} if res.simulation is not None else {}
-        status = "done" if res.status in ("optimal", "not_optimised") else "failed"
-        return {"status": status, "reason": res.reason, "summary": summary, "tables": tables}
+        done = res.status in (Status.OPTIMAL, Status.NOT_OPTIMISED)
+        return {"status": Status.DONE if done else res.status, "reason_code": res.reason_code,
+                "reason": res.reason, "summary": res.as_dict(), "tables": tables}
     if kind == "pareto":
-        from tubewright.optimizer.design.alternatives import pareto_front
-
-        front = pareto_front(case, opts["points"])
+        front = verbs.pareto(case, opts["points"])
         pts = front["points"]
         table = {"selectivity": [p["selectivity"] for p in pts],
                  "annual_cost_per_year": [p["annual_cost_per_year"] for p in pts],
                  "status": [p["status"] for p in pts]}
         ok = all(p["status"] == "optimal" for p in pts)
-        return {"status": "done" if ok else "failed", "reason": "front traced" if ok else "some points failed",
+        return {"status": Status.DONE if ok else Status.FAILED,
+                "reason_code": Reason.COMPLETED if ok else Reason.PARTLY_FAILED,
+                "reason": "front traced" if ok else "some points failed",
                 "summary": {"cheapest": front["cheapest"], "most_selective": front["most_selective"]},
                 "tables": {"front": table}}
     if kind == "screen":
-        from tubewright.optimizer.screening.report import as_json
-        from tubewright.optimizer.screening.screen import screen
-
-        res = screen(case, opts["method"], opts["samples"], opts["seed"], opts["policy"], workers=1)
-        return {"status": "done", "reason": f"{opts['method']} screening", "summary": as_json(res),
-                "tables": {"samples": res.samples.to_dict("list"),
-                           "outputs": res.outputs.drop(columns=["reason"]).to_dict("list")}}
+        res = verbs.screen(case, opts["method"], opts["samples"], opts["seed"], opts["policy"], workers=1)
+        return {"status": Status.DONE, "reason_code": Reason.COMPLETED, "reason": f"{opts['method']} screening",
+                "summary": as_json(res), "tables": {"samples": res.samples.to_dict("list"),
+                                                     "outputs": res.outputs.drop(columns=["reason"]).to_dict("list")}}
     raise ValueError(f"unknown task kind {kind}")

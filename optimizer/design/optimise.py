@@ -1,0 +1,106 @@
+"""``optimise``: solve the design problem, round the tube count and re-solve, verify the optimum against
+the adaptive integrator (refining the mesh once if needed), and report limits, costs and findings."""
+
+from __future__ import annotations
+
+import math
+import time
+
+import pyomo.environ as pyo
+from tubewright.models.outcomes import Reason, Status
+from tubewright.models.simulator import simulate
+from tubewright.optimizer.design.outcome import OptimizationResult
+from tubewright.optimizer.design.problem import DesignProblem, design_case
+from tubewright.optimizer.design.spec import DESIGN_FIELDS
+
+
+def optimise(case, nfe=None, ncp=None) -> OptimizationResult:
+    """The whole `optimize` verb: solve, round the tube count and re-solve, verify (refining the mesh once
+    if needed), and report."""
+    t0 = time.perf_counter()
+    problem = DesignProblem(case, nfe, ncp)
+    spec = problem.spec
+    if not spec.has_freedom:
+        sim = simulate(design_case(case, problem.start_values()))
+        return OptimizationResult(Status.NOT_OPTIMISED, "no design variable is free in [design]: the case was "
+                                  "simulated, not optimised", spec.goal, None, simulation=sim,
+                                  reason_code=Reason.NOTHING_FREE)
+    notes = []
+    problem.build()
+    outcome = problem.solve_nlp()
+    solves = [outcome]
+    if outcome.success and "tube_count" in spec.free and spec.round_tube_count:
+        n = problem.model.design["tube_count"]
+        rounded = float(max(round(n.value), math.ceil(spec.free["tube_count"].lower)))
+        notes.append(f"tube count {n.value:.2f} rounded to {rounded:.0f} and re-solved")
+        n.setlb(rounded)
+        n.setub(rounded)
+        outcome = problem.solve_nlp(warm_start=True)
+        solves.append(outcome)
+    values = problem.design_values()
+    verification, sim = problem.verify(values) if outcome.success else ({}, None)
+    if outcome.success and verification["max_relative_deviation"] > problem.verify_tolerance:
+        notes.append(f"verification deviation {verification['max_relative_deviation']:.2e} above tolerance "
+                     f"{problem.verify_tolerance:g}: mesh refined from {problem.nfe} to {2 * problem.nfe} elements")
+        finer = DesignProblem(case, 2 * problem.nfe, problem.ncp)
+        finer.build(values)
+        if "tube_count" in spec.free and spec.round_tube_count:
+            finer.model.design["tube_count"].setlb(values["tube_count"])
+            finer.model.design["tube_count"].setub(values["tube_count"])
+        outcome = finer.solve_nlp()
+        solves.append(outcome)
+        problem = finer
+        values = problem.design_values()
+        verification, sim = problem.verify(values) if outcome.success else ({}, None)
+    limits = problem.limit_rows(outcome)
+    if outcome.success:
+        status, code = Status.OPTIMAL, Reason.CONVERGED
+    elif outcome.status in (2, -2):
+        status, code = Status.INFEASIBLE, Reason.NO_FEASIBLE_POINT
+    else:
+        status, code = Status.FAILED, Reason.SOLVER_FAILED
+    hint = ""
+    if not outcome.success:
+        violated = [r for r in limits if (r.kind == "max" and r.value > r.bound * (1 + 1e-6) + 1e-9)
+                    or (r.kind == "min" and r.value < r.bound * (1 - 1e-6) - 1e-9)]
+        if violated:
+            worst = max(violated, key=lambda r: abs(r.value - r.bound) / max(abs(r.bound), 1e-12))
+            hint = (f"relax limits.{worst.name} (bound {worst.bound:.6g} {worst.unit}, best point found "
+                    f"{worst.value:.6g}) or widen the design bounds")
+        else:
+            at_bound = [r.name for r in limits if abs(r.value - r.bound) <= 1e-4 * max(abs(r.bound), 1e-12)]
+            if at_bound:
+                hint = (f"the balances cannot be met at the bounds of {', '.join('limits.' + n for n in at_bound)}: "
+                        "relax one of them or widen the design bounds")
+            else:
+                hint = "widen the design bounds or start from another point (--starts)"
+    costs = {}
+    if case.product is not None or spec.goal == "min_cost":
+        try:
+            costs = problem.cost_parts()
+        except (ValueError, ZeroDivisionError):
+            costs = {}
+    for name, fv in spec.free.items():
+        v = values.get(name)
+        if v is not None and outcome.success and min(v - fv.lower, fv.upper - v) <= 1e-4 * (fv.upper - fv.lower):
+            side = "lower" if v - fv.lower < fv.upper - v else "upper"
+            notes.append(f"design.{name} sits at its {side} bound: widening it would improve the goal")
+    area = float(pyo.value(problem.model.figures["outer_area_m2"]))
+    if spec.goal == "min_cost" and not (spec.costs.area_min <= area <= spec.costs.area_max):
+        notes.append(f"tube area {area:.4g} m^2 lies outside the cost correlation's range "
+                     f"{spec.costs.area_min:g}-{spec.costs.area_max:g} m^2 (extrapolated)")
+    solver = outcome.as_dict()
+    solver["solves"] = len(solves)
+    solver["iterations_total"] = sum(o.iterations for o in solves)
+    solver["finite_elements"], solver["collocation_points"] = problem.nfe, problem.ncp
+    solver.update(variables=problem.nlp.n, constraints=problem.nlp.m, forms=problem.nlp.times["forms"])
+    timings = {"build_s": problem.build_s, "compile_s": problem.nlp.times["compile_s"],
+               "ipopt_s": sum(o.times["ipopt_s"] for o in solves),
+               "callbacks_s": sum(o.times["callbacks_s"] for o in solves), "total_s": time.perf_counter() - t0}
+    reason = outcome.message if outcome.success else f"IPOPT: {outcome.status_name} ({outcome.message})"
+    return OptimizationResult(status, reason, spec.goal, outcome.objective, _design_fields(values), limits, costs,
+                              verification, solver, timings, sim, notes, hint, code)
+
+
+def _design_fields(values: dict) -> dict:
+    return {DESIGN_FIELDS[k]: v for k, v in values.items()}

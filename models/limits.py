@@ -68,8 +68,7 @@ LIMITS = {
         Limit("max_coolant_outlet_temperature", "max", "temperature", "K", "coolant_outlet_temperature_K",
               "coolant temperature where it leaves", needs_coolant=True, needs_coolant_flow=True),
         Limit("runaway_margin", "max", "dimensionless", "-", "max_runaway_group",
-              "largest (T - Tc) E / (R Tc^2) along the tube (models.figures.runaway_group; 1 is the "
-              "Semenov-type bound)", needs_coolant=True),
+              "runaway group, largest (T - Tc) E/(R Tc^2) along the tube", needs_coolant=True),
     )
 }
 

@@ -17,6 +17,7 @@ from tubewright.models.casefile import load_case
 from tubewright.models.errors import CaseError
 from tubewright.models.outcomes import Status
 from tubewright.optimizer import verbs
+from tubewright.optimizer.design.goals import GOALS
 from tubewright.optimizer.design.spec import DESIGN_FIELDS
 from tubewright.optimizer.output.caution import CAUTION
 from tubewright.optimizer.output.jsonsafe import finite
@@ -132,8 +133,8 @@ def _json_answer(case, result, files) -> dict:
 def optimisation_lines(case, res) -> list[str]:
     lines = [f"  status: {res.status} - {res.reason}"]
     if res.objective is not None:
-        unit = {"min_cost": "per year", "min_volume": "m^3", "max_productivity": "mol/(m^3 s)"}.get(res.goal, "")
-        lines.append(f"  goal: {res.goal} = {_fmt(res.objective)} {unit}".rstrip())
+        unit = GOALS[res.goal].unit
+        lines.append(f"  goal: {res.goal} = {_fmt(res.objective)} {'' if unit == '-' else unit}".rstrip())
     if res.design:
         lines.append("\ndesign:")
         width = max(len(k) for k in res.design)
@@ -150,7 +151,11 @@ def optimisation_lines(case, res) -> list[str]:
     if res.verification:
         v = res.verification
         lines.append(f"\nverification against the adaptive integrator: largest relative deviation "
-                     f"{_fmt(v.get('max_relative_deviation'))} (tolerance {_fmt(v.get('tolerance'))})")
+                     f"{_fmt(v.get('max_relative_deviation'))} (tolerance {_fmt(v.get('tolerance'))}); goal of the "
+                     f"re-simulated design {_fmt(v.get('goal_simulated'))}")
+    if res.simulation is not None and res.simulation.findings:
+        lines.append("checks of the final design (as simulate reports them):")
+        lines += [f"  {'!' if f.level == 'warning' else '-'} {f.code}: {f.message}" for f in res.simulation.findings]
     if res.solver:
         s = res.solver
         lines.append(f"solver: IPOPT {s.get('status_name')}, {s.get('iterations_total')} iterations in "

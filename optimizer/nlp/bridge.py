@@ -21,11 +21,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pyomo.core.expr as EXPR
-import pyomo.core.expr.calculus.diff_with_pyomo as _diff
 from pyomo.core.base.constraint import Constraint
 from pyomo.core.base.objective import Objective, maximize
 from pyomo.core.expr.calculus.derivatives import differentiate
-from pyomo.environ import Expr_if, value
+from pyomo.environ import value
+from tubewright.optimizer.nlp.pyomo_rules import install_rules
 
 INFINITY = 1.0e19
 
@@ -37,24 +37,6 @@ IPOPT_STATUS = {
     -11: "invalid problem definition", -12: "invalid option", -13: "invalid number detected",
     -100: "unrecoverable exception", -101: "non-IPOPT exception", -102: "insufficient memory", -199: "internal error",
 }
-
-
-# Pyomo's symbolic differentiation has no rule for Expr_if (used for piecewise cp polynomials): the
-# derivative of Expr_if(c, a, b) is Expr_if(c, da, db), and a condition contributes no derivative.
-def _diff_expr_if(node, val_dict, der_dict):
-    der = der_dict[node]
-    cond, then, other = node.args
-    der_dict[then] += der * Expr_if(IF=cond, THEN=1.0, ELSE=0.0)
-    der_dict[other] += der * Expr_if(IF=cond, THEN=0.0, ELSE=1.0)
-
-
-def _diff_nothing(node, val_dict, der_dict):
-    return None
-
-
-_diff._diff_map.setdefault(EXPR.Expr_ifExpression, _diff_expr_if)
-for _rel in (EXPR.InequalityExpression, EXPR.EqualityExpression, EXPR.RangedExpression):
-    _diff._diff_map.setdefault(_rel, _diff_nothing)
 
 
 class _Printer:
@@ -219,6 +201,7 @@ class CompiledNLP:
 
     def __init__(self, model):
         t0 = time.perf_counter()
+        install_rules()
         self.model = model
         objectives = list(model.component_data_objects(Objective, active=True, descend_into=True))
         if len(objectives) != 1:

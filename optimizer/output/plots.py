@@ -4,17 +4,15 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from tubewright.optimizer.output.canvas import new_figure
+
 
 def plot_profiles(case, result, path: Path, limits=None) -> Path:
     """Temperature, conversion and pressure along the tube; ``limits`` (optimisation LimitRows) are drawn in."""
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
     cols = result.columns
     z = cols["z_m"]
-    fig, axes = plt.subplots(3, 1, figsize=(7.0, 8.0), sharex=True)
+    fig = new_figure((7.0, 8.0))
+    axes = fig.subplots(3, 1, sharex=True)
     ax = axes[0]
     ax.plot(z, cols["T_K"], label="fluid")
     if case.coolant.kind.exchanges_heat:
@@ -42,5 +40,4 @@ def plot_profiles(case, result, path: Path, limits=None) -> Path:
     fig.tight_layout(rect=(0, 0.02, 1, 0.97))
     path = Path(path)
     fig.savefig(path, dpi=110)
-    plt.close(fig)
     return path

@@ -6,6 +6,7 @@ import math
 from pathlib import Path
 
 import numpy as np
+from tubewright.optimizer.output.canvas import new_figure
 
 
 def ranking_lines(res) -> list[str]:
@@ -73,15 +74,11 @@ def write_files(res, out: Path) -> dict:
 
 
 def plot(res, path: Path) -> Path:
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
-
     tables = [(k, v) for k, v in res.indices.items() if not isinstance(v, str)]
     cols = max(1, min(3, len(tables)))
     rows = max(1, math.ceil(len(tables) / cols))
-    fig, axes = plt.subplots(rows, cols, figsize=(5.0 * cols, 3.8 * rows), squeeze=False)
+    fig = new_figure((5.0 * cols, 3.8 * rows))
+    axes = fig.subplots(rows, cols, squeeze=False)
     for ax, (name, idx) in zip(axes.ravel(), tables):
         if res.method == "morris":
             ax.errorbar(idx["mu_star"], idx["sigma"], xerr=idx["mu_star_conf"], fmt="o", ms=4, capsize=2)
@@ -102,5 +99,4 @@ def plot(res, path: Path) -> Path:
     fig.text(0.01, 0.005, "Screening estimate only - verify before use.", fontsize=7, color="gray")
     fig.tight_layout(rect=(0, 0.02, 1, 1))
     fig.savefig(path, dpi=100)
-    plt.close(fig)
     return path

@@ -9,6 +9,7 @@ import io
 from pathlib import Path
 
 from tubewright.models.outcomes import Status
+from tubewright.optimizer.output.canvas import new_figure
 from tubewright.optimizer.output.caution import CAUTION
 from tubewright.optimizer.study.store import Store
 
@@ -37,9 +38,6 @@ def status(folder) -> dict:
 def _png(fig) -> str:
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=90)
-    import matplotlib.pyplot as plt
-
-    plt.close(fig)
     return f'<img alt="plot" src="data:image/png;base64,{base64.b64encode(buf.getvalue()).decode()}">'
 
 
@@ -53,10 +51,6 @@ def _number(text):
 
 
 def report(folder, out: Path | None = None) -> dict:
-    import matplotlib
-
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
     import pandas as pd
 
     folder = Path(folder)
@@ -83,7 +77,8 @@ def report(folder, out: Path | None = None) -> dict:
     for name, members in groups.items():
         key = next(iter(members[0]["swept"]))
         xs, unit = zip(*(_number(m["swept"][key]) for m in members))
-        fig, axes = plt.subplots(1, 3, figsize=(12, 3.4))
+        fig = new_figure((12, 3.4))
+        axes = fig.subplots(1, 3)
         for ax, field in zip(axes, ("max_temperature_K", "conversion", "pressure_drop_Pa")):
             ys = [m["summary"].get(field) for m in members]
             ax.plot(xs, ys, "o")
@@ -97,7 +92,8 @@ def report(folder, out: Path | None = None) -> dict:
             continue
         if r["kind"] in ("optimize", "simulate") and "profiles" in r["tables"] and r["kind"] == "optimize":
             prof = pd.read_parquet(folder / r["tables"]["profiles"])
-            fig, ax = plt.subplots(figsize=(6, 3.2))
+            fig = new_figure((6, 3.2))
+            ax = fig.subplots()
             ax.plot(prof["z_m"], prof["T_K"], label="fluid")
             ax.plot(prof["z_m"], prof["Tc_K"], "--", label="coolant")
             for lim in r["summary"].get("limits", []):
@@ -111,7 +107,8 @@ def report(folder, out: Path | None = None) -> dict:
             parts.append(f"<h2>Optimum: {html.escape(r['name'])}</h2><p>{html.escape(design)}</p>" + _png(fig))
         if r["kind"] == "pareto" and "front" in r["tables"]:
             front = pd.read_parquet(folder / r["tables"]["front"])
-            fig, ax = plt.subplots(figsize=(5, 3.2))
+            fig = new_figure((5, 3.2))
+            ax = fig.subplots()
             ax.plot(front["selectivity"], front["annual_cost_per_year"], "o-")
             ax.set_xlabel("selectivity")
             ax.set_ylabel("annual cost per year")
@@ -121,7 +118,8 @@ def report(folder, out: Path | None = None) -> dict:
             indices = r["summary"].get("indices", {})
             tables = [(k, v) for k, v in indices.items() if "note" not in v]
             if tables:
-                fig, axes = plt.subplots(1, len(tables), figsize=(3.2 * len(tables), 3.2), squeeze=False)
+                fig = new_figure((3.2 * len(tables), 3.2))
+                axes = fig.subplots(1, len(tables), squeeze=False)
                 key = "ST" if r["summary"].get("method") == "sobol" else "mu_star"
                 for ax, (name, idx) in zip(axes[0], tables):
                     ax.barh(list(idx), [v.get(key) or 0.0 for v in idx.values()])

@@ -34,10 +34,13 @@ def _parse_sets(items) -> dict:
             raise ValueError(f'--set "{item}": write KEY=VALUE, for example --set tube.length="6 m"')
         key, value = item.split("=", 1)
         value = value.strip()
-        try:  # numbers stay numbers; everything else is a string (never evaluated)
-            value = float(value) if any(c in value for c in ".eE") else int(value)
-        except ValueError:
-            pass
+        if value in ("true", "false"):  # TOML's booleans
+            value = value == "true"
+        else:
+            try:  # numbers stay numbers; everything else is a string (never evaluated)
+                value = float(value) if any(c in value for c in ".eE") else int(value)
+            except ValueError:
+                pass
         out[key.strip()] = value
     return out
 
@@ -278,8 +281,12 @@ def cmd_screen(args) -> int:
 
 
 def cmd_run(args) -> int:
-    summary = verbs.run_study(args.study, args.out, args.workers, args.scheduler, args.retry_failed,
-                              progress=not args.json)
+    from tubewright.optimizer.study.runner import run_study
+
+    if args.workers < 1:
+        raise ValueError("--workers must be at least 1")
+    summary = run_study(args.study, args.out, args.workers, args.scheduler, args.retry_failed,
+                        progress=not args.json)
     if args.json:
         print(json.dumps(summary, indent=2))
     else:

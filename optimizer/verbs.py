@@ -1,6 +1,10 @@
-"""One function per verb. The command line (optimizer.cli) and the study tasks (optimizer.study.tasks) both
-call these, so that a verb gives the same answer from either: the same defaults, the same standard-tube
-ranking, the same ideal bound. Each returns a typed result; none prints."""
+"""One function per reactor verb (simulate, optimize, pareto, screen). The command line (optimizer.cli) and
+the study tasks (optimizer.study.tasks) both call these, so that a verb gives the same answer from either:
+the same defaults, the same standard-tube ranking, the same ideal bound. Each returns a typed result; none
+prints. The study verbs (run, status, report) live in optimizer.study, which calls these.
+
+The design and screening layers import Pyomo and IPOPT: they are imported inside the verbs that need
+them, so that simulating never pays for them."""
 
 from __future__ import annotations
 
@@ -75,13 +79,3 @@ def screen(case, method: str = "morris", samples: int | None = None, seed: int =
         raise ValueError("samples must be at least 2")
     return _screen(case, method, n, seed, policy, batched=batched, progress=progress, reoptimise=reoptimise,
                    workers=workers)
-
-
-def run_study(study, folder=None, workers: int = 1, scheduler: str | None = None, retry_failed: bool = False,
-              progress: bool = False) -> dict:
-    """Run a study file unattended (optimizer.study.runner): a summary of the run."""
-    from tubewright.optimizer.study.runner import run_study as _run
-
-    if workers < 1:
-        raise ValueError("workers must be at least 1")
-    return _run(study, folder, workers, scheduler, retry_failed, progress=progress)

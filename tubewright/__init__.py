@@ -34,7 +34,8 @@ _PUBLIC = {
     "OptimizationResult": ("tubewright.optimizer.design.outcome", "OptimizationResult"),
     "screen": ("tubewright.optimizer.verbs", "screen"),
     "ScreeningResult": ("tubewright.optimizer.screening.analysis", "ScreeningResult"),
-    "run_study": ("tubewright.optimizer.verbs", "run_study"),
+    "pareto": ("tubewright.optimizer.verbs", "pareto"),
+    "run_study": ("tubewright.optimizer.study.runner", "run_study"),
     "Status": ("tubewright.models.outcomes", "Status"),
 }
 

@@ -16,7 +16,7 @@ from tubewright.optimizer.study.store import Store
 KEY_FIELDS = ("conversion", "product_selectivity", "max_temperature_K", "pressure_drop_Pa", "production_rate_mol_s")
 
 
-def _read(folder):
+def read_store(folder):
     store = Store(folder).open()
     try:
         return store.rows(), store.meta()
@@ -25,7 +25,7 @@ def _read(folder):
 
 
 def status(folder) -> dict:
-    rows, meta = _read(folder)
+    rows, meta = read_store(folder)
     counts = {}
     for r in rows:
         counts[r["status"]] = counts.get(r["status"], 0) + 1
@@ -54,7 +54,7 @@ def report(folder, out: Path | None = None) -> dict:
     import pandas as pd
 
     folder = Path(folder)
-    rows, meta = _read(folder)
+    rows, meta = read_store(folder)
     out = Path(out) if out else folder / "report.html"
     parts = [f"<h1>{html.escape(meta.get('title', 'study'))}</h1>",
              f"<p class='caution'><b>Caution.</b> {html.escape(CAUTION)}</p>",

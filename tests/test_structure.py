@@ -1,0 +1,142 @@
+"""The shape of the package: one import name, no import cycles, no private names across modules, no side
+effects at import. Facts about this project itself (no outside source needed)."""
+
+from __future__ import annotations
+
+import ast
+import subprocess
+import sys
+import zipfile
+from pathlib import Path
+
+import pytest
+from builders import ROOT
+
+ROOMS = {"tubewright": ROOT / "tubewright", "tubewright.models": ROOT / "models",
+         "tubewright.optimizer": ROOT / "optimizer"}
+
+
+def _modules() -> dict:
+    """Module name -> path for every module of the package, following the package-dir mapping."""
+    out = {}
+    for package, folder in ROOMS.items():
+        for path in folder.rglob("*.py"):
+            rel = path.relative_to(folder).with_suffix("")
+            parts = [p for p in rel.parts if p != "__init__"]
+            if package == "tubewright" and parts:
+                continue  # the top-level folder holds only the façade
+            out[".".join([package, *parts])] = path
+    return out
+
+
+def _top_level_imports(name: str, path: Path):
+    """(imported module, imported names, is at module level) for every import of a module."""
+    tree = ast.parse(path.read_text())
+    package = name if path.name == "__init__.py" else name.rsplit(".", 1)[0]
+    top = set(map(id, tree.body))
+    for node in ast.walk(tree):
+        if isinstance(node, ast.ImportFrom):
+            if node.level:
+                base = package.split(".")
+                base = base[: len(base) - (node.level - 1)]
+                module = ".".join(base + ([node.module] if node.module else []))
+            else:
+                module = node.module or ""
+            yield module, [a.name for a in node.names], id(node) in top
+        elif isinstance(node, ast.Import):
+            for a in node.names:
+                yield a.name, [], id(node) in top
+
+
+@pytest.mark.parametrize("deferred", [False, True], ids=["module level", "with deferred imports"])
+def test_imports_have_no_cycles(deferred):
+    """Module-level imports form no cycle; neither do they together with the imports deferred into
+    functions, so no deferred import exists to dodge a cycle (they only defer heavy libraries)."""
+    modules = _modules()
+    graph = {name: set() for name in modules}
+    for name, path in modules.items():
+        for module, names, at_top in _top_level_imports(name, path):
+            if not (at_top or deferred):
+                continue
+            submodules = [f"{module}.{n}" for n in names if f"{module}.{n}" in modules]
+            for target in submodules or [module]:  # "from . import x" needs x, not the package's __init__
+                if target in modules and target != name:
+                    graph[name].add(target)
+    state = {}
+
+    def visit(node, trail):
+        state[node] = "open"
+        for nxt in graph[node]:
+            if state.get(nxt) == "open":
+                pytest.fail("import cycle: " + " -> ".join(trail + [node, nxt]))
+            if nxt not in state:
+                visit(nxt, trail + [node])
+        state[node] = "done"
+
+    for node in graph:
+        if node not in state:
+            visit(node, [])
+
+
+def test_no_module_imports_a_private_name_of_another():
+    modules = _modules()
+    for name, path in modules.items():
+        for module, names, _ in _top_level_imports(name, path):
+            if module.startswith("tubewright"):
+                private = [n for n in names if n.startswith("_") and n != "__version__"]
+                assert not private, f"{name} imports {private} from {module}"
+
+
+def test_optimizer_rooms_hold_their_jobs_and_models_never_import_optimizer():
+    rooms = {p.name for p in (ROOT / "optimizer").iterdir() if p.is_dir() and not p.name.startswith("_")}
+    assert rooms >= {"nlp", "design", "screening", "study", "output"}
+    flat = {p.name for p in (ROOT / "optimizer").glob("*.py")}
+    assert flat == {"__init__.py", "cli.py", "verbs.py", "processes.py"}
+    for name, path in _modules().items():
+        if name.startswith("tubewright.models"):
+            for module, _, _ in _top_level_imports(name, path):
+                assert not module.startswith("tubewright.optimizer"), f"{name} imports {module}"
+        if name.startswith("tubewright.optimizer.nlp"):  # the bridge knows nothing of reactors
+            for module, _, _ in _top_level_imports(name, path):
+                assert not module.startswith(("tubewright.models", "tubewright.optimizer.design")), name
+
+
+def _run(code: str) -> str:
+    return subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
+                          cwd=ROOT / "tests").stdout.strip()
+
+
+def test_import_is_light_and_changes_nothing_global():
+    out = _run("import sys, tubewright as tw; tw.load_case; tw.CaseError; "
+               "print(sorted(m for m in ('pyomo', 'pandas', 'matplotlib', 'SALib', 'cyipopt') if m in sys.modules))")
+    assert out == "[]"
+    # importing the bridge and the plotting modules patches nothing: Pyomo's rules and matplotlib's backend stay
+    out = _run("import matplotlib; before = matplotlib.get_backend(); "
+               "import pyomo.core.expr as E, pyomo.core.expr.calculus.diff_with_pyomo as d; "
+               "import tubewright.optimizer.nlp.bridge, tubewright.optimizer.output.plots, "
+               "tubewright.optimizer.study.report, tubewright.optimizer.screening.report; "
+               "print(E.Expr_ifExpression in d._diff_map, matplotlib.get_backend() == before)")
+    assert out == "False True"
+
+
+def test_version_is_read_from_the_distribution():
+    import importlib.metadata
+
+    import tubewright
+
+    assert tubewright.__version__ == importlib.metadata.version("tubewright")
+
+
+@pytest.mark.slow
+def test_built_wheel_adds_only_the_tubewright_import_name(tmp_path):
+    subprocess.run([sys.executable, "-m", "pip", "wheel", "--quiet", "--no-deps", "-w", str(tmp_path), str(ROOT)],
+                   check=True, capture_output=True)
+    (wheel,) = tmp_path.glob("tubewright-*.whl")
+    names = zipfile.ZipFile(wheel).namelist()
+    tops = {n.split("/")[0] for n in names}
+    assert {t for t in tops if not t.endswith(".dist-info")} == {"tubewright"}
+    modules = {n for n in names if n.endswith(".py")}
+    assert "tubewright/models/simulator.py" in modules and "tubewright/optimizer/nlp/bridge.py" in modules
+    assert len(modules) == len(_modules())  # every module of the tree is shipped, under tubewright/
+    entry = next(n for n in names if n.endswith("entry_points.txt"))
+    assert "tubewright = tubewright.optimizer.cli:main" in zipfile.ZipFile(wheel).read(entry).decode()

@@ -1,0 +1,69 @@
+"""The verbs answer the same from the command line, from a study and from Python (facts of this project)."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from builders import DEMO
+from tubewright.optimizer.cli import main
+from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES
+from tubewright.optimizer.study.report import read_store
+from tubewright.optimizer.study.runner import run_study
+from tubewright.optimizer.study.spec import load_study
+
+import tubewright as tw
+
+
+def test_public_api_resolves_every_name():
+    for name in tw.__all__:
+        assert getattr(tw, name) is not None
+    with pytest.raises(AttributeError):
+        tw.no_such_name  # noqa: B018
+
+
+def _study(tmp_path, body: str):
+    path = tmp_path / "study.toml"
+    path.write_text(f'title = "verbs"\nbase = "{DEMO / "oxidation-design.toml"}"\n' + body)
+    return path
+
+
+@pytest.mark.slow
+def test_run_and_optimize_give_the_same_design_with_standard_tubes(tmp_path, capsys):
+    sets = {"design.inner_diameter": "25 mm", "design.standard_tubes": True}
+    set_toml = ", ".join(f'"{k}" = {json.dumps(v)}' for k, v in sets.items())
+    study = _study(tmp_path, f'[[task]]\nname = "standard"\nkind = "optimize"\nset = {{ {set_toml} }}\n')
+    assert run_study(study, tmp_path / "out", workers=1, progress=False)["done"] == 1
+    capsys.readouterr()
+    argv = ["optimize", str(DEMO / "oxidation-design.toml"), "--json"]
+    for k, v in sets.items():
+        argv += ["--set", f"{k}={'true' if v is True else v}"]
+    assert main(argv) == 0
+    cli = json.loads(capsys.readouterr().out)
+    rows, _ = read_store(tmp_path / "out")
+    stored = rows[0]["summary"]
+    assert cli["standard_tubes"] and stored["standard_tubes"]  # both ranked the tube sizes
+    assert [r["label"] for r in stored["standard_tubes"]] == [r["label"] for r in cli["standard_tubes"]]
+    assert stored["design"] == pytest.approx(cli["design"], rel=1e-9)
+    assert stored["objective"] == pytest.approx(cli["objective"], rel=1e-9)
+
+
+def test_screening_defaults_are_the_same_in_a_study_on_the_command_line_and_in_python(tmp_path, monkeypatch):
+    seen = []
+
+    def fake_screen(case, method, n, *args, **kwargs):
+        seen.append((method, n))
+        raise SystemExit(0)  # stop before any computation: only the sample count is checked
+
+    import tubewright.optimizer.screening.screen as screen_module
+
+    monkeypatch.setattr(screen_module, "screen", fake_screen)
+    for method in DEFAULT_SAMPLES:
+        study = _study(tmp_path, f'[[task]]\nkind = "screen"\nmethod = "{method}"\n')
+        (task,) = load_study(study).tasks
+        assert task.options["samples"] == DEFAULT_SAMPLES[method]
+        with pytest.raises(SystemExit):
+            main(["screen", str(DEMO / "oxidation-screen.toml"), "--method", method])
+        with pytest.raises(SystemExit):
+            tw.screen(tw.load_case(DEMO / "oxidation-screen.toml"), method)
+    assert seen == [(m, n) for m, n in DEFAULT_SAMPLES.items() for _ in range(2)]

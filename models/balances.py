@@ -124,8 +124,11 @@ class Derivatives:
     @property
     def tail(self) -> dict:
         """The derivatives of the tail states by name (see models.state.TAIL)."""
-        values = {"T": self.dT, "P": self.dP, "Tc": self.dTc, "Q": self.dQ, "tau": self.dtau}
-        return {s: values[s] for s in TAIL}
+        return dict(zip(TAIL, self.tail_values()))
+
+    def tail_values(self) -> tuple:
+        """The derivatives of the tail states in the order of models.state.TAIL."""
+        return self.dT, self.dP, self.dTc, self.dQ, self.dtau
 
 
 def axial_derivatives(m, case, F, T, P, Tc) -> Derivatives:

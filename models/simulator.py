@@ -27,11 +27,11 @@ def state_rhs(case):
     axes (samples, or the perturbed columns of the complex step): the balances broadcast over them."""
     layout = StateLayout.of(case)
     flows = layout.flows
+    i_t, i_p, i_tc = (layout.index(s) for s in ("T", "P", "Tc"))
 
     def rhs(z, y):
         F = np.where(y[flows].real < 0.0, 0.0 * y[flows], y[flows])  # guard against integrator undershoot
-        _, T, P, Tc = layout.unpack(y)
-        d = axial_derivatives(NUMPY, case, list(F), T, P, Tc)
+        d = axial_derivatives(NUMPY, case, list(F), y[i_t], y[i_p], y[i_tc])
         return layout.pack(d, y.shape[1:])
 
     return rhs

@@ -62,15 +62,10 @@ class StateLayout:
     def get(self, y, state: str):
         return y[self.index(state)]
 
-    def unpack(self, y):
-        """(flows as a list, T, P, Tc) of a state array: what the balances take."""
-        n = len(self.species)
-        return [y[i] for i in range(n)], y[n], y[n + 1], y[n + 2]
-
     def pack(self, derivatives, shape=()) -> np.ndarray:
         """The derivatives (balances.Derivatives) as one array in layout order, broadcast to ``shape`` (the
         trailing axes of the state)."""
-        parts = [*derivatives.dF, *(derivatives.tail[s] for s in TAIL)]
+        parts = [*derivatives.dF, *derivatives.tail_values()]
         if not shape:
             return np.array(parts)
         return np.array([np.broadcast_to(p, shape) for p in parts])

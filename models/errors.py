@@ -22,3 +22,17 @@ def suggest(word: str, choices) -> str:
     """' (did you mean "x"?)' for the nearest allowed word, or an empty string."""
     near = difflib.get_close_matches(word, list(choices), n=1, cutoff=0.6)
     return f' (did you mean "{near[0]}"?)' if near else ""
+
+
+class ComputationFailed(RuntimeError):
+    """A computation ran on valid input but could not produce its result (the nominal design problem does
+    not solve, a starting design cannot be simulated). Not bad input: the command line exits with 1."""
+
+    def __init__(self, code, message: str):
+        self.code = code  # a models.outcomes.Reason
+        super().__init__(message)
+
+
+def option_error(option: str, message: str) -> CaseError:
+    """Bad input on the command line (or in a verb's arguments): the one input error type, naming the option."""
+    return CaseError("command line", option, message)

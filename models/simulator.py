@@ -79,15 +79,27 @@ def _events(case):
 
 def integrate(case, coolant_start: float | None = None, dense: bool = True):
     """One pass of solve_ivp from z = 0 to L. Returns the scipy result (never raises for solver trouble)."""
-    rhs = state_rhs(case)
+    physics = state_rhs(case)
+    seen = {"non_finite": False}
+
+    def rhs(z, y):
+        out = physics(z, y)
+        if not np.all(np.isfinite(out)):
+            seen["non_finite"] = True
+        return out
+
     y0 = initial_state(case, coolant_start)
     num = case.numerics
     atol = num.atol * np.maximum(np.abs(y0), 1.0)
     try:
         return solve_ivp(rhs, (0.0, case.tube.length), y0, method=num.method, rtol=num.rtol, atol=atol,
-                         events=_events(case), dense_output=dense, jac=complex_step_jacobian(rhs))
-    except (ValueError, FloatingPointError, ArithmeticError) as err:
+                         events=_events(case), dense_output=dense, jac=complex_step_jacobian(physics))
+    except (FloatingPointError, ArithmeticError, np.linalg.LinAlgError) as err:
         return _Failure(str(err))
+    except ValueError as err:
+        if not seen["non_finite"]:
+            raise  # a ValueError on finite states is a bug, not an integrator failure
+        return _Failure(f"the balances became non-finite ({err})")
 
 
 @dataclass

@@ -3,6 +3,8 @@ checked for dimension and converted to SI. Inside the project all numbers are SI
 
 from __future__ import annotations
 
+import math
+import re
 from functools import lru_cache
 
 from .errors import CaseError
@@ -43,15 +45,15 @@ DIMENSIONS = {
 }
 
 
-def to_si(text, unit: str, source: str, key: str) -> float:
+def to_si(text, unit: str, source: str, key: str, difference: bool = False) -> float:
     """Parse ``text`` (a string with units, or a bare number for dimensionless values) and return its value
     in the SI unit ``unit`` (a pint unit string). Raises CaseError naming ``source`` and ``key``."""
     if isinstance(text, str):
         try:
-            return _parsed(text, unit)
+            return _parsed(text, unit, difference)
         except _Unparsed:
             pass  # fall through to the checks below, which raise with the file and key
-    return _to_si(text, unit, source, key)
+    return _to_si(text, unit, source, key, difference)
 
 
 class _Unparsed(Exception):
@@ -59,36 +61,86 @@ class _Unparsed(Exception):
 
 
 @lru_cache(maxsize=4096)
-def _parsed(text: str, unit: str) -> float:
+def _parsed(text: str, unit: str, difference: bool) -> float:
     """Cached conversion of well-formed text (studies parse the same strings for every task)."""
     try:
-        return _to_si(text, unit, "", "")
+        return _to_si(text, unit, "", "", difference)
     except CaseError as err:
         raise _Unparsed from err
 
 
-def _to_si(text, unit: str, source: str, key: str) -> float:
+MAX_TEXT = 80  # characters of one quantity
+MAX_POWER = 12  # largest exponent of a unit
+LARGEST = 1.0e50  # no SI value of a case is larger in magnitude (a guard against overflow downstream)
+_NUMBER = re.compile(r"^\s*([+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d{1,3})?)\s*(.*?)\s*$")
+_LETTER = "A-Za-z_\u00b0\u00b5\u03bc\u2126"  # letters, degree sign, micro signs, ohm
+_UNIT_CHARS = re.compile(rf"^(?:1\s*/)?[{_LETTER}(/][{_LETTER}/*^().\s\d-]*$")
+_POWER = re.compile(r"(?:\*\*|\^)\s*\(?\s*([+-]?\d+(?:\.\d+)?)(?:\s*/\s*(\d+))?\s*\)?")
+_POWER_OF_POWER = re.compile(r"(?:\*\*|\^)[\s\d.()+-]*(?:\*\*|\^)")
+
+
+def parse(text: str, source: str = "", key: str = "", difference: bool = False):
+    """A pint Quantity from ``text`` = a number followed by a unit, and nothing else: no arithmetic is
+    evaluated (pint's own expression parser would evaluate "9**9**9 m" for ever), the text is at most
+    MAX_TEXT characters, exponents are at most MAX_POWER, the number is finite.
+
+    Temperatures: inside a compound unit (W/m^2/degC, Btu/lb/degF) a degree Celsius or Fahrenheit is an
+    interval (pint's delta units), so 1 Btu/(h ft^2 degF) = 5.678 W/(m^2 K) (NIST SP 811). A lone degC or
+    degF is an absolute temperature, unless ``difference`` says the quantity is a temperature difference."""
+    ureg = registry()
+    if len(text) > MAX_TEXT:
+        raise CaseError(source, key, f"a quantity of {len(text)} characters; allowed: at most {MAX_TEXT}")
+    match = _NUMBER.match(text)
+    if match is None:
+        raise CaseError(source, key, f'cannot read "{text}" as a quantity: write a number and a unit, for example '
+                        '"6 m" (no arithmetic)')
+    magnitude, unit_text = float(match.group(1)), match.group(2)
+    if not math.isfinite(magnitude):
+        raise CaseError(source, key, f'"{text}" is not a finite number')
+    if not unit_text:
+        return ureg.Quantity(magnitude)
+    if not _UNIT_CHARS.match(unit_text) or _POWER_OF_POWER.search(unit_text):
+        raise CaseError(source, key, f'cannot read the unit of "{text}": write a unit such as "m", "kJ/mol", '
+                        '"W/m^2/K" (no arithmetic)')
+    for power, denominator in _POWER.findall(unit_text):
+        if abs(float(power) / float(denominator or 1)) > MAX_POWER:
+            raise CaseError(source, key, f'"{text}": unit exponents are at most {MAX_POWER}')
+    try:
+        units = ureg.parse_units(unit_text, as_delta=True)  # offset units inside compounds become intervals
+    except Exception as err:  # pint raises several types for unknown or malformed units
+        raise CaseError(source, key, f'cannot read the unit of "{text}" ({err})') from err
+    container = dict(units._units)
+    if difference and len(container) == 1:
+        (name, power), = container.items()
+        if not ureg._units[name].is_multiplicative:  # a lone degC or degF: here an interval
+            units = ureg.Unit(f"delta_{name}") ** power
+    return ureg.Quantity(magnitude, units)
+
+
+def _to_si(text, unit: str, source: str, key: str, difference: bool = False) -> float:
     ureg = registry()
     if isinstance(text, bool):
         raise CaseError(source, key, f"expected a quantity in units of {unit or 'one'}, got {text!r}")
     if isinstance(text, (int, float)):
         if unit:
             raise CaseError(source, key, f'a bare number {text!r} has no unit; write it as "{text} {unit}"')
-        return float(text)
-    if not isinstance(text, str):
+        value = float(text)
+    elif not isinstance(text, str):
         raise CaseError(source, key, f"expected a string with units such as \"1 {unit}\", got {text!r}")
-    try:
-        q = ureg.Quantity(text.strip())
-    except Exception as err:  # pint raises several types for unparsable text
-        raise CaseError(source, key, f'cannot read "{text}" as a quantity ({err})') from err
-    target = ureg.Quantity(1.0, unit) if unit else ureg.Quantity(1.0)
-    if q.dimensionality != target.dimensionality:
-        have = str(q.dimensionality) if not q.dimensionless else "dimensionless"
-        want = str(target.dimensionality) if unit else "dimensionless"
-        raise CaseError(source, key, f'"{text}" has dimension {have}; allowed: {want} (for example "1 {unit}")')
-    return float(q.to(unit).magnitude) if unit else float(q.to("").magnitude)
+    else:
+        q = parse(text, source, key, difference)
+        target = ureg.Quantity(1.0, unit) if unit else ureg.Quantity(1.0)
+        if q.dimensionality != target.dimensionality:
+            have = str(q.dimensionality) if not q.dimensionless else "dimensionless"
+            want = str(target.dimensionality) if unit else "dimensionless"
+            raise CaseError(source, key, f'"{text}" has dimension {have}; allowed: {want} (for example "1 {unit}")')
+        value = float(q.to(unit).magnitude) if unit else float(q.to("").magnitude)
+    if not math.isfinite(value) or abs(value) > LARGEST:
+        raise CaseError(source, key, f"{text!r} is not a finite number of reasonable size (at most {LARGEST:g} in SI)")
+    return value
 
 
 def quantity(text, dimension: str, source: str, key: str) -> float:
-    """Parse a value of a named dimension (a key of DIMENSIONS) into SI."""
-    return to_si(text, DIMENSIONS[dimension], source, key)
+    """Parse a value of a named dimension (a key of DIMENSIONS) into SI. A "temperature_difference" reads a
+    lone degC or degF as an interval."""
+    return to_si(text, DIMENSIONS[dimension], source, key, difference=dimension == "temperature_difference")

@@ -10,11 +10,18 @@ import json
 import math
 import os
 import sys
+import tempfile
+import traceback
 import warnings
 from pathlib import Path
 
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
+
 from tubewright.models.casefile import load_case
-from tubewright.models.errors import CaseError
+from tubewright.models.errors import CaseError, ComputationFailed, option_error
 from tubewright.models.outcomes import Status
 from tubewright.optimizer import verbs
 from tubewright.optimizer.design.goals import GOALS
@@ -24,23 +31,23 @@ from tubewright.optimizer.output.jsonsafe import finite
 from tubewright.optimizer.output.progress import ProgressBar
 from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES
 
-EXIT_OK, EXIT_NOT_OK, EXIT_BAD_INPUT = 0, 1, 2
+EXIT_OK, EXIT_NOT_OK, EXIT_BAD_INPUT, EXIT_BUG = 0, 1, 2, 3
 
 
 def _parse_sets(items) -> dict:
+    """--set KEY=VALUE pairs. The value is read as a TOML value (a number, true or false, a quoted string,
+    an array or an inline table), else kept as a string; it is never evaluated. The case reader then
+    validates it like the file (unknown keys are refused there)."""
     out = {}
     for item in items or []:
         if "=" not in item:
-            raise ValueError(f'--set "{item}": write KEY=VALUE, for example --set tube.length="6 m"')
+            raise option_error("--set", f'"{item}": write KEY=VALUE, for example --set tube.length="6 m"')
         key, value = item.split("=", 1)
         value = value.strip()
-        if value in ("true", "false"):  # TOML's booleans
-            value = value == "true"
-        else:
-            try:  # numbers stay numbers; everything else is a string (never evaluated)
-                value = float(value) if any(c in value for c in ".eE") else int(value)
-            except ValueError:
-                pass
+        try:
+            value = tomllib.loads(f"value = {value}")["value"]
+        except (tomllib.TOMLDecodeError, RecursionError):
+            pass  # a bare string such as 6 m
         out[key.strip()] = value
     return out
 
@@ -244,17 +251,15 @@ def _design_values(res) -> dict:
 def cmd_screen(args) -> int:
     from tubewright.optimizer.screening.report import as_json, ranking_lines, write_files
 
-    if args.samples is not None and args.samples < 2:
-        raise ValueError("--samples must be at least 2")
-    if args.method == "sobol" and args.samples is not None and args.samples & (args.samples - 1):
-        print(f"warning: --samples {args.samples} is not a power of two; Sobol sequences balance best at powers of "
-              "two (SALib's advice)", file=sys.stderr)
+    if args.workers < 1:
+        raise option_error("--workers", f"must be at least 1, got {args.workers}")
     case = load_case(args.case, _parse_sets(args.set))
     progress = ProgressBar("samples", enabled=not args.json, delay=2.0)
     with warnings.catch_warnings():
-        warnings.simplefilter("ignore", UserWarning)  # SALib's power-of-two warning: given above, once
+        warnings.simplefilter("ignore", UserWarning)  # SALib's power-of-two warning: such counts are refused
         res = verbs.screen(case, args.method, args.samples, args.seed, args.policy, reoptimise=args.reoptimise,
-                           batched=not args.no_batch, workers=args.workers, progress=progress)
+                           batched=not args.no_batch, workers=args.workers, progress=progress,
+                           max_hours=None if args.yes else args.max_hours)
     progress.close()
     answer = as_json(res)
     answer.update(case=case.source, title=case.title, caution=CAUTION)
@@ -284,7 +289,7 @@ def cmd_run(args) -> int:
     from tubewright.optimizer.study.runner import run_study
 
     if args.workers < 1:
-        raise ValueError("--workers must be at least 1")
+        raise option_error("--workers", f"must be at least 1, got {args.workers}")
     summary = run_study(args.study, args.out, args.workers, args.scheduler, args.retry_failed,
                         progress=not args.json)
     if args.json:
@@ -359,6 +364,9 @@ def build_parser() -> argparse.ArgumentParser:
     scr.add_argument("--no-batch", action="store_true", help="simulate one sample at a time")
     scr.add_argument("--workers", type=int, default=min(2, os.cpu_count() or 1),
                      help="processes for the batches (default: up to 2, the cores of the reference machine)")
+    scr.add_argument("--max-hours", type=float, default=verbs.DEFAULT_MAX_HOURS, metavar="H",
+                     help=f"refuse a screening estimated to take longer (default {verbs.DEFAULT_MAX_HOURS:g} h)")
+    scr.add_argument("--yes", action="store_true", help="run however long the screening is estimated to take")
     scr.add_argument("--json", action="store_true", help="print the result as one JSON object")
     scr.add_argument("--out", metavar="DIR", help="write samples, outputs, indices (CSV, Parquet) and plots here")
     scr.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a case key (repeatable)")
@@ -387,12 +395,21 @@ def main(argv=None) -> int:
     args = build_parser().parse_args(argv)
     try:
         return args.func(args)
-    except CaseError as err:
+    except CaseError as err:  # the one type of bad input
         print(f"error: {err}", file=sys.stderr)
         return EXIT_BAD_INPUT
-    except ValueError as err:  # malformed command-line values
-        print(f"error: {err}", file=sys.stderr)
-        return EXIT_BAD_INPUT
+    except ComputationFailed as err:
+        print(f"failed ({err.code}): {err}", file=sys.stderr)
+        return EXIT_NOT_OK
+    except KeyboardInterrupt:
+        print("interrupted", file=sys.stderr)
+        return 130
+    except Exception as err:  # a bug: one line and the saved traceback, never a wall of Python
+        path = Path(tempfile.gettempdir()) / f"tubewright-traceback-{os.getpid()}.txt"
+        path.write_text(traceback.format_exc(), encoding="utf-8")
+        print(f"internal error: {type(err).__name__}: {err} (traceback saved in {path}; please report it)",
+              file=sys.stderr)
+        return EXIT_BUG
 
 
 if __name__ == "__main__":

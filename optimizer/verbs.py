@@ -9,9 +9,12 @@ them, so that simulating never pays for them."""
 from __future__ import annotations
 
 from tubewright.models.casefile import apply_overrides, build_case
+from tubewright.models.errors import option_error
 from tubewright.models.simulator import simulate as _simulate_with_checks
 
 MIN_STANDARD_INNER, MAX_STANDARD_INNER = 0.01, 0.06  # m: the TEMA tubes ranked by standard_tubes = true
+DEFAULT_MAX_HOURS = 2.0  # a screening estimated to take longer is refused unless the budget is raised
+PROBE_FREE_ROWS, PROBE_ROWS = 600, 40  # screenings up to this many evaluations are not timed first
 
 
 def simulate(case):
@@ -30,9 +33,9 @@ def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0
     from tubewright.optimizer.design.spec import read_design
 
     if starts is not None and starts < 1:
-        raise ValueError("starts must be at least 1")
+        raise option_error("--starts", f"must be at least 1, got {starts}")
     if pareto is not None and pareto < 2:
-        raise ValueError("a Pareto front needs at least 2 points")
+        raise option_error("--pareto", f"a front needs at least 2 points, got {pareto}")
     extras = {}
     if read_design(case).standard_tubes:
         ranking = rank_standard_tubes(case, MIN_STANDARD_INNER, MAX_STANDARD_INNER)
@@ -61,21 +64,62 @@ def pareto(case, points: int) -> dict:
     from tubewright.optimizer.design.alternatives import pareto_front
 
     if points < 2:
-        raise ValueError("a Pareto front needs at least 2 points")
+        raise option_error("points", f"a front needs at least 2 points, got {points}")
     return pareto_front(case, points)
 
 
 def screen(case, method: str = "morris", samples: int | None = None, seed: int = 0, policy: str = "report",
-           reoptimise: bool = False, batched: bool = True, workers: int = 1, progress=None):
+           reoptimise: bool = False, batched: bool = True, workers: int = 1, progress=None,
+           max_hours: float | None = DEFAULT_MAX_HOURS):
     """Rank the [uncertain] quantities of a case: a ScreeningResult. ``samples`` defaults to
-    DEFAULT_SAMPLES[method] (Morris trajectories or Sobol base samples) for every caller."""
-    from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES, METHODS
+    DEFAULT_SAMPLES[method] (Morris trajectories or Sobol base samples) for every caller and is checked by
+    the method's rules. A screening whose estimated time (a timed probe of a few samples, extrapolated)
+    passes ``max_hours`` is refused before it starts; ``max_hours=None`` accepts any time."""
+    from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES, METHODS, POLICIES, check_samples, rows_for
     from tubewright.optimizer.screening.screen import screen as _screen
+    from tubewright.optimizer.screening.uncertain import read_uncertain, salib_problem
 
     if method not in METHODS:
-        raise ValueError(f"method must be one of {', '.join(METHODS)}")
-    n = DEFAULT_SAMPLES[method] if samples is None else int(samples)
-    if n < 2:
-        raise ValueError("samples must be at least 2")
+        raise option_error("--method", f"{method!r} is not allowed; allowed: {', '.join(METHODS)}")
+    if policy not in POLICIES:
+        raise option_error("--policy", f"{policy!r} is not allowed; allowed: {', '.join(POLICIES)}")
+    if workers < 1:
+        raise option_error("--workers", f"must be at least 1, got {workers}")
+    n = DEFAULT_SAMPLES[method] if samples is None else samples
+    problem = check_samples(method, n)
+    if problem:
+        raise option_error("--samples", problem)
+    if max_hours is not None:
+        rows = rows_for(salib_problem(read_uncertain(case)), method, n)
+        hours = estimated_hours(case, rows, reoptimise, batched, workers)
+        if hours > max_hours:
+            raise option_error("--samples", f"{rows} evaluations would take about {hours:.2g} h (estimated from a "
+                               f"timed probe), more than the budget of {max_hours:g} h: use fewer samples, or "
+                               "raise the budget (--max-hours H, or --yes to accept any time)")
     return _screen(case, method, n, seed, policy, batched=batched, progress=progress, reoptimise=reoptimise,
                    workers=workers)
+
+
+def estimated_hours(case, rows: int, reoptimise: bool, batched: bool, workers: int) -> float:
+    """Hours for ``rows`` evaluations, from timing a probe (skipped for screenings below a few hundred
+    evaluations, which take seconds). A probe costs at most a few seconds."""
+    import time
+
+    import numpy as np
+    from tubewright.optimizer.screening.evaluation import evaluate
+    from tubewright.optimizer.screening.uncertain import read_uncertain
+
+    if rows <= PROBE_FREE_ROWS:
+        return 0.0
+    items = read_uncertain(case)
+    probe = np.random.default_rng(0).uniform(0.05, 0.95, size=(PROBE_ROWS, len(items)))
+    t0 = time.perf_counter()
+    if reoptimise:
+        from tubewright.optimizer.screening.reoptimise import reoptimise_evaluator
+
+        reoptimise_evaluator(case, items)(probe[:2])
+        per_row = (time.perf_counter() - t0) / 2
+    else:
+        evaluate(case, items, probe, batched=batched)
+        per_row = (time.perf_counter() - t0) / PROBE_ROWS / max(1, min(workers, 2) * 0.9)
+    return per_row * rows / 3600.0

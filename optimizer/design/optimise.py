@@ -7,6 +7,7 @@ import math
 import time
 
 import pyomo.environ as pyo
+from tubewright.models.errors import ComputationFailed
 from tubewright.models.outcomes import Reason, Status
 from tubewright.models.simulator import simulate
 from tubewright.optimizer.design.outcome import OptimizationResult
@@ -26,7 +27,12 @@ def optimise(case, nfe=None, ncp=None) -> OptimizationResult:
                                   "simulated, not optimised", spec.goal, None, simulation=sim,
                                   reason_code=Reason.NOTHING_FREE)
     notes = []
-    problem.build()
+    try:
+        problem.build()
+    except ComputationFailed as err:
+        sim = simulate(design_case(case, problem.start_values()), checks=False)
+        return OptimizationResult(Status.FAILED, str(err), spec.goal, None, simulation=sim, reason_code=err.code,
+                                  hint="start from a design that can be simulated: set design.*.start")
     outcome = problem.solve_nlp()
     solves = [outcome]
     if outcome.success and "tube_count" in spec.free and spec.round_tube_count:

@@ -12,8 +12,10 @@ from dataclasses import replace
 import numpy as np
 import pyomo.environ as pyo
 from tubewright.models.backend import NUMPY, pyomo_backend
+from tubewright.models.errors import ComputationFailed
 from tubewright.models.figures import POINTWISE, critical_reaction, layout_figures
 from tubewright.models.limits import LIMITS
+from tubewright.models.outcomes import Reason
 from tubewright.models.simulator import simulate
 from tubewright.models.state import TAIL
 from tubewright.models.summary import conversion, key_lost, product_figures
@@ -66,7 +68,8 @@ class DesignProblem:
         start_case = design_case(self.case, start or self.start_values())
         sim = simulate(start_case, checks=False)
         if not sim.columns:
-            raise RuntimeError(f"the starting design cannot be simulated: {sim.reason}")
+            raise ComputationFailed(Reason.START_NOT_SIMULATED,
+                                    f"the starting design cannot be simulated: {sim.reason}")
         m, pcase = build_tube_model(self.case, self.spec, self.nfe, self.ncp)
         for name, comp in m.design.items():
             if name in self.spec.free:

@@ -25,6 +25,19 @@ from tubewright.optimizer.screening.uncertain import salib_problem
 METHODS = ("morris", "sobol")
 POLICIES = ("report", "censor")
 DEFAULT_SAMPLES = {"morris": 20, "sobol": 1024}  # Morris trajectories or Sobol base samples, for every verb
+MAX_SAMPLES = {"morris": 10_000, "sobol": 2**18}  # beyond these a screening of a reactor takes days
+
+
+def check_samples(method: str, n) -> str | None:
+    """Why ``n`` is not an allowed number of Morris trajectories or Sobol base samples, or None. Sobol
+    sequences balance only at powers of two (SALib's Saltelli/Sobol sampling), so other counts are refused."""
+    if isinstance(n, bool) or not isinstance(n, int):
+        return f"must be a whole number, got {n!r}"
+    if not 2 <= n <= MAX_SAMPLES[method]:
+        return f"must be from 2 to {MAX_SAMPLES[method]} for {method}, got {n}"
+    if method == "sobol" and n & (n - 1):
+        return f"Sobol base samples must be a power of two (the sequence balances only there), got {n}"
+    return None
 
 
 def analyse(problem, method, unit_x, y, seed: int) -> dict:

@@ -7,7 +7,8 @@ import time
 
 import numpy as np
 import pyomo.environ as pyo
-from tubewright.models.errors import CaseError
+from tubewright.models.errors import CaseError, ComputationFailed
+from tubewright.models.outcomes import Reason
 from tubewright.optimizer.design.problem import DesignProblem
 from tubewright.optimizer.screening.evaluation import Evaluations
 from tubewright.optimizer.screening.sampling import to_parameters
@@ -41,7 +42,8 @@ def reoptimise_evaluator(case, items, progress=None):
         raise CaseError(case.source, "design", "re-optimisation needs at least one free design variable")
     first = problem.solve_nlp()
     if not first.success:
-        raise CaseError(case.source, "design", f"the nominal design problem does not solve: {first.status_name}")
+        raise ComputationFailed(Reason.SOLVER_FAILED, f"{case.source}: the nominal design problem does not solve "
+                                f"({first.status_name}), so there is no optimum to re-optimise from")
     setters = [parameter_setter(problem, case, u.path) for u in items]
     names = list(problem.spec.free)
 

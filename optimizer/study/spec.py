@@ -23,16 +23,18 @@ from __future__ import annotations
 import hashlib
 import itertools
 import json
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
 from tubewright.models.casefile import apply_overrides, build_case, read_toml, resolve_includes
-from tubewright.models.errors import CaseError
-from tubewright.models.units import registry
-from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES
+from tubewright.models.errors import CaseError, suggest
+from tubewright.models.units import parse
+from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES, METHODS, POLICIES, check_samples
 
 from tubewright import __version__
 
+MAX_SWEEP = 100_000  # points of one Latin hypercube
 KINDS = ("simulate", "sweep", "optimize", "pareto", "screen")
 TASK_KEYS = {"name", "kind", "case", "set", "timeout", "grid", "latin_hypercube", "starts", "seed", "ideal",
              "points", "method", "samples", "policy"}
@@ -70,19 +72,27 @@ def task_identity(kind, options, case_data) -> str:
 
 
 def _numeric(value, source, key):
-    """A sweep value must be a number or a quantity with units."""
-    if isinstance(value, bool):
+    """A sweep value must be a finite number or a quantity with units (models.units.parse: no arithmetic).
+    Returns the number or the pint Quantity."""
+    if isinstance(value, bool) or not isinstance(value, (int, float, str)):
         raise CaseError(source, key, f"a sweep needs numeric values, got {value!r}")
-    if isinstance(value, (int, float)):
-        return
     if isinstance(value, str):
         try:
-            registry().Quantity(value)
-            float(registry().Quantity(value).magnitude)
-            return
-        except Exception as err:
-            raise CaseError(source, key, f'a sweep needs numbers or quantities with units, got "{value}"') from err
-    raise CaseError(source, key, f"a sweep needs numeric values, got {value!r}")
+            return parse(value, source, key)
+        except CaseError as err:
+            raise CaseError(source, key, f"a sweep needs numbers or quantities with units: {err.detail}") from err
+    if not math.isfinite(value):
+        raise CaseError(source, key, f"a sweep needs finite numbers, got {value!r}")
+    return value
+
+
+def _whole(t, key, default, src, where, low=0, high=None):
+    """A whole-number option of a task, checked like a case key."""
+    value = t.get(key, default)
+    if isinstance(value, bool) or not isinstance(value, int) or value < low or (high is not None and value > high):
+        allowed = f"a whole number from {low}" + (f" to {high}" if high is not None else "")
+        raise CaseError(src, f"{where}.{key}", f"must be {allowed}, got {value!r}")
+    return value
 
 
 def load_study(path) -> Study:
@@ -101,13 +111,9 @@ def load_study(path) -> Study:
         where = f"task[{i}]"
         unknown = [k for k in t if k not in TASK_KEYS]
         if unknown:
-            from tubewright.models.errors import suggest
-
             raise CaseError(src, f"{where}.{unknown[0]}", f"unknown key{suggest(unknown[0], TASK_KEYS)}")
         kind = t.get("kind")
         if kind not in KINDS:
-            from tubewright.models.errors import suggest
-
             raise CaseError(src, f"{where}.kind", f'"{kind}" is not allowed{suggest(str(kind), KINDS)}; allowed: '
                             f"{', '.join(KINDS)}")
         base_name = t.get("case", data.get("base"))
@@ -165,22 +171,25 @@ def _sweep_points(t, src, where, study_seed):
         return [dict(zip(keys, combo)) for combo in itertools.product(*(grid[k] for k in keys))]
     if "latin_hypercube" in t:
         lh = t["latin_hypercube"]
-        n, seed = lh.get("samples"), lh.get("seed", study_seed)
+        if not isinstance(lh, dict):
+            raise CaseError(src, f"{where}.latin_hypercube", "must be a table { samples, seed, ranges }")
+        n = _whole(lh, "samples", None, src, f"{where}.latin_hypercube", low=1, high=MAX_SWEEP)
+        seed = _whole(lh, "seed", study_seed, src, f"{where}.latin_hypercube")
         ranges = lh.get("ranges", {})
-        if not isinstance(n, int) or n < 1:
-            raise CaseError(src, f"{where}.latin_hypercube.samples", "must be a whole number >= 1")
         if not ranges:
             raise CaseError(src, f"{where}.latin_hypercube.ranges", "missing: { KEY = [low, high] }")
         from scipy.stats import qmc
 
+        if not isinstance(ranges, dict):
+            raise CaseError(src, f"{where}.latin_hypercube.ranges", "must be a table { KEY = [low, high] }")
         u = qmc.LatinHypercube(d=len(ranges), seed=int(seed)).random(n)
         points = [dict() for _ in range(n)]
-        for j, (key, (lo, hi)) in enumerate(ranges.items()):
-            _numeric(lo, src, f"{where}.latin_hypercube.ranges.{key}")
-            _numeric(hi, src, f"{where}.latin_hypercube.ranges.{key}")
-            ureg = registry()
-            qlo = ureg.Quantity(lo) if isinstance(lo, str) else lo
-            qhi = ureg.Quantity(hi) if isinstance(hi, str) else hi
+        for j, (key, pair) in enumerate(ranges.items()):
+            where_key = f"{where}.latin_hypercube.ranges.{key}"
+            if not isinstance(pair, list) or len(pair) != 2:
+                raise CaseError(src, where_key, "must be [low, high]")
+            lo, hi = pair
+            qlo, qhi = _numeric(lo, src, where_key), _numeric(hi, src, where_key)
             whole = isinstance(lo, int) and isinstance(hi, int)
             for i in range(n):
                 v = qlo + (qhi - qlo) * float(u[i, j])
@@ -192,13 +201,25 @@ def _sweep_points(t, src, where, study_seed):
 
 def _options(t, kind, src, where) -> dict:
     if kind == "optimize":
-        return {"starts": int(t.get("starts", 0)), "seed": int(t.get("seed", 0)), "ideal": bool(t.get("ideal", False))}
+        ideal = t.get("ideal", False)
+        if not isinstance(ideal, bool):
+            raise CaseError(src, f"{where}.ideal", f"must be true or false, got {ideal!r}")
+        return {"starts": _whole(t, "starts", 0, src, where, high=1000), "seed": _whole(t, "seed", 0, src, where),
+                "ideal": ideal}
     if kind == "pareto":
-        return {"points": int(t.get("points", 5))}
+        return {"points": _whole(t, "points", 5, src, where, low=2, high=1000)}
     if kind == "screen":
         method = t.get("method", "morris")
-        if method not in ("morris", "sobol"):
-            raise CaseError(src, f"{where}.method", 'allowed: "morris", "sobol"')
-        return {"method": method, "samples": int(t.get("samples", DEFAULT_SAMPLES[method])),
-                "seed": int(t.get("seed", 0)), "policy": t.get("policy", "report")}
+        if method not in METHODS:
+            raise CaseError(src, f"{where}.method", f"{method!r} is not allowed; allowed: "
+                            + ", ".join(f'"{m}"' for m in METHODS))
+        policy = t.get("policy", "report")
+        if policy not in POLICIES:
+            raise CaseError(src, f"{where}.policy", f"{policy!r} is not allowed{suggest(str(policy), POLICIES)}; "
+                            "allowed: " + ", ".join(f'"{m}"' for m in POLICIES))
+        samples = _whole(t, "samples", DEFAULT_SAMPLES[method], src, where, low=2)
+        problem = check_samples(method, samples)
+        if problem:
+            raise CaseError(src, f"{where}.samples", problem)
+        return {"method": method, "samples": samples, "seed": _whole(t, "seed", 0, src, where), "policy": policy}
     return {}

@@ -71,6 +71,9 @@ class Numerics:
     method: str = "LSODA"  # switches between Adams and BDF by stiffness; gets the Jacobian
     temperature_ceiling: float = 1500.0  # K
     min_pressure: float = 1.0e3  # Pa
+    finite_elements: int = 40  # collocation model
+    collocation_points: int = 3
+    verify_tolerance: float = 0.01  # largest relative deviation of the optimum from the integrator
 
 
 @dataclass(frozen=True)

@@ -5,6 +5,7 @@ The keys are documented in docs/case-reference.md; this module is the one place 
 from __future__ import annotations
 
 import copy
+import math
 import sys
 from pathlib import Path
 
@@ -16,7 +17,7 @@ from .errors import CaseError, suggest
 from .limits import LIMITS, PAIRS
 from .reactions import Adsorption, Reaction, parse_equation, rate_units
 from .thermo import ConstantCp, Nasa7, Shomate, Species, cp_problem
-from .units import quantity, to_si
+from .units import DIMENSIONS, LARGEST, quantity, to_si
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -27,14 +28,31 @@ SECTIONS = ("title", "note", "include", "chemistry", "feed", "tube", "bed", "coo
             "limits", "numerics", "design", "goal", "costs", "uncertain")
 
 
+MAX_FILE_BYTES = 1_000_000  # a case or study file is text of a few kB
+MAX_INCLUDE_DEPTH = 16
+
+
 def read_toml(path: Path) -> dict:
+    """A TOML file as a dict: a regular file of at most MAX_FILE_BYTES, UTF-8 text without NUL bytes."""
+    path = Path(path)
     try:
-        with open(path, "rb") as fh:
-            return tomllib.load(fh)
-    except FileNotFoundError as err:
-        raise CaseError(path, "", "file not found") from err
+        if not path.is_file():
+            raise CaseError(path, "", "not a regular file" if path.exists() else "file not found")
+        if path.stat().st_size > MAX_FILE_BYTES:
+            raise CaseError(path, "", f"larger than {MAX_FILE_BYTES} bytes: not a case file")
+        raw = path.read_bytes()
+    except OSError as err:
+        raise CaseError(path, "", f"cannot be read ({err.strerror or err})") from err
+    if b"\x00" in raw:
+        raise CaseError(path, "", "contains a NUL byte: not a text file")
+    try:
+        return tomllib.loads(raw.decode("utf-8"))
+    except UnicodeDecodeError as err:
+        raise CaseError(path, "", f"not UTF-8 text ({err.reason} at byte {err.start})") from err
     except tomllib.TOMLDecodeError as err:
         raise CaseError(path, "", f"not valid TOML: {err}") from err
+    except RecursionError as err:
+        raise CaseError(path, "", "nested too deeply to be a case file") from err
 
 
 def deep_merge(base: dict, top: dict) -> dict:
@@ -53,16 +71,22 @@ def resolve_includes(path: Path, seen: tuple = ()) -> dict:
     path = Path(path).resolve()
     if path in seen:
         raise CaseError(path, "include", "includes itself (a cycle of includes)")
+    if len(seen) >= MAX_INCLUDE_DEPTH:
+        raise CaseError(path, "include", f"includes nested deeper than {MAX_INCLUDE_DEPTH} files")
     data = read_toml(path)
     inc = data.pop("include", None)
     if inc is None:
         return data
-    if not isinstance(inc, str):
-        raise CaseError(path, "include", "must be a file name string")
+    if not isinstance(inc, str) or not inc.strip():
+        raise CaseError(path, "include", "must be the name of a TOML file")
     base_path = (path.parent / inc).resolve()
-    if not base_path.exists():
-        raise CaseError(path, "include", f'included file "{inc}" not found (looked at {base_path})')
-    return deep_merge(resolve_includes(base_path, seen + (path,)), data)
+    if not base_path.is_file():
+        why = "is not a regular file" if base_path.exists() else "not found"
+        raise CaseError(path, "include", f'included file "{inc}" {why} (looked at {base_path})')
+    try:
+        return deep_merge(resolve_includes(base_path, seen + (path,)), data)
+    except RecursionError as err:
+        raise CaseError(path, "", "tables nested too deeply to be a case file") from err
 
 
 def apply_overrides(data: dict, overrides: dict, source: str) -> dict:
@@ -113,15 +137,19 @@ class Table:
             return default
         return self.data[key]
 
-    def quantity(self, key, dimension, default=None, required=True, positive=True, minimum=None):
+    def quantity(self, key, dimension, default=None, required=True, positive=True, minimum=None, maximum=None):
+        """A quantity in SI; ``minimum`` and ``maximum`` are SI bounds (physically meaningful ranges)."""
         value = self.raw(key, required=required and default is None)
         if value is None:
             return default
         si = quantity(value, dimension, self.source, self.key(key))
+        unit = DIMENSIONS[dimension]
         if positive and not si > 0:
             raise CaseError(self.source, self.key(key), f"must be greater than zero, got {value!r}")
         if minimum is not None and si < minimum:
-            raise CaseError(self.source, self.key(key), f"must be at least {minimum}, got {value!r}")
+            raise CaseError(self.source, self.key(key), f"must be at least {minimum:g} {unit}, got {value!r}")
+        if maximum is not None and si > maximum:
+            raise CaseError(self.source, self.key(key), f"must be at most {maximum:g} {unit}, got {value!r}")
         return si
 
     def number(self, key, default=None, required=True, low=None, high=None, integer=False):
@@ -130,6 +158,8 @@ class Table:
             return default
         if isinstance(value, bool) or not isinstance(value, (int, float)):
             raise CaseError(self.source, self.key(key), f"must be a number, got {value!r}")
+        if not math.isfinite(value) or abs(value) > LARGEST:
+            raise CaseError(self.source, self.key(key), f"must be a finite number, got {value!r}")
         if integer and (not float(value).is_integer()):
             raise CaseError(self.source, self.key(key), f"must be a whole number, got {value!r}")
         if (low is not None and value < low) or (high is not None and value > high):
@@ -193,29 +223,6 @@ def build_case(data: dict, source: str) -> C.Case:
         raise CaseError(source, "chemistry.product", f'"{product}" is not a species{suggest(product, names)}')
     chem.finish()
 
-    feed = _feed(top.sub("feed"), species, phase, source)
-    tube_t = top.sub("tube", {"inner_diameter", "length", "count", "wall_thickness", "wall_conductivity",
-                              "roughness"})
-    tube = C.Tube(
-        inner_diameter=tube_t.quantity("inner_diameter", "length"),
-        length=tube_t.quantity("length", "length"),
-        count=tube_t.number("count", default=1, low=1, integer=True),
-        wall_thickness=tube_t.quantity("wall_thickness", "length", default=2.0e-3),
-        wall_conductivity=tube_t.quantity("wall_conductivity", "thermal_conductivity", default=16.0),
-        roughness=tube_t.quantity("roughness", "length", default=4.5e-5, positive=False, minimum=0.0),
-    )
-    tube_t.finish()
-    bed = None
-    if top.has("bed"):
-        bed_t = top.sub("bed", {"particle_diameter", "voidage", "density"})
-        bed = C.Bed(bed_t.quantity("particle_diameter", "length"),
-                    bed_t.number("voidage", low=0.2, high=0.95), bed_t.quantity("density", "density"))
-        bed_t.finish()
-        if bed.particle_diameter >= tube.inner_diameter:
-            raise CaseError(source, "bed.particle_diameter", "must be smaller than tube.inner_diameter")
-    coolant = _coolant(top.sub("coolant"), feed, source)
-    heat = _heat_transfer(top.sub("heat_transfer", required=False), coolant, bed, feed, source)
-    limits = _limits(top.sub("limits", required=False), species, product, coolant, source)
     num_t = top.sub("numerics", {"rtol", "atol", "method", "temperature_ceiling", "min_pressure",
                                  "finite_elements", "collocation_points", "verify_tolerance"}, required=False)
     numerics = C.Numerics()
@@ -225,9 +232,43 @@ def build_case(data: dict, source: str) -> C.Case:
             atol=num_t.number("atol", default=numerics.atol, low=1e-16, high=1.0),
             method=num_t.choice("method", ("Radau", "BDF", "LSODA"), default=numerics.method),
             temperature_ceiling=num_t.quantity("temperature_ceiling", "temperature",
-                                               default=numerics.temperature_ceiling),
-            min_pressure=num_t.quantity("min_pressure", "pressure", default=numerics.min_pressure),
+                                               default=numerics.temperature_ceiling, minimum=300.0, maximum=6000.0),
+            min_pressure=num_t.quantity("min_pressure", "pressure", default=numerics.min_pressure, minimum=1.0,
+                                        maximum=1e8),
+            finite_elements=num_t.number("finite_elements", default=numerics.finite_elements, low=2, high=2000,
+                                         integer=True),
+            collocation_points=num_t.number("collocation_points", default=numerics.collocation_points, low=1,
+                                            high=8, integer=True),
+            verify_tolerance=num_t.number("verify_tolerance", default=numerics.verify_tolerance, low=1e-12,
+                                          high=1.0),
         )
+        num_t.finish()
+    feed = _feed(top.sub("feed"), species, phase, numerics, source)
+    _check_key_and_product(reactions, feed, names, key, product, source)
+    tube_t = top.sub("tube", {"inner_diameter", "length", "count", "wall_thickness", "wall_conductivity",
+                              "roughness"})
+    tube = C.Tube(
+        inner_diameter=tube_t.quantity("inner_diameter", "length", minimum=1e-4, maximum=10.0),
+        length=tube_t.quantity("length", "length", minimum=1e-3, maximum=1e4),
+        count=tube_t.number("count", default=1, low=1, high=1e7, integer=True),
+        wall_thickness=tube_t.quantity("wall_thickness", "length", default=2.0e-3, maximum=0.1),
+        wall_conductivity=tube_t.quantity("wall_conductivity", "thermal_conductivity", default=16.0, maximum=1e4),
+        roughness=tube_t.quantity("roughness", "length", default=4.5e-5, positive=False, minimum=0.0,
+                                  maximum=0.01),
+    )
+    tube_t.finish()
+    bed = None
+    if top.has("bed"):
+        bed_t = top.sub("bed", {"particle_diameter", "voidage", "density"})
+        bed = C.Bed(bed_t.quantity("particle_diameter", "length", minimum=1e-6, maximum=0.5),
+                    bed_t.number("voidage", low=0.2, high=0.95),
+                    bed_t.quantity("density", "density", maximum=1e4))
+        bed_t.finish()
+        if bed.particle_diameter >= tube.inner_diameter:
+            raise CaseError(source, "bed.particle_diameter", "must be smaller than tube.inner_diameter")
+    coolant = _coolant(top.sub("coolant"), feed, source)
+    heat = _heat_transfer(top.sub("heat_transfer", required=False), coolant, bed, feed, source)
+    limits = _limits(top.sub("limits", required=False), species, product, coolant, source)
     return C.Case(source=source, title=title, phase=phase, species=tuple(species), reactions=tuple(reactions),
                   key_reactant=key, product=product or None, feed=feed, tube=tube, bed=bed, coolant=coolant,
                   heat_transfer=heat, numerics=numerics, limits=limits,
@@ -236,7 +277,10 @@ def build_case(data: dict, source: str) -> C.Case:
 
 def _cp_model(value, source, key):
     if isinstance(value, str):
-        return ConstantCp(quantity(value, "molar_heat_capacity", source, key))
+        cp = quantity(value, "molar_heat_capacity", source, key)
+        if not 0.0 < cp <= 1e4:
+            raise CaseError(source, key, f"a heat capacity must be above 0 and at most 10^4 J/mol/K, got {value!r}")
+        return ConstantCp(cp)
     t = Table(value, source, key, {"constant", "nasa7", "shomate", "t_min", "t_max"})
     kinds = [k for k in ("constant", "nasa7", "shomate") if t.has(k)]
     if len(kinds) != 1:
@@ -244,9 +288,9 @@ def _cp_model(value, source, key):
                         'as "30 J/mol/K")')
     kind = kinds[0]
     if kind == "constant":
-        model = ConstantCp(t.quantity("constant", "molar_heat_capacity"),
-                           t.quantity("t_min", "temperature", default=200.0),
-                           t.quantity("t_max", "temperature", default=3000.0))
+        model = ConstantCp(t.quantity("constant", "molar_heat_capacity", maximum=1e4),
+                           t.quantity("t_min", "temperature", default=200.0, maximum=2e4),
+                           t.quantity("t_max", "temperature", default=3000.0, maximum=2e4))
     elif kind == "nasa7":
         n = t.sub("nasa7", {"low", "high", "t_mid", "t_min", "t_max"})
         low, high = (_coefficients(n.raw(k, required=True), 7, source, n.key(k)) for k in ("low", "high"))
@@ -278,6 +322,8 @@ def _coefficients(value, count, source, key):
     if (not isinstance(value, list) or len(value) != count
             or not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in value)):
         raise CaseError(source, key, f"must be a list of {count} numbers")
+    if not all(math.isfinite(v) and abs(v) <= 1e30 for v in value):
+        raise CaseError(source, key, f"must be finite numbers (at most 1e30 in size), got {value!r}")
     return tuple(float(v) for v in value)
 
 
@@ -295,13 +341,13 @@ def _species(table: Table, source):
             except ValueError as err:
                 raise CaseError(source, t.key("formula"), str(err)) from err
         if t.has("molar_mass"):
-            mm = t.quantity("molar_mass", "molar_mass")
+            mm = t.quantity("molar_mass", "molar_mass", maximum=10.0)
         elif elements:
             mm = formula_mass(elements)
         else:
             raise CaseError(source, t.key("molar_mass"), "missing: give molar_mass or formula")
-        hf = t.quantity("heat_of_formation", "molar_energy", default=0.0, positive=False)
-        s0 = t.quantity("entropy", "molar_entropy", default=None, required=False)
+        hf = t.quantity("heat_of_formation", "molar_energy", default=0.0, positive=False, minimum=-1e8, maximum=1e8)
+        s0 = t.quantity("entropy", "molar_entropy", default=None, required=False, maximum=1e5)
         cp_value = t.raw("cp", required=True)
         cp = _cp_model(cp_value, source, t.key("cp"))
         t.finish()
@@ -354,8 +400,8 @@ def _reactions(table: Table, species, phase, has_bed, source):
             if s not in smap:
                 raise CaseError(source, f"{t.key('orders')}.{s}", f'order for a species that is not in '
                                 f"[chemistry.species]{suggest(s, names)}")
-            if isinstance(o, bool) or not isinstance(o, (int, float)) or o < 0:
-                raise CaseError(source, f"{t.key('orders')}.{s}", f"must be a number >= 0, got {o!r}")
+            if isinstance(o, bool) or not isinstance(o, (int, float)) or not 0 <= o <= 10:
+                raise CaseError(source, f"{t.key('orders')}.{s}", f"must be a number from 0 to 10, got {o!r}")
             orders[s] = float(o)
         if reversible:
             for s in set(orders) | set(nu):
@@ -367,9 +413,10 @@ def _reactions(table: Table, species, phase, has_bed, source):
         k_ref = to_si(t.raw("k_ref", required=True), rate_units(basis, driving, total_order), source, t.key("k_ref"))
         if not k_ref > 0:
             raise CaseError(source, t.key("k_ref"), "must be greater than zero")
-        ea = t.quantity("activation_energy", "molar_energy", positive=False, minimum=0.0)
-        t_ref = t.quantity("t_ref", "temperature")
-        dh = t.quantity("heat_of_reaction", "molar_energy", default=None, required=False, positive=False)
+        ea = t.quantity("activation_energy", "molar_energy", positive=False, minimum=0.0, maximum=2e6)
+        t_ref = t.quantity("t_ref", "temperature", minimum=100.0, maximum=5000.0)
+        dh = t.quantity("heat_of_reaction", "molar_energy", default=None, required=False, positive=False,
+                        minimum=-1e8, maximum=1e8)
         k_eq = None
         if t.has("equilibrium_constant"):
             if not reversible:
@@ -391,13 +438,14 @@ def _reactions(table: Table, species, phase, has_bed, source):
             s = a.text("species")
             if s not in smap:
                 raise CaseError(source, a.key("species"), f'unknown species "{s}"{suggest(s, names)}')
-            n = a.number("exponent", default=1.0, low=0.0)
+            n = a.number("exponent", default=1.0, low=0.0, high=10.0)
             unit = ("mol/m^3" if driving == "concentration" else "Pa")
             ads.append(Adsorption(s, to_si(a.raw("k_ref", required=True), f"1/({unit})**{n!r}", source,
                                            a.key("k_ref")),
-                                  a.quantity("heat", "molar_energy", default=0.0, positive=False), n))
+                                  a.quantity("heat", "molar_energy", default=0.0, positive=False, minimum=-1e8,
+                                             maximum=1e8), n))
             a.finish()
-        inhibition = t.number("inhibition_exponent", default=1.0, low=0.0)
+        inhibition = t.number("inhibition_exponent", default=1.0, low=0.0, high=10.0)
         t.finish()
         out.append(Reaction(rname, eq, nu, reversible, k_ref, ea, t_ref, orders, driving, basis, tuple(ads),
                             inhibition, k_eq, dh))
@@ -406,45 +454,76 @@ def _reactions(table: Table, species, phase, has_bed, source):
     return out
 
 
-def _feed(t: Table, species, phase, source):
+def _feed(t: Table, species, phase, numerics, source):
     t.allowed = {"molar_flow", "mass_flow", "composition", "molar_flows", "temperature", "pressure",
                  "viscosity", "thermal_conductivity", "density", "diffusivity"}
     names = [s.name for s in species]
     flows = [0.0] * len(species)
+    for one, other in (("composition", "molar_flows"), ("molar_flow", "mass_flow"), ("molar_flows", "molar_flow"),
+                       ("molar_flows", "mass_flow")):
+        if t.has(one) and t.has(other):
+            raise CaseError(source, t.key(other), f"give {one} or {other}, not both")
     if t.has("molar_flows"):
         table = t.sub("molar_flows", set(names))
         for name in table.data:
             if name not in names:
                 raise CaseError(source, table.key(name), f"not a species{suggest(name, names)}")
-            flows[names.index(name)] = table.quantity(name, "molar_flow", positive=False, minimum=0.0)
+            flows[names.index(name)] = table.quantity(name, "molar_flow", positive=False, minimum=0.0, maximum=1e6)
     else:
         comp = t.sub("composition")
         fractions = [0.0] * len(species)
         for name, y in comp.data.items():
             if name not in names:
                 raise CaseError(source, comp.key(name), f"not a species{suggest(name, names)}")
-            if isinstance(y, bool) or not isinstance(y, (int, float)) or y < 0:
-                raise CaseError(source, comp.key(name), f"mole fraction must be a number >= 0, got {y!r}")
+            if isinstance(y, bool) or not isinstance(y, (int, float)) or not 0 <= y <= 1:
+                raise CaseError(source, comp.key(name), f"mole fraction must be a number from 0 to 1, got {y!r}")
             fractions[names.index(name)] = float(y)
         total = sum(fractions)
         if abs(total - 1.0) > 1e-3:
             raise CaseError(source, comp.key(""), f"mole fractions sum to {total:.6g}; allowed: 1 within 0.001")
         fractions = [y / total for y in fractions]
         if t.has("molar_flow"):
-            ft = t.quantity("molar_flow", "molar_flow")
+            ft = t.quantity("molar_flow", "molar_flow", maximum=1e6)
         else:
-            mdot = t.quantity("mass_flow", "mass_flow")
+            mdot = t.quantity("mass_flow", "mass_flow", maximum=1e5)
             ft = mdot / sum(y * s.molar_mass for y, s in zip(fractions, species))
         flows = [y * ft for y in fractions]
-    if not sum(flows) > 0:
-        raise CaseError(source, "feed", "total feed flow must be greater than zero")
-    density = t.quantity("density", "density", default=None, required=phase == "liquid")
-    feed = C.Feed(tuple(flows), t.quantity("temperature", "temperature"), t.quantity("pressure", "pressure"),
-                  t.quantity("viscosity", "viscosity"),
-                  t.quantity("thermal_conductivity", "thermal_conductivity", default=None, required=False),
-                  density, t.quantity("diffusivity", "diffusivity", default=None, required=False))
+    if not sum(flows) >= MIN_FEED:
+        raise CaseError(source, "feed", f"total feed flow must be at least {MIN_FEED:g} mol/s (the numerical floor)")
+    density = t.quantity("density", "density", default=None, required=phase == "liquid", minimum=1e-3, maximum=3e4)
+    temperature = t.quantity("temperature", "temperature", minimum=150.0,
+                             maximum=numerics.temperature_ceiling - 1.0)
+    for sp in species:
+        lo, hi = sp.cp_model.t_min, sp.cp_model.t_max
+        if not lo <= temperature <= hi:
+            raise CaseError(source, t.key("temperature"), f"{temperature:.6g} K lies outside the heat-capacity range "
+                            f"of {sp.name} ({lo:g} to {hi:g} K)")
+    feed = C.Feed(tuple(flows), temperature,
+                  t.quantity("pressure", "pressure", minimum=numerics.min_pressure, maximum=1e9),
+                  t.quantity("viscosity", "viscosity", minimum=1e-12, maximum=1e3),
+                  t.quantity("thermal_conductivity", "thermal_conductivity", default=None, required=False,
+                             minimum=1e-4, maximum=1e4),
+                  density, t.quantity("diffusivity", "diffusivity", default=None, required=False, minimum=1e-14,
+                                      maximum=1.0))
     t.finish()
     return feed
+
+
+MIN_FEED = 1e-12  # mol/s: below this the balances are numerically meaningless
+
+
+def _check_key_and_product(reactions, feed, names, key, product, source):
+    """The key reactant is fed and consumed by a reaction; the product is another species that a reaction
+    forms."""
+    if not feed.molar_flows[names.index(key)] > 0:
+        raise CaseError(source, "chemistry.key_reactant", f'"{key}" is not in the feed: conversion is undefined')
+    if not any(rx.nu.get(key, 0.0) < 0 for rx in reactions):
+        raise CaseError(source, "chemistry.key_reactant", f'no reaction consumes "{key}"')
+    if product:
+        if product == key:
+            raise CaseError(source, "chemistry.product", "must differ from chemistry.key_reactant")
+        if not any(rx.nu.get(product, 0.0) > 0 for rx in reactions):
+            raise CaseError(source, "chemistry.product", f'no reaction forms "{product}"')
 
 
 def _coolant(t: Table, feed, source):
@@ -461,7 +540,7 @@ def _coolant(t: Table, feed, source):
                             f"{', '.join(mode.keys)}")
     temperature = mass_flow = cp = pressure = None
     if mode.temperature_source == "given":
-        temperature = t.quantity("temperature", "temperature")
+        temperature = t.quantity("temperature", "temperature", minimum=100.0, maximum=6000.0)
     elif mode.temperature_source == "feed":
         temperature = feed.temperature
     elif mode.temperature_source == "saturation":
@@ -471,8 +550,8 @@ def _coolant(t: Table, feed, source):
         except ValueError as err:
             raise CaseError(source, "coolant.pressure", str(err)) from err
     if mode.has_coolant_flow:
-        mass_flow = t.quantity("mass_flow", "mass_flow")
-        cp = t.quantity("cp", "specific_heat_capacity")
+        mass_flow = t.quantity("mass_flow", "mass_flow", minimum=1e-9, maximum=1e6)
+        cp = t.quantity("cp", "specific_heat_capacity", minimum=10.0, maximum=1e5)
     t.finish()
     return C.Coolant(mode.name, temperature, mass_flow, cp, pressure)
 
@@ -487,9 +566,10 @@ def _heat_transfer(t: Table | None, coolant, bed, feed, source):
         raise CaseError(source, "heat_transfer", f'missing: coolant mode "{coolant.mode}" needs heat_transfer.overall '
                         "or heat_transfer.outside (with the inside correlation)")
     t.allowed = {"overall", "inside", "outside", "multiplier"}
-    multiplier = t.number("multiplier", default=1.0, low=0.0)
+    multiplier = t.number("multiplier", default=1.0, low=0.0, high=100.0)
     if t.has("overall"):
-        ht = C.HeatTransfer(overall=t.quantity("overall", "heat_transfer_coefficient"), multiplier=multiplier)
+        ht = C.HeatTransfer(overall=t.quantity("overall", "heat_transfer_coefficient", maximum=1e6),
+                            multiplier=multiplier)
     else:
         default = "leva" if bed is not None else "gnielinski"
         inside = t.choice("inside", C.INSIDE_CORRELATIONS, default=default)
@@ -499,7 +579,7 @@ def _heat_transfer(t: Table | None, coolant, bed, feed, source):
         if feed.thermal_conductivity is None:
             raise CaseError(source, "feed.thermal_conductivity", "missing: needed by the inside heat-transfer "
                             "correlation")
-        ht = C.HeatTransfer(inside=inside, outside=t.quantity("outside", "heat_transfer_coefficient"),
+        ht = C.HeatTransfer(inside=inside, outside=t.quantity("outside", "heat_transfer_coefficient", maximum=1e6),
                             multiplier=multiplier)
     t.finish()
     return ht

@@ -24,7 +24,7 @@ def test_first_order_isothermal_liquid():
 
 def test_second_order_isothermal_liquid():
     # Analytic: A + B -> C, equal feeds, r = k cA cB: 1/cA - 1/cA0 = k tau (Levenspiel 1999, Eq. 5.23).
-    case = make(liquid_case(**{
+    case = make(liquid_case(**{"chemistry.product": "C",
         "chemistry.reactions.r1": {"equation": "A + B -> C", "orders": {"A": 1, "B": 1}, "k_ref": "2e-4 m^3/mol/s",
                                    "activation_energy": "50 kJ/mol", "t_ref": "350 K"},
         "feed.molar_flows": {"A": "0.01 mol/s", "B": "0.01 mol/s", "S": "0.5 mol/s"},
@@ -41,7 +41,7 @@ def test_gas_phase_first_order_with_volume_change():
     # Analytic, isothermal isobaric A -> 2 B, eps = yA0 * delta: k tau0 = (1 + eps) ln(1/(1-X)) - eps X
     # (Levenspiel 1999, Eq. 5.21), tau0 on the inlet volumetric flow.
     data = liquid_case(**{
-        "chemistry.phase": "gas",
+        "chemistry.phase": "gas", "chemistry.product": "B",
         "chemistry.reactions.r1": {"equation": "A -> 2 B", "orders": {"A": 1}, "k_ref": "0.5 1/s",
                                    "activation_energy": "50 kJ/mol", "t_ref": "350 K"},
         "feed.molar_flows": None, "feed.density": None,
@@ -84,6 +84,7 @@ def test_tanks_in_series_approach_plug_flow(n_tanks):
     from tubewright.models.reactions import reaction_rate
 
     case = make(liquid_case(**{
+        "chemistry.product": "C",
         "chemistry.reactions.r1": {"equation": "A + B -> C", "orders": {"A": 1, "B": 1},
                                    "k_ref": "2e-4 m^3/mol/s", "activation_energy": "50 kJ/mol", "t_ref": "350 K"},
         "feed.molar_flows": {"A": "0.01 mol/s", "B": "0.015 mol/s", "S": "0.5 mol/s"},

@@ -94,7 +94,7 @@ def test_equilibrium_constant_from_gibbs_energy():
     import math
 
     data = liquid_case(**{
-        "chemistry.phase": "gas",
+        "chemistry.phase": "gas", "chemistry.product": "B",
         "feed.molar_flows": None, "feed.density": None,
         "feed.molar_flow": "0.02 mol/s", "feed.composition": {"A": 0.3, "S": 0.7},
         "feed.viscosity": "1e-12 Pa*s", "tube.roughness": "0 m", "tube.length": "400 m",

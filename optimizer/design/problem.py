@@ -26,8 +26,6 @@ from tubewright.optimizer.design.outcome import LimitRow
 from tubewright.optimizer.design.spec import DESIGN_KEYS, read_design
 from tubewright.optimizer.nlp.bridge import CompiledNLP
 
-DEFAULT_NFE, DEFAULT_NCP, DEFAULT_VERIFY = 40, 3, 0.01
-
 
 def design_case(case, values: dict):
     """The numeric case at the design ``values`` (SI, keys of DESIGN_KEYS)."""
@@ -48,10 +46,10 @@ class DesignProblem:
         self.spec = read_design(case)
         if goal is not None:
             self.spec = replace(self.spec, goal=goal)
-        num = case.raw.get("numerics", {})
-        self.nfe = int(nfe or num.get("finite_elements", DEFAULT_NFE))
-        self.ncp = int(ncp or num.get("collocation_points", DEFAULT_NCP))
-        self.verify_tolerance = float(num.get("verify_tolerance", DEFAULT_VERIFY))
+        num = case.numerics
+        self.nfe = int(nfe or num.finite_elements)
+        self.ncp = int(ncp or num.collocation_points)
+        self.verify_tolerance = float(num.verify_tolerance)
         self.model = None
         self.nlp = None
 

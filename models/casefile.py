@@ -530,7 +530,7 @@ def _coolant(t: Table, feed, source):
     """The [coolant] table, read by the row of its mode (models.coolant_modes): a key the mode does not read
     is refused, not ignored."""
     mode_name = t.raw("mode", required=True)
-    if mode_name not in C.COOLANT_MODES:
+    if not isinstance(mode_name, str) or mode_name not in C.COOLANT_MODES:
         t.choice("mode", tuple(C.COOLANT_MODES))  # raises with the allowed modes
     mode = C.COOLANT_MODES[mode_name]
     t.allowed = set(mode.keys)

@@ -29,7 +29,7 @@ from pathlib import Path
 
 from tubewright.models.casefile import apply_overrides, build_case, read_toml, resolve_includes
 from tubewright.models.errors import CaseError, suggest
-from tubewright.models.units import parse
+from tubewright.models.units import parse, to_si
 from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES, METHODS, POLICIES, check_samples
 
 from tubewright import __version__
@@ -91,7 +91,7 @@ def _whole(t, key, default, src, where, low=0, high=None):
     value = t.get(key, default)
     if isinstance(value, bool) or not isinstance(value, int) or value < low or (high is not None and value > high):
         allowed = f"a whole number from {low}" + (f" to {high}" if high is not None else "")
-        raise CaseError(src, f"{where}.{key}", f"must be {allowed}, got {value!r}")
+        raise CaseError(src, f"{where}.{key}" if where else key, f"must be {allowed}, got {value!r}")
     return value
 
 
@@ -103,9 +103,17 @@ def load_study(path) -> Study:
         if key not in ("title", "base", "seed", "task"):
             raise CaseError(src, key, "unknown key; allowed: title, base, seed, task")
     title = data.get("title", path.stem)
+    if not isinstance(title, str):
+        raise CaseError(src, "title", f"must be a string, got {title!r}")
+    for key in ("base",):
+        if key in data and not isinstance(data[key], str):
+            raise CaseError(src, key, f"must be a file name, got {data[key]!r}")
+    study_seed = _whole(data, "seed", 0, src, "")
     tasks_raw = data.get("task")
     if not tasks_raw:
         raise CaseError(src, "task", "the study lists no tasks: add [[task]] tables")
+    if not isinstance(tasks_raw, list) or not all(isinstance(t, dict) for t in tasks_raw):
+        raise CaseError(src, "task", "must be [[task]] tables")
     tasks: list[Task] = []
     for i, t in enumerate(tasks_raw):
         where = f"task[{i}]"
@@ -117,10 +125,10 @@ def load_study(path) -> Study:
             raise CaseError(src, f"{where}.kind", f'"{kind}" is not allowed{suggest(str(kind), KINDS)}; allowed: '
                             f"{', '.join(KINDS)}")
         base_name = t.get("case", data.get("base"))
-        if not base_name:
+        if not base_name or not isinstance(base_name, str):
             raise CaseError(src, f"{where}.case", "missing: give the study a base case or the task a case")
         case_path = (path.parent / base_name).resolve()
-        if not case_path.exists():
+        if not case_path.is_file():
             raise CaseError(src, f"{where}.case", f'case file "{base_name}" not found (looked at {case_path})')
         base = resolve_includes(case_path)
         overrides = t.get("set", {})
@@ -128,11 +136,13 @@ def load_study(path) -> Study:
             raise CaseError(src, f"{where}.set", 'must be a table such as { "tube.length" = "6 m" }')
         timeout = None
         if "timeout" in t:
-            from tubewright.models.units import to_si
-
             timeout = to_si(t["timeout"], "s", src, f"{where}.timeout")
+            if not timeout > 0:
+                raise CaseError(src, f"{where}.timeout", f"must be greater than zero, got {t['timeout']!r}")
         name = t.get("name", f"{kind} {i + 1}")
-        points = _sweep_points(t, src, where, data.get("seed", 0)) if kind == "sweep" else [{}]
+        if not isinstance(name, str):
+            raise CaseError(src, f"{where}.name", f"must be a string, got {name!r}")
+        points = _sweep_points(t, src, where, study_seed) if kind == "sweep" else [{}]
         for swept in points:
             resolved = _resolve(base, {**overrides, **swept}, src, f"{where}.set" if not swept else f"{where}.grid",
                                 str(case_path))

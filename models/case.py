@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from functools import cached_property
 
 from .coolant_modes import COOLANT_MODES, CoolantMode
 
@@ -50,7 +51,7 @@ class Coolant:
     cp: float | None = None  # J/(kg K)
     pressure: float | None = None  # Pa (boiling water)
 
-    @property
+    @cached_property
     def kind(self) -> CoolantMode:
         """The row of the coolant-mode table (models.coolant_modes) for this mode."""
         return COOLANT_MODES[self.mode]

@@ -32,8 +32,10 @@ def state_rhs(case):
     def rhs(z, y):
         F = np.where(y[flows].real < 0.0, 0.0 * y[flows], y[flows])  # guard against integrator undershoot
         d = axial_derivatives(NUMPY, case, list(F), y[i_t], y[i_p], y[i_tc])
-        return layout.pack(d, y.shape[1:])
+        rhs.last = out = layout.pack(d, y.shape[1:])  # kept: tells a failed integration from a bug
+        return out
 
+    rhs.last = None
     return rhs
 
 
@@ -79,26 +81,18 @@ def _events(case):
 
 def integrate(case, coolant_start: float | None = None, dense: bool = True):
     """One pass of solve_ivp from z = 0 to L. Returns the scipy result (never raises for solver trouble)."""
-    physics = state_rhs(case)
-    seen = {"non_finite": False}
-
-    def rhs(z, y):
-        out = physics(z, y)
-        if not np.all(np.isfinite(out)):
-            seen["non_finite"] = True
-        return out
-
+    rhs = state_rhs(case)
     y0 = initial_state(case, coolant_start)
     num = case.numerics
     atol = num.atol * np.maximum(np.abs(y0), 1.0)
     try:
         return solve_ivp(rhs, (0.0, case.tube.length), y0, method=num.method, rtol=num.rtol, atol=atol,
-                         events=_events(case), dense_output=dense, jac=complex_step_jacobian(physics))
+                         events=_events(case), dense_output=dense, jac=complex_step_jacobian(rhs))
     except (FloatingPointError, ArithmeticError, np.linalg.LinAlgError) as err:
         return _Failure(str(err))
     except ValueError as err:
-        if not seen["non_finite"]:
-            raise  # a ValueError on finite states is a bug, not an integrator failure
+        if rhs.last is None or np.all(np.isfinite(rhs.last)):
+            raise  # a ValueError on finite balances is a bug, not an integrator failure
         return _Failure(f"the balances became non-finite ({err})")
 
 

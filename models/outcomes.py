@@ -31,7 +31,8 @@ class Status(_Word):
     DONE = "done"  # a study task finished with a usable result
     ERROR = "error"  # a study task raised (its traceback is kept in the reason)
     TIMEOUT = "timeout"  # a study task passed its time limit
-    PENDING = "pending"  # a study task not yet run (or interrupted)
+    PENDING = "pending"  # a study task not yet run
+    INTERRUPTED = "interrupted"  # a study task stopped by Ctrl-C or SIGINT (run again to resume)
 
 
 class Reason(_Word):
@@ -54,6 +55,8 @@ class Reason(_Word):
     EXCEPTION = "exception"  # a study task raised
     TIME_LIMIT = "time_limit"  # a study task passed its time limit
     WORKER_LOST = "worker_lost"  # the worker process or Dask worker of a task died
+    INTERRUPTED = "interrupted"  # stopped by Ctrl-C or SIGINT
+    DISK_FULL = "disk_full"  # no space left while writing results
 
 
 # The statuses after which a study task is not run again unless asked to (--retry-failed).

@@ -31,7 +31,7 @@ from tubewright.optimizer.output.jsonsafe import finite
 from tubewright.optimizer.output.progress import ProgressBar
 from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES
 
-EXIT_OK, EXIT_NOT_OK, EXIT_BAD_INPUT, EXIT_BUG = 0, 1, 2, 3
+EXIT_OK, EXIT_NOT_OK, EXIT_BAD_INPUT, EXIT_BUG, EXIT_INTERRUPTED = 0, 1, 2, 3, 130
 
 
 def _parse_sets(items) -> dict:
@@ -300,7 +300,11 @@ def cmd_run(args) -> int:
               f"{summary['tasks'] - summary['ran']} already recorded"
               + (f" ({summary['skipped_failed']} failed earlier: --retry-failed re-runs them)"
                  if summary["skipped_failed"] else "") + f"; {summary['seconds']:.1f} s")
+        if summary["interrupted"]:
+            print("  interrupted: the unfinished tasks are recorded as interrupted; run again to resume")
         print(f"\nCAUTION: {CAUTION}")
+    if summary["interrupted"]:
+        return EXIT_INTERRUPTED
     return EXIT_OK if summary["not_done"] == 0 else EXIT_NOT_OK
 
 
@@ -403,7 +407,7 @@ def main(argv=None) -> int:
         return EXIT_NOT_OK
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)
-        return 130
+        return EXIT_INTERRUPTED
     except Exception as err:  # a bug: one line and the saved traceback, never a wall of Python
         path = Path(tempfile.gettempdir()) / f"tubewright-traceback-{os.getpid()}.txt"
         path.write_text(traceback.format_exc(), encoding="utf-8")

@@ -17,7 +17,7 @@ KEY_FIELDS = ("conversion", "product_selectivity", "max_temperature_K", "pressur
 
 
 def read_store(folder):
-    store = Store(folder).open()
+    store = Store(folder).open(read_only=True)
     try:
         return store.rows(), store.meta()
     finally:

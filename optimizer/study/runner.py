@@ -3,23 +3,55 @@ finished task; failures and time-outs recorded, never fatal; resume by re-runnin
 
 from __future__ import annotations
 
+import ctypes
+import errno
+import signal
+import sqlite3
+import sys
 import time
 from collections import deque
 from multiprocessing.connection import wait as wait_ready
+from pathlib import Path
 
+from tubewright.models.errors import ComputationFailed
 from tubewright.models.outcomes import RETRYABLE, Reason, Status
 from tubewright.optimizer.output.progress import ProgressBar
 from tubewright.optimizer.processes import process_context
+from tubewright.optimizer.study.lock import folder_lock
 from tubewright.optimizer.study.spec import load_study
 from tubewright.optimizer.study.store import Store
 from tubewright.optimizer.study.tasks import execute, failure
 
 
+def _die_with_parent():
+    """Linux: the kernel kills this worker when the coordinator dies (prctl PR_SET_PDEATHSIG), so a killed
+    run leaves no worker computing on. Elsewhere the coordinator's own clean-up has to do."""
+    if sys.platform.startswith("linux"):
+        try:
+            ctypes.CDLL(None, use_errno=True).prctl(PR_SET_PDEATHSIG, signal.SIGKILL)
+        except (OSError, AttributeError):
+            pass
+
+
+PR_SET_PDEATHSIG = 1
+
+
 def _child(spec, conn):
+    signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C is the coordinator's to handle: it ends the workers
+    _die_with_parent()
     try:
         conn.send(execute(spec))
     finally:
         conn.close()
+
+
+def _end(running):
+    """Kill the workers still running (on an interruption or an error of the coordinator)."""
+    for proc, *_ in running:
+        if proc.is_alive():
+            proc.kill()
+    for proc, *_ in running:
+        proc.join(timeout=5)
 
 
 PRELOAD = {"simulate": ("tubewright.models.simulator",),
@@ -41,6 +73,13 @@ def run_local(tasks, workers: int, on_done, poll: float = 0.05):
     ctx = process_context()
     pending = deque(tasks)
     running = []
+    try:
+        _loop(ctx, pending, running, workers, on_done, poll)
+    finally:
+        _end(running)
+
+
+def _loop(ctx, pending, running, workers, on_done, poll):
     while pending or running:
         while pending and len(running) < workers:
             task = pending.popleft()
@@ -71,7 +110,7 @@ def run_local(tasks, workers: int, on_done, poll: float = 0.05):
                         started)
             else:
                 still.append((proc, conn, task, started, t0))
-        running = still
+        running[:] = still
 
 
 def run_dask(tasks, address: str, on_done, poll: float = 0.2):
@@ -109,11 +148,25 @@ def run_dask(tasks, address: str, on_done, poll: float = 0.2):
 
 def run_study(study_path, folder=None, workers: int = 1, scheduler: str | None = None, retry_failed: bool = False,
               progress: bool = True) -> dict:
-    """Expand the study (validating every task first), skip what is done, run the rest, record each task."""
-    from pathlib import Path
-
+    """Expand the study (validating every task first), hold the folder's lock, skip what is done, run the
+    rest, record each task. ``not_done`` counts every task of the study that is not done, those skipped
+    because they failed earlier included."""
     study = load_study(study_path)
     folder = Path(folder) if folder else study.path.with_suffix(".results")
+    store = Store(folder)
+    if store.db_path.exists():
+        store.check_owner()  # before the lock: another program's folder gets no file of ours
+    with folder_lock(folder):
+        try:
+            return _run_locked(study, folder, workers, scheduler, retry_failed, progress)
+        except (OSError, sqlite3.OperationalError) as err:
+            if not is_disk_full(err):
+                raise
+            raise DiskFull(f"no space left (or the disk refused the write) while writing {folder}: nothing "
+                           "already recorded is lost; free space and run again to resume") from err
+
+
+def _run_locked(study, folder, workers, scheduler, retry_failed, progress) -> dict:
     store = Store(folder).open(study, create=True)
     store.register(study.tasks)
     known = store.statuses()
@@ -124,8 +177,8 @@ def run_study(study_path, folder=None, workers: int = 1, scheduler: str | None =
     bar = ProgressBar("tasks", enabled=progress)
     log = open(folder / "run.log", "a", encoding="utf-8")
     t0 = time.perf_counter()
-    log.write(f"{time.strftime('%Y-%m-%d %H:%M:%S')} run: {len(todo)} tasks to run, "
-              f"{len(unique) - len(todo)} already recorded, workers={workers}, scheduler={scheduler}\n")
+    log.write(f"{_now()} run: {len(todo)} tasks to run, {len(unique) - len(todo)} already recorded, "
+              f"workers={workers}, scheduler={scheduler}\n")
     log.flush()
     counts = {"done": 0, "not_done": 0}
     bar(0, len(todo), 0)
@@ -134,21 +187,61 @@ def run_study(study_path, folder=None, workers: int = 1, scheduler: str | None =
         store.record(task, result, started)
         ok = result["status"] == Status.DONE
         counts["done" if ok else "not_done"] += 1
-        log.write(f"{time.strftime('%Y-%m-%d %H:%M:%S')} {task.task_id} {result['status']:<8} "
-                  f"{result.get('seconds') or 0:8.2f} s  {task.name}: {result.get('reason', '')}\n")
+        log.write(f"{_now()} {task.task_id} {result['status']:<8} {result.get('seconds') or 0:8.2f} s  "
+                  f"{task.name}: {result.get('reason', '')}\n")
         log.flush()
         bar(counts["done"] + counts["not_done"], len(todo), counts["not_done"])
 
+    interrupted = False
     try:
         if scheduler:
             run_dask(todo, scheduler, on_done)
         else:
             run_local(todo, max(1, workers), on_done)
+    except KeyboardInterrupt:
+        interrupted = True
+        log.write(f"{_now()} interrupted: {len(todo) - counts['done'] - counts['not_done']} tasks not finished "
+                  "(recorded as interrupted; run again to resume)\n")
+        store.mark_unfinished([t for t in todo if store.statuses().get(t.task_id) == Status.PENDING],
+                              Status.INTERRUPTED, Reason.INTERRUPTED, "interrupted (Ctrl-C or SIGINT): run again")
+    except (OSError, sqlite3.OperationalError) as err:
+        if is_disk_full(err):
+            log_disk_full(log, err)
+        raise
     finally:
         bar.close()
         log.close()
         store.close()
     return {"study": str(study.path), "folder": str(folder), "tasks": len(unique), "entries": len(study.tasks),
-            "ran": len(todo),
-            "done": counts["done"], "not_done": counts["not_done"], "skipped_failed": len(skipped_failed),
+            "ran": len(todo), "done": counts["done"],
+            "not_done": counts["not_done"] + len(skipped_failed) + (len(todo) - counts["done"] - counts["not_done"]),
+            "skipped_failed": len(skipped_failed), "interrupted": interrupted,
             "seconds": time.perf_counter() - t0}
+
+
+def is_disk_full(err) -> bool:
+    """No space (or no quota, or past the file-size limit) while writing: the OS error number, or SQLite's
+    SQLITE_FULL result code."""
+    if isinstance(err, sqlite3.OperationalError):  # SQLite reports a refused write (EFBIG) as an I/O error
+        return (getattr(err, "sqlite_errorcode", 0) & 0xFF) in (SQLITE_FULL, SQLITE_IOERR)
+    return err.errno in (errno.ENOSPC, errno.EDQUOT, errno.EFBIG)
+
+
+SQLITE_IOERR, SQLITE_FULL = 10, 13
+
+
+class DiskFull(ComputationFailed):
+    def __init__(self, message):
+        super().__init__(Reason.DISK_FULL, message)
+
+
+def log_disk_full(log, err):
+    try:
+        log.write(f"{_now()} no space left on the device ({err}); stopped\n")
+        log.flush()
+    except OSError:
+        pass  # the log is on the same full disk
+
+
+def _now() -> str:
+    return time.strftime("%Y-%m-%d %H:%M:%S")

@@ -29,6 +29,9 @@ CREATE TABLE IF NOT EXISTS members (
 # resolved inputs, e.g. a sweep point equal to the nominal case, share one computation).
 
 
+APPLICATION_ID = 0x54574C54  # "TWLT": written into every store tubewright creates (SQLite application_id)
+
+
 def dumps(value) -> str:
     return json.dumps(finite(value), sort_keys=True, default=str)
 
@@ -39,17 +42,29 @@ class Store:
         self.db_path = self.folder / "results.sqlite"
         self.tables = self.folder / "tables"
 
-    def open(self, study=None, create: bool = False):
-        if not self.db_path.exists() and not create:
-            raise CaseError(str(self.folder), "", "no results database here (results.sqlite): run the study first")
-        if study is not None and self.db_path.exists():
-            owner = self.meta().get("study_path")
-            if owner is not None and owner != str(study.path):
-                raise CaseError(str(self.folder), "", f"this folder belongs to another study ({owner}); choose "
-                                "another --out folder")
+    def open(self, study=None, create: bool = False, read_only: bool = False):
+        """Open the store. A database tubewright did not create (no APPLICATION_ID) or a corrupt one is
+        refused and left byte-identical; ``read_only`` (status, report) never writes to the folder."""
+        if not self.db_path.exists():
+            if not create:
+                raise CaseError(str(self.folder), "", "no results database here (results.sqlite): run the study "
+                                "first")
+        else:
+            self.check_owner()
+            if study is not None:
+                owner = self.meta().get("study_path")
+                if owner is not None and owner != str(study.path):
+                    raise CaseError(str(self.folder), "", f"this folder belongs to another study ({owner}); choose "
+                                    "another --out folder")
+        if read_only:
+            self.conn = sqlite3.connect(f"{self.db_path.resolve().as_uri()}?mode=ro", uri=True, timeout=30)
+            return self
+        new = not self.db_path.exists()
         self.folder.mkdir(parents=True, exist_ok=True)
         self.tables.mkdir(exist_ok=True)
         self.conn = sqlite3.connect(self.db_path, timeout=30)
+        if new:
+            self.conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")
         self.conn.execute("PRAGMA journal_mode=WAL")
         # WAL with synchronous=NORMAL survives a killed process (only a power cut can lose the last commits)
         self.conn.execute("PRAGMA synchronous=NORMAL")
@@ -63,8 +78,29 @@ class Store:
                     self.conn.execute("INSERT OR REPLACE INTO meta VALUES (?, ?)", (key, value))
         return self
 
+    def check_owner(self):
+        """Refuse a database that is not a tubewright store, or that SQLite cannot read, without writing."""
+        uri = f"{self.db_path.resolve().as_uri()}?mode=ro"
+        try:
+            conn = sqlite3.connect(uri, uri=True)
+            try:
+                app = conn.execute("PRAGMA application_id").fetchone()[0]
+                if app != APPLICATION_ID:
+                    tables = [r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")]
+                    if not (app == 0 and {"meta", "tasks", "members"} <= set(tables)):  # stores before the id
+                        raise CaseError(str(self.db_path), "", "not a tubewright results database (another "
+                                        "program's file?): left untouched; choose another --out folder")
+                check = conn.execute("PRAGMA quick_check").fetchone()[0]
+            finally:
+                conn.close()
+        except sqlite3.DatabaseError as err:
+            raise CaseError(str(self.db_path), "", f"the results database cannot be read ({err}): it is corrupt "
+                            "or not a database; left untouched") from err
+        if check != "ok":
+            raise CaseError(str(self.db_path), "", f"the results database is damaged ({check}); left untouched")
+
     def meta(self) -> dict:
-        conn = sqlite3.connect(self.db_path)
+        conn = sqlite3.connect(f"{self.db_path.resolve().as_uri()}?mode=ro", uri=True)
         try:
             return dict(conn.execute("SELECT key, value FROM meta").fetchall())
         except sqlite3.OperationalError:
@@ -112,6 +148,13 @@ class Store:
                 (str(result["status"]), str(result.get("reason_code") or ""), result.get("reason", ""),
                  dumps(result.get("summary", {})), dumps(files), started, time.time(), result.get("seconds"),
                  dumps(provenance), task.task_id))
+
+    def mark_unfinished(self, tasks, status, code, reason: str):
+        """Record why tasks that were started did not finish (their results, if any, are not kept)."""
+        with self.conn:
+            for t in tasks:
+                self.conn.execute("UPDATE tasks SET status = ?, reason_code = ?, reason = ? WHERE task_id = ?",
+                                  (str(status), str(code), reason, t.task_id))
 
     def rows(self, task_ids=None) -> list[dict]:
         cur = self.conn.execute("SELECT t.task_id, m.position, m.name, t.kind, m.grp, m.swept_json, t.status, "

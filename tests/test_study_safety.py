@@ -1,0 +1,138 @@
+"""Overnight studies that cannot hurt anything: one writer per folder, other programs' files untouched,
+read-only status and report, clear messages for corrupt stores, full disks and interruptions (facts of
+this project; no outside source)."""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import signal
+import sqlite3
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pytest
+from builders import DEMO, ROOT
+from tubewright.models import CaseError
+from tubewright.optimizer.cli import main
+from tubewright.optimizer.study.lock import folder_lock
+from tubewright.optimizer.study.report import status
+from tubewright.optimizer.study.runner import run_study
+
+SWEEP = '[[task]]\nname = "sweep"\nkind = "sweep"\ngrid = { "coolant.pressure" = ["100 bar", "104 bar"] }\n'
+
+
+def _study(tmp_path, body=SWEEP):
+    path = tmp_path / "study.toml"
+    path.write_text(f'title = "safety"\nbase = "{DEMO / "oxidation.toml"}"\n' + body)
+    return path
+
+
+def _digest(folder: Path) -> dict:
+    return {p.name: hashlib.sha256(p.read_bytes()).hexdigest() for p in sorted(folder.iterdir()) if p.is_file()}
+
+
+def test_another_programs_database_is_refused_and_left_byte_identical(tmp_path, capsys):
+    out = tmp_path / "out"
+    out.mkdir()
+    conn = sqlite3.connect(out / "results.sqlite")
+    conn.execute("CREATE TABLE invoices (id INTEGER, amount REAL)")
+    conn.execute("INSERT INTO invoices VALUES (1, 9.5)")
+    conn.commit()
+    conn.close()
+    before = _digest(out)
+    assert main(["run", str(_study(tmp_path)), "--out", str(out)]) == 2
+    assert "not a tubewright results database" in capsys.readouterr().err
+    assert main(["status", str(out)]) == 2
+    assert _digest(out) == before
+
+
+def test_a_corrupt_store_is_reported_without_a_traceback(tmp_path, capsys):
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "results.sqlite").write_bytes(b"SQLite format 3\x00" + os.urandom(3000))
+    before = _digest(out)
+    assert main(["status", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert "cannot be read" in err or "damaged" in err or "not a tubewright" in err
+    assert "Traceback" not in err and _digest(out) == before
+
+
+def test_status_and_report_do_not_change_the_store(tmp_path):
+    out = tmp_path / "out"
+    run_study(_study(tmp_path), out, workers=1, progress=False)
+    db = out / "results.sqlite"
+    before = hashlib.sha256(db.read_bytes()).hexdigest()
+    status(out)
+    from tubewright.optimizer.study.report import report
+
+    report(out)
+    assert hashlib.sha256(db.read_bytes()).hexdigest() == before
+    assert not (out / "results.sqlite-wal").exists() or (out / "results.sqlite-wal").stat().st_size == 0
+
+
+def test_one_writer_per_folder(tmp_path):
+    out = tmp_path / "out"
+    with folder_lock(out):  # as if another run held the folder
+        with pytest.raises(CaseError) as info:
+            run_study(_study(tmp_path), out, workers=1, progress=False)
+    assert "in use by process" in str(info.value)
+    assert run_study(_study(tmp_path), out, workers=1, progress=False)["done"] == 2  # released: runs
+
+
+def test_two_runs_started_at_once_compute_each_task_once(tmp_path):
+    study = _study(tmp_path)
+    cmd = [sys.executable, "-m", "tubewright.optimizer.cli", "run", str(study), "--out", str(tmp_path / "out")]
+    procs = [subprocess.Popen(cmd, cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE) for _ in range(2)]
+    codes = sorted(p.wait(timeout=120) for p in procs)
+    assert codes in ([0, 0], [0, 2])  # the second waits for nothing: it is refused, or finds all done
+    conn = sqlite3.connect(tmp_path / "out" / "results.sqlite")
+    attempts = conn.execute("SELECT SUM(attempts) FROM tasks").fetchone()[0]
+    conn.close()
+    assert attempts == 2  # two tasks, each computed once
+
+
+def test_a_resume_exits_1_while_earlier_failures_remain(tmp_path):
+    body = '[[task]]\nname = "bad"\nkind = "simulate"\nset = { "coolant.pressure" = "140 bar" }\n'
+    study = _study(tmp_path, body)
+    assert main(["run", str(study), "--out", str(tmp_path / "out")]) == 1  # the runaway stops: not done
+    assert main(["run", str(study), "--out", str(tmp_path / "out")]) == 1  # nothing run now, still not done
+
+
+def test_a_full_disk_is_a_clear_message_and_a_resume_finishes(tmp_path):
+    study = _study(tmp_path)
+    out = tmp_path / "out"
+    code = ("import resource, sys; resource.setrlimit(resource.RLIMIT_FSIZE, (40_000, 40_000)); "
+            "from tubewright.optimizer.cli import main; sys.exit(main(sys.argv[1:]))")
+    proc = subprocess.run([sys.executable, "-c", code, "run", str(study), "--out", str(out)], cwd=ROOT,
+                          capture_output=True, text=True, timeout=120)
+    assert proc.returncode == 1, proc.stderr
+    assert "no space left" in proc.stderr and "Traceback" not in proc.stderr
+    assert main(["run", str(study), "--out", str(out)]) == 0  # nothing lost: the resume completes
+
+
+def test_ctrl_c_stops_cleanly_and_is_recorded(tmp_path):
+    pressures = ", ".join(f'"{100 + 0.1 * i:.1f} bar"' for i in range(80))  # some 20 s of tasks on one worker
+    body = f'[[task]]\nname = "slow"\nkind = "sweep"\ngrid = {{ "coolant.pressure" = [{pressures}] }}\n'
+    study = _study(tmp_path, body)
+    out = tmp_path / "out"
+    proc = subprocess.Popen([sys.executable, "-m", "tubewright.optimizer.cli", "run", str(study), "--out", str(out),
+                             "--workers", "1"], cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    db = out / "results.sqlite"
+    deadline = time.time() + 60
+    while time.time() < deadline and not db.exists():
+        time.sleep(0.05)
+    time.sleep(1.5)
+    proc.send_signal(signal.SIGINT)
+    t0 = time.time()
+    stdout, stderr = proc.communicate(timeout=30)
+    assert time.time() - t0 < 5.0
+    if proc.returncode == 0:
+        pytest.skip("the study finished before the interruption arrived")
+    assert proc.returncode == 130 and "Traceback" not in stderr, stderr
+    assert "interrupted" in (out / "run.log").read_text()
+    st = status(out)
+    assert any(t["status"] == "interrupted" for t in st["tasks"]) or all(t["status"] == "done" for t in st["tasks"])
+    assert main(["run", str(study), "--out", str(out)]) == 0  # the resume finishes the interrupted tasks

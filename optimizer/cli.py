@@ -6,6 +6,7 @@ Exit codes: 0 success, 1 the computation ran but did not succeed (a stopped or f
 from __future__ import annotations
 
 import argparse
+import contextlib
 import json
 import math
 import os
@@ -29,7 +30,9 @@ from tubewright.optimizer.design.spec import DESIGN_FIELDS
 from tubewright.optimizer.output.caution import CAUTION
 from tubewright.optimizer.output.jsonsafe import finite
 from tubewright.optimizer.output.progress import ProgressBar
+from tubewright.optimizer.output.text import safe_frame
 from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES
+from tubewright.optimizer.study.spec import MAX_TASKS
 
 EXIT_OK, EXIT_NOT_OK, EXIT_BAD_INPUT, EXIT_BUG, EXIT_INTERRUPTED = 0, 1, 2, 3, 130
 
@@ -50,6 +53,14 @@ def _parse_sets(items) -> dict:
             pass  # a bare string such as 6 m
         out[key.strip()] = value
     return out
+
+
+_JSON_STREAM = {"out": None}  # the real stdout while a verb runs with --json (everything else goes to stderr)
+
+
+def _emit_json(value):
+    """The one JSON document of a --json answer, on the real standard output."""
+    print(json.dumps(value, indent=2), file=_JSON_STREAM["out"] or sys.stdout)
 
 
 def _fmt(value) -> str:
@@ -98,14 +109,14 @@ def cmd_simulate(args) -> int:
         out.mkdir(parents=True, exist_ok=True)
         if result.columns:
             files["profiles_csv"] = str(out / "profiles.csv")
-            result.profiles.to_csv(files["profiles_csv"], index=False)
+            safe_frame(result.profiles).to_csv(files["profiles_csv"], index=False)
             from tubewright.optimizer.output.plots import plot_profiles
 
             files["plot_png"] = str(plot_profiles(case, result, out / "profiles.png"))
         files["summary_json"] = str(out / "summary.json")
         Path(files["summary_json"]).write_text(json.dumps(_json_answer(case, result, files), indent=2) + "\n")
     if args.json:
-        print(json.dumps(_json_answer(case, result, files), indent=2))
+        _emit_json(_json_answer(case, result, files))
     else:
         print(f"{case.title}\n  case file: {case.source}")
         print("\n".join(summary_lines(case, result)))
@@ -200,14 +211,14 @@ def cmd_optimize(args) -> int:
         out = Path(args.out)
         out.mkdir(parents=True, exist_ok=True)
         files["profiles_csv"] = str(out / "optimal_profiles.csv")
-        res.simulation.profiles.to_csv(files["profiles_csv"], index=False)
+        safe_frame(res.simulation.profiles).to_csv(files["profiles_csv"], index=False)
         best = design_case(res.case, _design_values(res))
         files["plot_png"] = str(plot_profiles(best, res.simulation, out / "optimal_profiles.png",
                                               limits=res.limits))
         files["result_json"] = str(out / "optimum.json")
         Path(files["result_json"]).write_text(json.dumps(_optimisation_answer(case, res, files), indent=2) + "\n")
     if args.json:
-        print(json.dumps(_optimisation_answer(case, res, files), indent=2))
+        _emit_json(_optimisation_answer(case, res, files))
     else:
         print(f"{case.title}\n  case file: {case.source}")
         print("\n".join(optimisation_lines(case, res)))
@@ -266,7 +277,7 @@ def cmd_screen(args) -> int:
     if args.out:
         answer["files"] = write_files(res, Path(args.out))
     if args.json:
-        print(json.dumps(finite(answer), indent=2))
+        _emit_json(finite(answer))
         return EXIT_OK
     t = res.timings
     print(f"{case.title}\n  case file: {case.source}")
@@ -287,13 +298,27 @@ def cmd_screen(args) -> int:
 
 def cmd_run(args) -> int:
     from tubewright.optimizer.study.runner import run_study
+    from tubewright.optimizer.study.spec import load_study
 
+    if args.dry_run:
+        study = load_study(args.study, max_tasks=args.max_tasks)
+        listing = {"study": str(study.path), "entries": len(study.tasks),
+                   "tasks": len({t.task_id for t in study.tasks}),
+                   "list": [{"position": t.position, "task_id": t.task_id, "name": t.name, "kind": t.kind}
+                            for t in study.tasks]}
+        if args.json:
+            _emit_json(listing)
+        else:
+            for row in listing["list"]:
+                print(f"  {row['position'] + 1:>5}  {row['task_id']}  {row['kind']:<9} {row['name']}")
+            print(f"{listing['entries']} entries, {listing['tasks']} distinct tasks (dry run: nothing was run)")
+        return EXIT_OK
     if args.workers < 1:
         raise option_error("--workers", f"must be at least 1, got {args.workers}")
     summary = run_study(args.study, args.out, args.workers, args.scheduler, args.retry_failed,
-                        progress=not args.json)
+                        progress=not args.json, max_tasks=args.max_tasks)
     if args.json:
-        print(json.dumps(summary, indent=2))
+        _emit_json(summary)
     else:
         print(f"study {summary['study']}\n  results in {summary['folder']}\n  {summary['tasks']} tasks: "
               f"{summary['ran']} run now ({summary['done']} done, {summary['not_done']} not done), "
@@ -313,7 +338,7 @@ def cmd_status(args) -> int:
 
     st = status(args.folder)
     if args.json:
-        print(json.dumps(st, indent=2))
+        _emit_json(st)
         return EXIT_OK
     print(f"{st['title']}\n  study file: {st['study']}")
     print("  " + ", ".join(f"{k}: {v}" for k, v in sorted(st["counts"].items())))
@@ -328,7 +353,7 @@ def cmd_report(args) -> int:
 
     files = report(args.folder, args.out)
     if args.json:
-        print(json.dumps(files, indent=2))
+        _emit_json(files)
     else:
         print(f"wrote {files['report_html']} and {files['tasks_csv']} ({files['tasks']} tasks)")
     return EXIT_OK
@@ -381,6 +406,9 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--workers", type=int, default=min(2, os.cpu_count() or 1), help="local worker processes")
     run.add_argument("--scheduler", metavar="ADDRESS", help="run on a Dask scheduler, e.g. tcp://host:8786")
     run.add_argument("--retry-failed", action="store_true", help="run failed and timed-out tasks again")
+    run.add_argument("--dry-run", action="store_true", help="list the tasks the study expands to; run nothing")
+    run.add_argument("--max-tasks", type=int, default=MAX_TASKS, metavar="N",
+                     help=f"refuse a study that expands to more tasks (default {MAX_TASKS})")
     run.add_argument("--json", action="store_true", help="print the run summary as JSON")
     run.set_defaults(func=cmd_run)
     stat = sub.add_parser("status", help="done, failed and pending tasks of a study folder")
@@ -398,6 +426,13 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv=None) -> int:
     args = build_parser().parse_args(argv)
     try:
+        if getattr(args, "json", False):  # stdout carries exactly one JSON document: stray output to stderr
+            _JSON_STREAM["out"] = sys.stdout
+            try:
+                with contextlib.redirect_stdout(sys.stderr):
+                    return args.func(args)
+            finally:
+                _JSON_STREAM["out"] = None
         return args.func(args)
     except CaseError as err:  # the one type of bad input
         print(f"error: {err}", file=sys.stderr)

@@ -136,3 +136,48 @@ def test_ctrl_c_stops_cleanly_and_is_recorded(tmp_path):
     st = status(out)
     assert any(t["status"] == "interrupted" for t in st["tasks"]) or all(t["status"] == "done" for t in st["tasks"])
     assert main(["run", str(study), "--out", str(out)]) == 0  # the resume finishes the interrupted tasks
+
+
+def test_user_text_is_plain_in_figures_and_safe_in_csv(tmp_path, capsys):
+    nasty = r"$\frac{$ =1+1"
+    case = tmp_path / "case.toml"
+    case.write_text(f'include = "{DEMO / "oxidation.toml"}"\ntitle = \'{nasty}\'\n')
+    assert main(["simulate", str(case), "--out", str(tmp_path / "sim")]) == 0
+    assert (tmp_path / "sim" / "profiles.png").stat().st_size > 10_000
+    study = tmp_path / "study.toml"
+    study.write_text(f'title = \'{nasty}\'\nbase = "{case}"\n[[task]]\nname = "=1+1"\nkind = "sweep"\n'
+                     'grid = { "coolant.pressure" = ["100 bar", "104 bar"] }\n')
+    out = tmp_path / "out"
+    assert main(["run", str(study), "--out", str(out)]) == 0
+    assert main(["report", str(out)]) == 0
+    text = (out / "tasks.csv").read_text()
+    assert "'=1+1" in text and "\n=1+1" not in text and ",=1+1" not in text
+
+
+def test_json_output_is_one_document_even_when_something_prints(capsys, monkeypatch):
+    import json
+
+    import tubewright.optimizer.verbs as verbs
+
+    real = verbs.simulate
+
+    def chatty(case):
+        print("WARNING: a library talks on stdout")
+        return real(case)
+
+    monkeypatch.setattr(verbs, "simulate", chatty)
+    assert main(["simulate", str(DEMO / "oxidation.toml"), "--json"]) == 0
+    captured = capsys.readouterr()
+    assert json.loads(captured.out)["status"] == "ok"
+    assert "a library talks" in captured.err
+
+
+def test_dry_run_counts_and_a_huge_expansion_is_refused_at_once(tmp_path, capsys):
+    assert main(["run", str(_study(tmp_path)), "--dry-run"]) == 0
+    assert "2 entries, 2 distinct tasks" in capsys.readouterr().out
+    values = ", ".join(f'"{100 + i} bar"' for i in range(200))
+    huge = _study(tmp_path, '[[task]]\nkind = "sweep"\ngrid = { "coolant.pressure" = [%s], "tube.count" = [%s] }\n'
+                  % (values, ", ".join(str(1000 + i) for i in range(1000))))
+    t0 = time.perf_counter()
+    assert main(["run", str(huge), "--dry-run"]) == 2
+    assert "expands to 200000 tasks" in capsys.readouterr().err and time.perf_counter() - t0 < 5

@@ -5,6 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from tubewright.optimizer.output.canvas import new_figure
+from tubewright.optimizer.output.text import plain
 
 
 def plot_profiles(case, result, path: Path, limits=None) -> Path:
@@ -26,7 +27,7 @@ def plot_profiles(case, result, path: Path, limits=None) -> Path:
     ax.set_ylabel("temperature [K]")
     ax.legend(loc="best", fontsize=8)
     axes[1].plot(z, cols["conversion"])
-    axes[1].set_ylabel(f"conversion of {case.key_reactant} [-]")
+    axes[1].set_ylabel(plain(f"conversion of {case.key_reactant} [-]"))
     axes[2].plot(z, cols["P_Pa"] / 1e5)
     for row in limits or []:
         if row.name == "max_pressure_drop":
@@ -35,7 +36,7 @@ def plot_profiles(case, result, path: Path, limits=None) -> Path:
             axes[2].legend(loc="best", fontsize=8)
     axes[2].set_ylabel("pressure [bar]")
     axes[2].set_xlabel("axial position z [m]")
-    fig.suptitle(case.title, fontsize=9)
+    fig.suptitle(plain(case.title), fontsize=9)
     fig.text(0.01, 0.005, "Screening estimate only - verify before use.", fontsize=7, color="gray")
     fig.tight_layout(rect=(0, 0.02, 1, 0.97))
     path = Path(path)

@@ -7,6 +7,7 @@ from pathlib import Path
 
 import numpy as np
 from tubewright.optimizer.output.canvas import new_figure
+from tubewright.optimizer.output.text import plain, safe_frame
 
 
 def ranking_lines(res) -> list[str]:
@@ -51,8 +52,8 @@ def as_json(res) -> dict:
 def write_files(res, out: Path) -> dict:
     out.mkdir(parents=True, exist_ok=True)
     files = {"samples_csv": out / "samples.csv", "outputs_csv": out / "outputs.csv", "indices_csv": out / "indices.csv"}
-    res.samples.to_csv(files["samples_csv"], index_label="sample")
-    res.outputs.to_csv(files["outputs_csv"], index_label="sample")
+    safe_frame(res.samples).to_csv(files["samples_csv"], index_label="sample")
+    safe_frame(res.outputs).to_csv(files["outputs_csv"], index_label="sample")
     rows = []
     for name, idx in res.indices.items():
         if isinstance(idx, str):
@@ -61,7 +62,8 @@ def write_files(res, out: Path) -> dict:
             rows += [{"output": name, "factor": f, "index": k, "value": float(v)} for k, v in r.items()]
     import pandas as pd
 
-    pd.DataFrame(rows, columns=["output", "factor", "index", "value"]).to_csv(files["indices_csv"], index=False)
+    safe_frame(pd.DataFrame(rows, columns=["output", "factor", "index", "value"])).to_csv(files["indices_csv"],
+                                                                                      index=False)
     try:  # Parquet when a Parquet engine is installed (pyarrow or fastparquet); CSV is always written
         for name in ("samples", "outputs"):
             frame = res.samples if name == "samples" else res.outputs
@@ -83,17 +85,17 @@ def plot(res, path: Path) -> Path:
         if res.method == "morris":
             ax.errorbar(idx["mu_star"], idx["sigma"], xerr=idx["mu_star_conf"], fmt="o", ms=4, capsize=2)
             for f, r in idx.iterrows():
-                ax.annotate(f, (r["mu_star"], r["sigma"]), fontsize=7, xytext=(3, 3), textcoords="offset points")
+                ax.annotate(plain(f), (r["mu_star"], r["sigma"]), fontsize=7, xytext=(3, 3), textcoords="offset points")
             ax.set_xlabel("mu*")
             ax.set_ylabel("sigma")
         else:
             x = np.arange(len(idx))
             ax.bar(x - 0.2, idx["S1"], 0.4, yerr=idx["S1_conf"], capsize=2, label="S1")
             ax.bar(x + 0.2, idx["ST"], 0.4, yerr=idx["ST_conf"], capsize=2, label="ST")
-            ax.set_xticks(x, idx.index, rotation=45, ha="right", fontsize=7)
+            ax.set_xticks(x, [plain(f) for f in idx.index], rotation=45, ha="right", fontsize=7)
             ax.set_ylim(bottom=min(0.0, float(np.nanmin(idx["S1"] - idx["S1_conf"]))))
             ax.legend(fontsize=7)
-        ax.set_title(name, fontsize=9)
+        ax.set_title(plain(name), fontsize=9)
     for ax in axes.ravel()[len(tables):]:
         ax.axis("off")
     fig.text(0.01, 0.005, "Screening estimate only - verify before use.", fontsize=7, color="gray")

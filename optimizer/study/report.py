@@ -11,6 +11,7 @@ from pathlib import Path
 from tubewright.models.outcomes import Status
 from tubewright.optimizer.output.canvas import new_figure
 from tubewright.optimizer.output.caution import CAUTION
+from tubewright.optimizer.output.text import plain, safe_frame
 from tubewright.optimizer.study.store import Store
 
 KEY_FIELDS = ("conversion", "product_selectivity", "max_temperature_K", "pressure_drop_Pa", "production_rate_mol_s")
@@ -82,9 +83,9 @@ def report(folder, out: Path | None = None) -> dict:
         for ax, field in zip(axes, ("max_temperature_K", "conversion", "pressure_drop_Pa")):
             ys = [m["summary"].get(field) for m in members]
             ax.plot(xs, ys, "o")
-            ax.set_xlabel(f"{key} [{unit[0]}]" if unit[0] else key)
+            ax.set_xlabel(plain(f"{key} [{unit[0]}]" if unit[0] else key))
             ax.set_ylabel(field)
-        fig.suptitle(f"sweep: {name}", fontsize=9)
+        fig.suptitle(plain(f"sweep: {name}"), fontsize=9)
         fig.tight_layout()
         parts.append(f"<h2>Sweep: {html.escape(name)}</h2>" + _png(fig))
     for r in rows:
@@ -122,8 +123,8 @@ def report(folder, out: Path | None = None) -> dict:
                 axes = fig.subplots(1, len(tables), squeeze=False)
                 key = "ST" if r["summary"].get("method") == "sobol" else "mu_star"
                 for ax, (name, idx) in zip(axes[0], tables):
-                    ax.barh(list(idx), [v.get(key) or 0.0 for v in idx.values()])
-                    ax.set_title(f"{name} ({key})", fontsize=8)
+                    ax.barh([plain(f) for f in idx], [v.get(key) or 0.0 for v in idx.values()])
+                    ax.set_title(plain(f"{name} ({key})"), fontsize=8)
                     ax.tick_params(labelsize=7)
                 fig.tight_layout()
                 parts.append(f"<h2>Screening: {html.escape(r['name'])}</h2>" + _png(fig))
@@ -141,5 +142,5 @@ def report(folder, out: Path | None = None) -> dict:
                      "reason": r["reason"], "seconds": r["seconds"],
                      **{k: r["summary"].get(k) for k in KEY_FIELDS if not isinstance(r["summary"].get(k), dict)},
                      **{f"swept {k}": v for k, v in r["swept"].items()}})
-    pd.DataFrame(flat).to_csv(tasks_csv, index=False)
+    safe_frame(pd.DataFrame(flat)).to_csv(tasks_csv, index=False)
     return {"report_html": str(out), "tasks_csv": str(tasks_csv), "tasks": len(rows)}

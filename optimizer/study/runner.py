@@ -18,7 +18,7 @@ from tubewright.models.outcomes import RETRYABLE, Reason, Status
 from tubewright.optimizer.output.progress import ProgressBar
 from tubewright.optimizer.processes import process_context
 from tubewright.optimizer.study.lock import folder_lock
-from tubewright.optimizer.study.spec import load_study
+from tubewright.optimizer.study.spec import MAX_TASKS, load_study
 from tubewright.optimizer.study.store import Store
 from tubewright.optimizer.study.tasks import execute, failure
 
@@ -147,11 +147,11 @@ def run_dask(tasks, address: str, on_done, poll: float = 0.2):
 
 
 def run_study(study_path, folder=None, workers: int = 1, scheduler: str | None = None, retry_failed: bool = False,
-              progress: bool = True) -> dict:
+              progress: bool = True, max_tasks: int = MAX_TASKS) -> dict:
     """Expand the study (validating every task first), hold the folder's lock, skip what is done, run the
     rest, record each task. ``not_done`` counts every task of the study that is not done, those skipped
     because they failed earlier included."""
-    study = load_study(study_path)
+    study = load_study(study_path, max_tasks=max_tasks)
     folder = Path(folder) if folder else study.path.with_suffix(".results")
     store = Store(folder)
     if store.db_path.exists():

@@ -35,6 +35,7 @@ from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES, METHODS, PO
 from tubewright import __version__
 
 MAX_SWEEP = 100_000  # points of one Latin hypercube
+MAX_TASKS = 100_000  # concrete tasks of one study, unless raised (--max-tasks)
 KINDS = ("simulate", "sweep", "optimize", "pareto", "screen")
 TASK_KEYS = {"name", "kind", "case", "set", "timeout", "grid", "latin_hypercube", "starts", "seed", "ideal",
              "points", "method", "samples", "policy"}
@@ -95,7 +96,7 @@ def _whole(t, key, default, src, where, low=0, high=None):
     return value
 
 
-def load_study(path) -> Study:
+def load_study(path, max_tasks: int = None) -> Study:
     path = Path(path).resolve()
     src = str(path)
     data = read_toml(path)
@@ -114,6 +115,11 @@ def load_study(path) -> Study:
         raise CaseError(src, "task", "the study lists no tasks: add [[task]] tables")
     if not isinstance(tasks_raw, list) or not all(isinstance(t, dict) for t in tasks_raw):
         raise CaseError(src, "task", "must be [[task]] tables")
+    max_tasks = MAX_TASKS if max_tasks is None else max_tasks
+    expected = sum(_expansion(t, src, f"task[{i}]") for i, t in enumerate(tasks_raw))
+    if expected > max_tasks:
+        raise CaseError(src, "task", f"the study expands to {expected} tasks, more than the limit of {max_tasks}: "
+                        "split it, or raise the limit (--max-tasks)")
     tasks: list[Task] = []
     for i, t in enumerate(tasks_raw):
         where = f"task[{i}]"
@@ -163,6 +169,18 @@ def _resolve(base, overrides, src, where, case_source):
     except CaseError as err:
         raise CaseError(src, where, f"{err.key}: {err.detail}") from err
     return data
+
+
+def _expansion(t, src, where) -> int:
+    """How many concrete tasks one [[task]] becomes, counted before anything is expanded."""
+    if t.get("kind") != "sweep":
+        return 1
+    if isinstance(t.get("grid"), dict):
+        return math.prod(len(v) if isinstance(v, list) else 1 for v in t["grid"].values())
+    lh = t.get("latin_hypercube")
+    if isinstance(lh, dict) and isinstance(lh.get("samples"), int) and not isinstance(lh.get("samples"), bool):
+        return max(lh["samples"], 1)
+    return 1
 
 
 def _sweep_points(t, src, where, study_seed):

@@ -176,8 +176,9 @@ def test_dry_run_counts_and_a_huge_expansion_is_refused_at_once(tmp_path, capsys
     assert main(["run", str(_study(tmp_path)), "--dry-run"]) == 0
     assert "2 entries, 2 distinct tasks" in capsys.readouterr().out
     values = ", ".join(f'"{100 + i} bar"' for i in range(200))
-    huge = _study(tmp_path, '[[task]]\nkind = "sweep"\ngrid = { "coolant.pressure" = [%s], "tube.count" = [%s] }\n'
-                  % (values, ", ".join(str(1000 + i) for i in range(1000))))
+    counts = ", ".join(str(1000 + i) for i in range(1000))
+    huge = _study(tmp_path, f'[[task]]\nkind = "sweep"\ngrid = {{ "coolant.pressure" = [{values}], '
+                  f'"tube.count" = [{counts}] }}\n')
     t0 = time.perf_counter()
     assert main(["run", str(huge), "--dry-run"]) == 2
     assert "expands to 200000 tasks" in capsys.readouterr().err and time.perf_counter() - t0 < 5

@@ -182,3 +182,43 @@ def test_dry_run_counts_and_a_huge_expansion_is_refused_at_once(tmp_path, capsys
     t0 = time.perf_counter()
     assert main(["run", str(huge), "--dry-run"]) == 2
     assert "expands to 200000 tasks" in capsys.readouterr().err and time.perf_counter() - t0 < 5
+
+
+def _children(pid: int) -> list[int]:
+    out = []
+    for stat in Path("/proc").glob("[0-9]*/stat"):
+        try:
+            fields = stat.read_text().rsplit(")", 1)[1].split()
+        except OSError:
+            continue
+        if int(fields[1]) == pid:
+            out.append(int(stat.parent.name))
+    return out
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="parent-death signal is Linux only")
+def test_workers_end_with_a_killed_coordinator(tmp_path):
+    body = '[[task]]\nkind = "screen"\nmethod = "sobol"\nsamples = 512\n'
+    path = tmp_path / "study.toml"
+    path.write_text(f'base = "{DEMO / "oxidation-screen.toml"}"\n' + body)
+    proc = subprocess.Popen([sys.executable, "-m", "tubewright.optimizer.cli", "run", str(path), "--out",
+                             str(tmp_path / "out")], cwd=ROOT, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    deadline = time.time() + 60
+    workers = []
+    while time.time() < deadline and not workers:
+        time.sleep(0.1)
+        workers = _children(proc.pid)
+    assert workers, "no worker started"
+    os.kill(proc.pid, signal.SIGKILL)
+    proc.wait()
+    deadline = time.time() + 5
+    while time.time() < deadline and any(Path(f"/proc/{w}").exists() and "zombie" not in _state(w) for w in workers):
+        time.sleep(0.1)
+    assert not any(Path(f"/proc/{w}").exists() and "zombie" not in _state(w) for w in workers)
+
+
+def _state(pid: int) -> str:
+    try:
+        return next(line for line in Path(f"/proc/{pid}/status").read_text().splitlines() if line.startswith("State"))
+    except (OSError, StopIteration):
+        return "zombie"

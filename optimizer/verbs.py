@@ -42,8 +42,11 @@ def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0
         extras["standard_tubes"] = ranking
         best = next((r for r in ranking if r["objective"] is not None), None)
         if best is not None:
-            chosen = {"tube.inner_diameter": f"{best['inner_diameter_m']} m",
-                      "tube.wall_thickness": f"{best['wall_thickness_m']} m", "design.standard_tubes": False}
+            diameter = f"{best['inner_diameter_m']} m"
+            chosen = {"tube.inner_diameter": diameter, "tube.wall_thickness": f"{best['wall_thickness_m']} m",
+                      "design.standard_tubes": False}
+            if "inner_diameter" in case.raw.get("design", {}):  # a fixed design diameter would override the tube
+                chosen["design.inner_diameter"] = diameter
             case = build_case(apply_overrides(case.raw, chosen, case.source), case.source)
     res = optimise(case)
     if ideal and res.ok:

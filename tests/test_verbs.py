@@ -46,6 +46,9 @@ def test_run_and_optimize_give_the_same_design_with_standard_tubes(tmp_path, cap
     assert [r["label"] for r in stored["standard_tubes"]] == [r["label"] for r in cli["standard_tubes"]]
     assert stored["design"] == pytest.approx(cli["design"], rel=1e-9)
     assert stored["objective"] == pytest.approx(cli["objective"], rel=1e-9)
+    best = cli["standard_tubes"][0]  # the optimum is built on the best-ranked tube, not the case's own diameter
+    assert cli["design"]["inner_diameter_m"] == pytest.approx(best["inner_diameter_m"], rel=1e-9)
+    assert cli["objective"] == pytest.approx(best["objective"], rel=1e-3)
 
 
 def test_screening_defaults_are_the_same_in_a_study_on_the_command_line_and_in_python(tmp_path, monkeypatch):

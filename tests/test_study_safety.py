@@ -222,3 +222,21 @@ def _state(pid: int) -> str:
         return next(line for line in Path(f"/proc/{pid}/status").read_text().splitlines() if line.startswith("State"))
     except (OSError, StopIteration):
         return "zombie"
+
+
+def test_dask_time_limits_count_running_time_and_stop_the_task(tmp_path):
+    """Six tasks of about 1-2 s each queue on one Dask worker thread: queue time does not count against
+    their 20 s limit; a task limited to 0.2 s is stopped (its process on the worker is killed)."""
+    distributed = pytest.importorskip("distributed")
+    values = ", ".join(f'"{100 + i} bar"' for i in range(6))
+    body = (f'[[task]]\nname = "queued"\nkind = "sweep"\ntimeout = "20 s"\n'
+            f'grid = {{ "coolant.pressure" = [{values}] }}\n'
+            '[[task]]\nname = "short"\nkind = "simulate"\ntimeout = "0.2 s"\nset = { "coolant.pressure" = "99 bar" }\n')
+    path = _study(tmp_path, body)
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=True, host="127.0.0.1",
+                                  dashboard_address=None) as cluster:
+        summary = run_study(path, tmp_path / "dask", scheduler=cluster.scheduler_address, progress=False)
+    rows = {r["name"]: r for r in status(tmp_path / "dask")["tasks"]}
+    assert summary["done"] == 6
+    assert rows["short"]["status"] == "timeout" and "stopped on its worker" in rows["short"]["reason"]
+    assert all(r["status"] == "done" for name, r in rows.items() if name.startswith("queued"))

@@ -20,7 +20,7 @@ from tubewright.optimizer.processes import process_context
 from tubewright.optimizer.study.lock import folder_lock
 from tubewright.optimizer.study.spec import MAX_TASKS, load_study
 from tubewright.optimizer.study.store import Store
-from tubewright.optimizer.study.tasks import execute, failure
+from tubewright.optimizer.study.tasks import execute, execute_limited, failure
 
 
 def _die_with_parent():
@@ -113,35 +113,29 @@ def _loop(ctx, pending, running, workers, on_done, poll):
         running[:] = still
 
 
-def run_dask(tasks, address: str, on_done, poll: float = 0.2):
-    """Submit every task to a running Dask scheduler; a task over its time limit is cancelled and recorded."""
-    from distributed import Client, wait
+def run_dask(tasks, address: str, on_done):
+    """Submit every task to a running Dask scheduler. A task with a time limit runs in its own process on
+    its worker, and the limit counts from the task's own start there (study.tasks.execute_limited): a
+    result does not depend on the queue, and a task past its limit is stopped on its worker."""
+    from distributed import Client, as_completed
 
     client = Client(address, timeout="20s")
     try:
         futures = {}
         for task in tasks:
-            fut = client.submit(execute, task.spec(), key=f"tubewright-{task.task_id}-{time.time_ns()}", pure=False)
-            futures[fut] = (task, time.time(), time.perf_counter())
-        while futures:
+            key = f"tubewright-{task.task_id}-{time.time_ns()}"
+            if task.timeout is None:  # no limit: no process of its own (that costs its imports, about 1 s)
+                fut = client.submit(execute, task.spec(), key=key, pure=False)
+            else:
+                fut = client.submit(execute_limited, task.spec(), task.timeout, key=key, pure=False)
+            futures[fut] = (task, time.time())
+        for fut in as_completed(list(futures)):
+            task, submitted = futures.pop(fut)
             try:
-                wait(list(futures), timeout=poll, return_when="FIRST_COMPLETED")
-            except TimeoutError:  # nothing finished within the poll interval: check the time limits
-                pass
-            for fut in list(futures):
-                task, started, t0 = futures[fut]
-                if fut.done():
-                    try:
-                        result = fut.result()
-                    except Exception as err:  # a lost worker or a pickling problem: recorded, not fatal
-                        result = failure(Status.ERROR, Reason.WORKER_LOST, f"Dask: {err!r}")
-                    on_done(task, result, started)
-                    del futures[fut]
-                elif task.timeout is not None and time.perf_counter() - t0 > task.timeout:
-                    fut.cancel()
-                    on_done(task, failure(Status.TIMEOUT, Reason.TIME_LIMIT,
-                                          f"exceeded its time limit of {task.timeout:g} s"), started)
-                    del futures[fut]
+                result = fut.result()
+            except Exception as err:  # a lost worker or a pickling problem: recorded, not fatal
+                result = failure(Status.ERROR, Reason.WORKER_LOST, f"Dask: {err!r}")
+            on_done(task, result, submitted)
     finally:
         client.close()
 

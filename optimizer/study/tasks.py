@@ -4,6 +4,9 @@ the command line (optimizer.verbs). Returns plain data: status, reason code and 
 
 from __future__ import annotations
 
+import pickle
+import subprocess
+import sys
 import time
 import traceback
 
@@ -24,6 +27,27 @@ def execute(spec: dict) -> dict:
         out = failure(Status.ERROR, Reason.EXCEPTION, f"{type(err).__name__}: {err} | {' / '.join(tb)}")
     out["seconds"] = time.perf_counter() - t0
     return out
+
+
+def execute_limited(spec: dict, timeout: float | None) -> dict:
+    """Run ``execute`` in a child process of this one and stop it at ``timeout`` seconds from its own start.
+    For Dask workers: the limit then counts the task's running time wherever and whenever it runs (not its
+    time in the queue), and a task past its limit is really stopped. A subprocess (not multiprocessing,
+    which daemonic Dask workers may not use) reads the pickled spec on stdin and writes the result."""
+    t0 = time.perf_counter()
+    proc = subprocess.Popen([sys.executable, "-m", "tubewright.optimizer.study.tasks"], stdin=subprocess.PIPE,
+                            stdout=subprocess.PIPE, stderr=subprocess.DEVNULL)
+    try:
+        out, _ = proc.communicate(pickle.dumps(spec), timeout=timeout)
+    except subprocess.TimeoutExpired:
+        proc.kill()
+        proc.communicate()
+        return failure(Status.TIMEOUT, Reason.TIME_LIMIT, f"exceeded its time limit of {timeout:g} s (stopped on "
+                       "its worker)", time.perf_counter() - t0)
+    if proc.returncode != 0 or not out:
+        return failure(Status.ERROR, Reason.WORKER_LOST, f"task process ended without a result (exit code "
+                       f"{proc.returncode})", time.perf_counter() - t0)
+    return pickle.loads(out)
 
 
 def failure(status: Status, code: Reason, reason: str, seconds: float | None = None) -> dict:
@@ -68,3 +92,7 @@ def _run(spec) -> dict:
                 "summary": as_json(res), "tables": {"samples": res.samples.to_dict("list"),
                                                      "outputs": res.outputs.drop(columns=["reason"]).to_dict("list")}}
     raise ValueError(f"unknown task kind {kind}")
+
+
+if __name__ == "__main__":  # the child of execute_limited: a pickled spec in, a pickled result out
+    sys.stdout.buffer.write(pickle.dumps(execute(pickle.loads(sys.stdin.buffer.read()))))

@@ -198,6 +198,21 @@ def test_a_screening_over_the_time_budget_is_refused(capsys):
     ('kind = "screen"\nsamples = "ten"\n', "task[0].samples"),
     ('kind = "screen"\nmethod = "sobol"\nsamples = 100\n', "task[0].samples"),
     ('kind = "optimize"\nstarts = -2\n', "task[0].starts"),
+    ('kind = "optimize"\nstarts = [1]\n', "task[0].starts"),
+    ('kind = "optimize"\nideal = "no"\n', "task[0].ideal"),
+    ('kind = "simulate"\nname = 5\n', "task[0].name"),
+    ('kind = "simulate"\ntimeout = "nan s"\n', "task[0].timeout"),
+    ('kind = "sweep"\nlatin_hypercube = 5\n', "task[0].latin_hypercube"),
+    ('kind = "sweep"\nlatin_hypercube = { samples = 3, ranges = { "tube.length" = ["2 m", "3 kg"] } }\n',
+     "task[0].latin_hypercube.ranges.tube.length"),
+    ('kind = "sweep"\nlatin_hypercube = { samples = 3, ranges = { "tube.length" = ["2 m", 3] } }\n',
+     "task[0].latin_hypercube.ranges.tube.length"),
+    ('kind = "sweep"\nlatin_hypercube = { samples = 3, seed = "x", ranges = { "tube.length" = ["2 m", "3 m"] } }\n',
+     "task[0].latin_hypercube.seed"),
+    ('kind = "sweep"\nlatin_hypercube = { samples = 3, ranges = { "tube.length" = ["2 m", "3 m", "4 m"] } }\n',
+     "task[0].latin_hypercube.ranges.tube.length"),
+    ('kind = "sweep"\ngrid = { "coolant.presure" = ["100 bar"] }\n', "task[0].grid"),
+    ('kind = "simulate"\ncase = "."\n', "task[0].case"),
 ])
 def test_study_options_are_checked_naming_the_key(tmp_path, task, key):
     from tubewright.optimizer.study.spec import load_study
@@ -240,3 +255,18 @@ def test_every_reported_number_is_finite_on_the_demo():
     s = simulate(load_case(DEMO / "oxidation.toml")).summary
     numbers = [v for v in s.values() if isinstance(v, float)]
     assert numbers and all(math.isfinite(v) for v in numbers)
+
+
+@pytest.mark.parametrize("top, key", [
+    ('title = [1, 2]\nbase = "X"\n[[task]]\nkind = "simulate"\n', "title"),
+    ('base = 5\n[[task]]\nkind = "simulate"\n', "base"),
+    ('base = "X"\ntask = 5\n', "task"),
+    ('base = "X"\nseed = "s"\n[[task]]\nkind = "simulate"\n', "seed"),
+])
+def test_study_top_level_keys_are_checked(tmp_path, top, key):
+    from tubewright.optimizer.study.spec import load_study
+
+    path = _write(tmp_path, "study.toml", top.replace('"X"', f'"{DEMO / "oxidation.toml"}"'))
+    with pytest.raises(CaseError) as info:
+        load_study(path)
+    assert info.value.key == key

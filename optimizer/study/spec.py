@@ -218,6 +218,9 @@ def _sweep_points(t, src, where, study_seed):
                 raise CaseError(src, where_key, "must be [low, high]")
             lo, hi = pair
             qlo, qhi = _numeric(lo, src, where_key), _numeric(hi, src, where_key)
+            if hasattr(qlo, "units") != hasattr(qhi, "units") or (
+                    hasattr(qlo, "units") and qlo.dimensionality != qhi.dimensionality):
+                raise CaseError(src, where_key, f"low and high must have the same dimension, got {lo!r} and {hi!r}")
             whole = isinstance(lo, int) and isinstance(hi, int)
             for i in range(n):
                 v = qlo + (qhi - qlo) * float(u[i, j])

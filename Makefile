@@ -33,6 +33,8 @@ bench: $(STAMP)
 	$(BIN)/python tests/benchmarks/bench_optimize.py
 	$(BIN)/python tests/benchmarks/bench_screen.py
 	$(BIN)/python tests/benchmarks/bench_study.py
+	$(BIN)/python tests/benchmarks/fuzz_cases.py 800
+	$(BIN)/python tests/benchmarks/stress_study.py 20
 
 clean:
 	rm -rf $(VENV) demo-output .pytest_cache

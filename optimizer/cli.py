@@ -285,8 +285,16 @@ def cmd_screen(args) -> int:
           f"in {t['evaluate_s']:.1f} s ({t['evaluations_per_s']:.0f}/s), seed {res.seed}, failure policy "
           f"{res.policy}; {t['stopped_samples']} samples stopped"
           + (f", {t['handed_over']} simulated on their own" if t.get("handed_over") else ""))
-    if res.probability_of_passing is not None:
-        print(f"  probability of passing the hot-spot limit: {res.probability_of_passing:.4f}")
+    for name, label in (("passes_hot_spot_limit", "the hot-spot limit"), ("passes_limits", "every limit")):
+        if name not in res.probability_of_passing:
+            continue
+        prob = res.probability_of_passing[name]
+        if prob is None:
+            print(f"  probability of passing {label}: not estimated (Morris trajectories are no random sample of "
+                  "the inputs; use --method sobol)")
+        else:
+            print(f"  probability of passing {label}: {prob['estimate']:.3f} (95 % interval {prob['low_95']:.3f} "
+                  f"to {prob['high_95']:.3f}, {prob['samples']} quasi-random samples)")
     print("\n".join(ranking_lines(res)))
     for name, fail in res.failures.items():
         print(f"\nfailed samples for {name}: {fail['count']} (first: {fail['samples'][0]['reason']})")

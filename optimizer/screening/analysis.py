@@ -71,10 +71,45 @@ def rows_for(problem, method, n_sub: int) -> int:
     return n_sub * (d + 2) if method == "sobol" else n_sub * (d + 1)
 
 
+MIN_STAGE = 4  # base samples (trajectories) at the smallest stage of the convergence check (our choice)
+
+
+def clopper_pearson(k: int, n: int, confidence: float = 0.95) -> tuple[float, float]:
+    """The exact (Clopper and Pearson, Biometrika 26, 1934, 404-413) interval of a binomial proportion k/n."""
+    from scipy.stats import beta
+
+    alpha = 1.0 - confidence
+    low = 0.0 if k == 0 else float(beta.ppf(alpha / 2, k, n - k + 1))
+    high = 1.0 if k == n else float(beta.ppf(1 - alpha / 2, k + 1, n - k))
+    return low, high
+
+
+def probability(problem, method: str, y) -> dict | None:
+    """The probability that a 0/1 output is 1, estimated only from samples of the input distribution: the A
+    and B rows of Sobol's design (quasi-random, independent of each other's columns), with the exact 95 %
+    interval. Morris trajectories sit on a grid that covers the tails evenly by design: they estimate no
+    probability (None)."""
+    if method != "sobol":
+        return None
+    block = len(factor_names(problem)) + 2
+    y = np.asarray(y, dtype=float)
+    rows = np.sort(np.concatenate([np.arange(0, y.size, block), np.arange(block - 1, y.size, block)]))
+    values = y[rows]
+    values = values[np.isfinite(values)]
+    if not values.size:
+        return None
+    k, n = int(values.sum()), int(values.size)
+    low, high = clopper_pearson(k, n)
+    return {"estimate": k / n, "low_95": low, "high_95": high, "samples": n}
+
+
 def convergence(problem, method, unit_x, y, n: int, seed: int) -> dict:
     """Indices from the first N/4 and N/2 base samples (trajectories) against N: the largest change of ST
     (Sobol) or normalised mu* (Morris) between N/2 and N, and whether the ranking of the factors held."""
     key = "ST" if method == "sobol" else "mu_star"
+    if n // 4 < MIN_STAGE:
+        return {"verdict": f"too few samples to judge (N/4 = {n // 4}; a verdict needs N >= {4 * MIN_STAGE})",
+                "history": {}}
     history = {}
     for frac in (4, 2, 1):
         n_sub = n // frac
@@ -108,7 +143,7 @@ class ScreeningResult:
     indices: dict = field(default_factory=dict)  # output -> DataFrame of indices per factor, or a reason
     convergence: dict = field(default_factory=dict)
     failures: dict = field(default_factory=dict)  # output -> {"count", "samples": [...]}
-    probability_of_passing: float | None = None
+    probability_of_passing: dict = field(default_factory=dict)  # output -> probability() (None with Morris)
     timings: dict = field(default_factory=dict)
 
 
@@ -151,10 +186,8 @@ def run(items, evaluator, method: str = "morris", n: int = 16, seed: int = 0, po
         res = analyse(problem, method, unit_x, y, seed)
         indices[name] = pd.DataFrame({k: np.asarray(v, dtype=float) for k, v in res.items()}, index=factors)
         conv[name] = convergence(problem, method, unit_x, y, n, seed)
-    passing = None
-    if "passes_hot_spot_limit" in ev.outputs:
-        p = np.array(ev.outputs["passes_hot_spot_limit"], dtype=float)
-        passing = float(np.nanmean(p)) if np.isfinite(p).any() else None
+    passing = {name: probability(problem, method, ev.outputs[name])
+               for name in ("passes_hot_spot_limit", "passes_limits") if name in ev.outputs}
     stopped = int(np.sum(ev.status != "ok"))
     timings = {"evaluate_s": ev.seconds, "stopped_samples": stopped,
                "censored_samples": stopped if policy == "censor" else 0,

@@ -45,7 +45,7 @@ def as_json(res) -> dict:
             "failure_policy": res.policy, "factors": res.factors,
             "indices": {k: table(v) for k, v in res.indices.items()},
             "convergence": {k: {kk: vv for kk, vv in v.items() if kk != "history"} for k, v in res.convergence.items()},
-            "failures": res.failures, "probability_of_passing_hot_spot_limit": res.probability_of_passing,
+            "failures": res.failures, "probability_of_passing": res.probability_of_passing,
             "timings": res.timings}
 
 

@@ -145,13 +145,9 @@ def summarise(case, z, y, y_out) -> dict:
         "yield": {},
         "selectivity": {},
     }
-    key = case.index(case.key_reactant)
-    for i, name in enumerate(names):
-        formed, yld, sel = formed_yield_selectivity(case, name, f_in, f_out)
-        if i == key or formed <= 0:
-            continue
-        out["yield"][name] = float(yld)
-        out["selectivity"][name] = float(sel)
+    if case.product:  # the desired product only: co-products (water, CO2) have no meaningful selectivity
+        out["yield"][case.product] = figures["product_yield"]
+        out["selectivity"][case.product] = figures["product_selectivity"]
     return out
 
 

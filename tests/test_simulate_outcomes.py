@@ -128,3 +128,16 @@ def test_json_answer_turns_nan_into_null():
     from tubewright.optimizer.output.jsonsafe import finite as _finite
 
     assert _finite({"a": float("nan"), "b": [1.0, float("inf")], "c": "x"}) == {"a": None, "b": [1.0, None], "c": "x"}
+
+
+def test_yield_and_selectivity_are_reported_for_the_product_only():
+    # definitions (docs/case-reference.md): yield = F_formed / F_key,fed and selectivity = F_formed /
+    # F_key,converted for the propene -> acrolein reaction of the demo (stoichiometric factor 1)
+    case = load_case(DEMO / "oxidation.toml")
+    s = simulate(case, checks=False).summary
+    assert set(s["selectivity"]) == set(s["yield"]) == {case.product}
+    fed = case.feed.molar_flows[case.index(case.key_reactant)]
+    out = s["outlet_molar_flow_mol_s"]
+    formed = out[case.product] - case.feed.molar_flows[case.index(case.product)]
+    assert s["yield"][case.product] == pytest.approx(formed / fed, rel=1e-12)
+    assert s["selectivity"][case.product] == pytest.approx(formed / (fed - out[case.key_reactant]), rel=1e-12)

@@ -132,7 +132,6 @@ def summarise(case, z, y, y_out) -> dict:
     if not case.coolant.kind.exchanges_heat:
         for k in ("coolant_outlet_temperature_K", "max_temperature_difference_K", "max_runaway_group"):
             figures[k] = None
-    f_in = np.array(case.feed.molar_flows)
     f_out = y_out[layout.flows] * N
     out = {
         "status": None,

@@ -191,7 +191,6 @@ def test_reoptimise_ranks_uncertainties_for_the_optimal_cost():
 
 def test_clopper_pearson_against_scipy():
     from scipy.stats import binomtest
-
     from tubewright.optimizer.screening.analysis import clopper_pearson
 
     for k, n in ((0, 20), (3, 20), (19, 20), (20, 20), (512, 1024)):

@@ -24,10 +24,6 @@ class CoolantMode:
     batchable: bool  # the batch integrator carries it (else: one simulation per sample)
     keys: tuple  # the [coolant] keys this mode reads; any other key is refused
 
-    @property
-    def has_coolant_temperature(self) -> bool:
-        return self.temperature_source in ("given", "saturation")
-
 
 COOLANT_MODES = {
     row.name: row

@@ -32,10 +32,6 @@ class StateLayout:
         return cls(tuple(case.names))
 
     @property
-    def n_species(self) -> int:
-        return len(self.species)
-
-    @property
     def size(self) -> int:
         return len(self.species) + len(TAIL)
 

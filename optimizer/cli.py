@@ -290,7 +290,7 @@ def cmd_screen(args) -> int:
             continue
         prob = res.probability_of_passing[name]
         if prob is None:
-            print(f"  probability of passing {label}: not estimated (Morris trajectories are no random sample of "
+            print(f"  probability of passing {label}: not estimated (Morris trajectories are not a random sample of "
                   "the inputs; use --method sobol)")
         else:
             print(f"  probability of passing {label}: {prob['estimate']:.3f} (95 % interval {prob['low_95']:.3f} "

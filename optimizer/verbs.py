@@ -93,8 +93,9 @@ def screen(case, method: str = "morris", samples: int | None = None, seed: int =
     if problem:
         raise option_error("--samples", problem)
     if max_hours is not None:
-        rows = rows_for(salib_problem(read_uncertain(case)), method, n)
-        hours = estimated_hours(case, rows, reoptimise, batched, workers)
+        items = read_uncertain(case)
+        rows = rows_for(salib_problem(items), method, n)
+        hours = estimated_hours(case, items, rows, reoptimise, batched, workers)
         if hours > max_hours:
             raise option_error("--samples", f"{rows} evaluations would take about {hours:.2g} h (estimated from a "
                                f"timed probe), more than the budget of {max_hours:g} h: use fewer samples, or "
@@ -103,18 +104,16 @@ def screen(case, method: str = "morris", samples: int | None = None, seed: int =
                    workers=workers)
 
 
-def estimated_hours(case, rows: int, reoptimise: bool, batched: bool, workers: int) -> float:
+def estimated_hours(case, items, rows: int, reoptimise: bool, batched: bool, workers: int) -> float:
     """Hours for ``rows`` evaluations, from timing a probe (skipped for screenings below a few hundred
     evaluations, which take seconds). A probe costs at most a few seconds."""
     import time
 
     import numpy as np
     from tubewright.optimizer.screening.evaluation import evaluate
-    from tubewright.optimizer.screening.uncertain import read_uncertain
 
     if rows <= PROBE_FREE_ROWS:
         return 0.0
-    items = read_uncertain(case)
     probe = np.random.default_rng(0).uniform(0.05, 0.95, size=(PROBE_ROWS, len(items)))
     t0 = time.perf_counter()
     if reoptimise:

@@ -196,7 +196,8 @@ def _run_locked(study, folder, workers, scheduler, retry_failed, progress) -> di
         interrupted = True
         log.write(f"{_now()} interrupted: {len(todo) - counts['done'] - counts['not_done']} tasks not finished "
                   "(recorded as interrupted; run again to resume)\n")
-        store.mark_unfinished([t for t in todo if store.statuses().get(t.task_id) == Status.PENDING],
+        now = store.statuses()  # one query, not one per task
+        store.mark_unfinished([t for t in todo if now.get(t.task_id) == Status.PENDING],
                               Status.INTERRUPTED, Reason.INTERRUPTED, "interrupted (Ctrl-C or SIGINT): run again")
     except (OSError, sqlite3.OperationalError) as err:
         if is_disk_full(err):

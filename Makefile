@@ -18,7 +18,7 @@ demo: $(STAMP)
 	$(BIN)/tubewright simulate studies/demo/oxidation.toml --out demo-output/oxidation
 	$(BIN)/tubewright simulate studies/demo/coil.toml --out demo-output/coil
 	$(BIN)/tubewright optimize studies/demo/oxidation-design.toml --ideal --out demo-output/oxidation-design
-	$(BIN)/tubewright screen studies/demo/oxidation-screen.toml --method morris --samples 10 --policy censor --out demo-output/screen
+	$(BIN)/tubewright screen studies/demo/oxidation-screen.toml --method morris --samples 10 --out demo-output/screen
 	$(BIN)/tubewright run studies/demo/study.toml --out demo-output/study
 	$(BIN)/tubewright report demo-output/study
 

@@ -155,12 +155,23 @@ def limit_findings(case, result) -> list[Finding]:
     return out
 
 
-def runaway_sensitivity(case, result, resimulate, step: float = 1.0) -> list[Finding]:
+SENSITIVITY_STEP = 0.1  # K: small against the distance to the runaway boundary of any design worth judging
+BRANCH_AGREEMENT = 0.5  # one-sided slopes within 50 % of each other: both steps stayed on one branch
+
+
+def runaway_sensitivity(case, result, resimulate, step: float = SENSITIVITY_STEP) -> list[Finding]:
     """Normalised sensitivity of the hot-spot temperature T* to a parameter phi (Morbidelli and Varma,
-    AIChE J. 28, 1982, 705-713): s(T*; phi) = (phi / T*) dT*/dphi, by a forward difference of one
-    re-simulation with phi + step (step in K). Their runaway boundary is where s peaks as phi varies; as a
-    single-point screen we flag s > 5 (our threshold: a reactor far from runaway has s near 1 or below, as
-    T* follows the coolant). ``resimulate(case, coolant_guess=...)`` simulates a moved case without checks."""
+    AIChE J. 28, 1982, 705-713): s(T*; phi) = (phi / T*) dT*/dphi, a local derivative by the central
+    difference of two re-simulations at phi +- step (0.1 K, integrated to rtol 1e-8 so that the hot spot
+    carries ~1e-5 K of error). Their runaway boundary is where s peaks as phi varies; as a single-point
+    screen we flag s > 5 (our threshold: a reactor far from runaway has s near 1 or below, as T* follows
+    the coolant).
+
+    Branch check: the forward and backward slopes must agree within 50 %. When the raised run jumps (or
+    stops at the temperature ceiling) the design lies within one step of the runaway boundary, and the
+    figure is reported as "beyond the runaway boundary" instead of a secant across the jump; when the
+    lowered run falls back, the design is already on the runaway branch. ``resimulate(case,
+    coolant_guess=...)`` simulates a moved case without checks."""
     out = []
     tstar = result.summary["max_temperature_K"]
     targets = []
@@ -168,22 +179,43 @@ def runaway_sensitivity(case, result, resimulate, step: float = 1.0) -> list[Fin
         targets.append(("coolant temperature", "coolant", case.coolant.temperature))
     if not case.coolant.kind.holds_temperature:
         targets.append(("feed temperature", "feed", case.feed.temperature))
-    # rtol 1e-6 (error ~1e-3 K at 600 K) resolves a hot-spot change of 0.3-3 K per K well enough for a screen
-    loose = replace(case.numerics, rtol=max(case.numerics.rtol, 1e-6))
+    tight = replace(case.numerics, rtol=min(case.numerics.rtol, 1e-8))
+    guess = float(result.columns["Tc_K"][0])
     for label, which, phi in targets:
-        if which == "coolant":
-            moved = replace(case, coolant=replace(case.coolant, temperature=phi + step), numerics=loose)
-        else:
-            moved = replace(case, feed=replace(case.feed, temperature=phi + step), numerics=loose)
-        r = resimulate(moved, coolant_guess=float(result.columns["Tc_K"][0]))
-        if not r.ok:
-            out.append(Finding(f"runaway_sensitivity_{which}", "warning", f"raising the {label} by {step:g} K "
-                               f"stops the simulation ({r.reason}): runaway-sensitive"))
+        hot = {}
+        for sign in (0, +1, -1):
+            value = phi + sign * step
+            moved = replace(case, numerics=tight)
+            if which == "coolant":
+                moved = replace(moved, coolant=replace(case.coolant, temperature=value))
+            else:
+                moved = replace(moved, feed=replace(case.feed, temperature=value))
+            r = resimulate(moved, coolant_guess=guess)
+            hot[sign] = r.summary["max_temperature_K"] if r.ok else math.inf
+        code = f"runaway_sensitivity_{which}"
+        if not math.isfinite(hot[0]):
+            out.append(Finding(code, "warning", "the case does not reach the outlet at tight tolerances: "
+                               "runaway-sensitive"))
             continue
-        s = phi / tstar * (r.summary["max_temperature_K"] - tstar) / step
+        up, down = hot[+1] - hot[0], hot[0] - hot[-1]
+        if not (math.isfinite(up) and math.isfinite(down)) or abs(up - down) > BRANCH_AGREEMENT * max(
+                abs(up), abs(down)) + 1e-4:
+            if not math.isfinite(up) or up > down:
+                what = (f"raising the {label} by {step:g} K " + ("stops the simulation at the temperature ceiling"
+                        if not math.isfinite(up) else f"makes the hot spot jump by {up:.3g} K (against "
+                        f"{down:.3g} K for lowering it)") + ": the design is within "
+                        f"{step:g} K of the runaway boundary, and the raised run lies beyond it")
+            else:
+                what = (f"lowering the {label} by {step:g} K drops the hot spot by {down:.3g} K (against "
+                        f"{up:.3g} K for raising it): the design lies beyond the runaway boundary, on the runaway "
+                        "branch")
+            out.append(Finding(code, "warning", f"beyond the runaway boundary: {what}", math.inf,
+                               RUNAWAY_SENSITIVITY_LIMIT))
+            continue
+        s = phi / tstar * (hot[+1] - hot[-1]) / (2.0 * step)
         level = "warning" if s > RUNAWAY_SENSITIVITY_LIMIT else "info"
-        out.append(Finding(f"runaway_sensitivity_{which}", level, f"normalised hot-spot sensitivity to {label} "
-                           f"s = {s:.3g} (flag above {RUNAWAY_SENSITIVITY_LIMIT:g})", s,
+        out.append(Finding(code, level, f"normalised hot-spot sensitivity to {label} s = {s:.3g} (local "
+                           f"derivative, +-{step:g} K; flag above {RUNAWAY_SENSITIVITY_LIMIT:g})", s,
                            RUNAWAY_SENSITIVITY_LIMIT))
     return out
 

@@ -31,7 +31,7 @@ from tubewright.optimizer.output.caution import CAUTION
 from tubewright.optimizer.output.jsonsafe import finite
 from tubewright.optimizer.output.progress import ProgressBar
 from tubewright.optimizer.output.text import safe_frame
-from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES
+from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES, POLICIES
 from tubewright.optimizer.study.spec import MAX_TASKS
 
 EXIT_OK, EXIT_NOT_OK, EXIT_BAD_INPUT, EXIT_BUG, EXIT_INTERRUPTED = 0, 1, 2, 3, 130
@@ -395,8 +395,10 @@ def build_parser() -> argparse.ArgumentParser:
                      help="Morris trajectories or Sobol base samples (default "
                      + ", ".join(f"{n} for {m}" for m, n in DEFAULT_SAMPLES.items()) + ")")
     scr.add_argument("--seed", type=int, default=0, help="seed of the samples and bootstrap (default 0)")
-    scr.add_argument("--policy", choices=("report", "censor"), default="report",
-                     help="failed samples: report them and skip the output (default), or censor them")
+    scr.add_argument("--policy", choices=POLICIES, default=POLICIES[0],
+                     help="stopped samples: censor them at the values where they stopped, so that every output "
+                     "is analysed (default), or strict: leave an output with any failed sample unanalysed; both "
+                     "count and list the failed samples")
     scr.add_argument("--reoptimise", action="store_true", help="re-optimise the design for each sample")
     scr.add_argument("--no-batch", action="store_true", help="simulate one sample at a time")
     scr.add_argument("--workers", type=int, default=min(2, os.cpu_count() or 1),

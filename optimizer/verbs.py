@@ -71,7 +71,7 @@ def pareto(case, points: int) -> dict:
     return pareto_front(case, points)
 
 
-def screen(case, method: str = "morris", samples: int | None = None, seed: int = 0, policy: str = "report",
+def screen(case, method: str = "morris", samples: int | None = None, seed: int = 0, policy: str = "censor",
            reoptimise: bool = False, batched: bool = True, workers: int = 1, progress=None,
            max_hours: float | None = DEFAULT_MAX_HOURS):
     """Rank the [uncertain] quantities of a case: a ScreeningResult. ``samples`` defaults to

@@ -6,10 +6,11 @@ Seeds: an int (0 is a seed like any other). SALib gets fresh numpy Generators de
 int, so its ``if seed:`` test cannot turn seed 0 into "no seed".
 
 Failed samples (a simulation that stops): counted and listed per output with their inputs. Policy
-``report`` (default): an output with any failed sample gets no indices. Policy ``censor``: a stopped sample
-contributes its values where it stopped (a runaway's hot spot is the temperature ceiling it passed, a lower
-bound of the truth); the result says how many samples are censored. A sample whose integration failed
-outright has no values under either policy. The probability of passing the hot-spot limit counts a runaway
+``censor`` (default): a stopped sample contributes its values where it stopped (a runaway's hot spot is the
+temperature ceiling it passed, a lower bound of the truth), so every output is analysed; the result says how
+many samples are censored. Policy ``strict``: an output with any failed sample gets no indices. A sample
+whose integration failed outright has no values under either policy (its outputs are not analysed, and the
+message says so). The probability of passing the hot-spot limit counts a runaway
 sample as not passing.
 """
 
@@ -23,7 +24,7 @@ from tubewright.optimizer.screening.sampling import MORRIS_LEVELS, rng_for, samp
 from tubewright.optimizer.screening.uncertain import salib_problem
 
 METHODS = ("morris", "sobol")
-POLICIES = ("report", "censor")
+POLICIES = ("censor", "strict")  # the first is the default of every caller
 DEFAULT_SAMPLES = {"morris": 20, "sobol": 1024}  # Morris trajectories or Sobol base samples, for every verb
 MAX_SAMPLES = {"morris": 10_000, "sobol": 2**18}  # beyond these a screening of a reactor takes days
 
@@ -84,16 +85,23 @@ def clopper_pearson(k: int, n: int, confidence: float = 0.95) -> tuple[float, fl
     return low, high
 
 
-def probability(problem, method: str, y) -> dict | None:
-    """The probability that a 0/1 output is 1, estimated only from samples of the input distribution: the A
-    and B rows of Sobol's design (quasi-random, independent of each other's columns), with the exact 95 %
-    interval. Morris trajectories sit on a grid that covers the tails evenly by design: they estimate no
-    probability (None)."""
+def random_rows(problem, method: str, size: int):
+    """The rows of a design that sample the input distribution: the A and B rows of Sobol's design
+    (quasi-random, independent of each other's columns). Morris trajectories sit on a grid that covers the
+    tails evenly by design, so they sample no distribution: None."""
     if method != "sobol":
         return None
     block = len(factor_names(problem)) + 2
+    return np.sort(np.concatenate([np.arange(0, size, block), np.arange(block - 1, size, block)]))
+
+
+def probability(problem, method: str, y) -> dict | None:
+    """The probability that a 0/1 output is 1, estimated only from samples of the input distribution
+    (``random_rows``), with the exact 95 % interval; None with Morris."""
     y = np.asarray(y, dtype=float)
-    rows = np.sort(np.concatenate([np.arange(0, y.size, block), np.arange(block - 1, y.size, block)]))
+    rows = random_rows(problem, method, y.size)
+    if rows is None:
+        return None
     values = y[rows]
     values = values[np.isfinite(values)]
     if not values.size:
@@ -101,6 +109,22 @@ def probability(problem, method: str, y) -> dict | None:
     k, n = int(values.sum()), int(values.size)
     low, high = clopper_pearson(k, n)
     return {"estimate": k / n, "low_95": low, "high_95": high, "samples": n}
+
+
+def spread(problem, method: str, y) -> dict | None:
+    """The 5th, 50th and 95th percentiles of an output over the samples of the input distribution
+    (``random_rows``; linear interpolation between order statistics, numpy's default) and the number of
+    samples behind them; None with Morris, whose trajectories are no sample of the distribution."""
+    y = np.asarray(y, dtype=float)
+    rows = random_rows(problem, method, y.size)
+    if rows is None:
+        return None
+    values = y[rows]
+    values = values[np.isfinite(values)]
+    if not values.size:
+        return None
+    p5, p50, p95 = np.percentile(values, [5.0, 50.0, 95.0])
+    return {"p5": float(p5), "p50": float(p50), "p95": float(p95), "samples": int(values.size)}
 
 
 def convergence(problem, method, unit_x, y, n: int, seed: int) -> dict:
@@ -144,10 +168,11 @@ class ScreeningResult:
     convergence: dict = field(default_factory=dict)
     failures: dict = field(default_factory=dict)  # output -> {"count", "samples": [...]}
     probability_of_passing: dict = field(default_factory=dict)  # output -> probability() (None with Morris)
+    spread: dict = field(default_factory=dict)  # output -> spread(): P5/P50/P95 (None with Morris)
     timings: dict = field(default_factory=dict)
 
 
-def run(items, evaluator, method: str = "morris", n: int = 16, seed: int = 0, policy: str = "report",
+def run(items, evaluator, method: str = "morris", n: int = 16, seed: int = 0, policy: str = "censor",
         outputs=None) -> ScreeningResult:
     """The functional core: problem from ``items`` -> unit samples (SALib) -> ``evaluator(unit_x)``
     (an Evaluations) -> indices (SALib) and the convergence check, for each output in ``outputs``."""
@@ -178,7 +203,9 @@ def run(items, evaluator, method: str = "morris", n: int = 16, seed: int = 0, po
                               "samples": [{"sample": int(i), "reason": ev.reason[i],
                                            **{c: float(samples[c].iloc[i]) for c in samples.columns}}
                                           for i in np.flatnonzero(bad)[:50]]}
-            indices[name] = f"not analysed: {int(bad.sum())} of {len(y)} samples failed (policy {policy})"
+            why = ("policy strict; the default policy censor analyses stopped samples with the values where they "
+                   "stopped" if policy == "strict" else "their integration failed outright, so no value exists")
+            indices[name] = f"not analysed: {int(bad.sum())} of {len(y)} samples failed ({why})"
             continue
         if np.ptp(y) <= 1e-9 * max(np.max(np.abs(y)), 1e-300):  # integrator noise is not variation
             indices[name] = "not analysed: the output does not vary over the samples"
@@ -188,10 +215,13 @@ def run(items, evaluator, method: str = "morris", n: int = 16, seed: int = 0, po
         conv[name] = convergence(problem, method, unit_x, y, n, seed)
     passing = {name: probability(problem, method, ev.outputs[name])
                for name in ("passes_hot_spot_limit", "passes_limits") if name in ev.outputs}
+    spreads = {name: spread(problem, method, (ev.censored if policy == "censor" else ev.outputs)[name])
+               for name in (outputs or ev.outputs) if name in ev.outputs and not name.startswith("passes_")}
     stopped = int(np.sum(ev.status != "ok"))
     timings = {"evaluate_s": ev.seconds, "stopped_samples": stopped,
                "censored_samples": stopped if policy == "censor" else 0,
                "analyse_s": time.perf_counter() - t_analysis,
                "evaluations": int(unit_x.shape[0]), "evaluations_per_s": unit_x.shape[0] / max(ev.seconds, 1e-9),
                "handed_over": ev.handed_over}
-    return ScreeningResult(method, seed, n, policy, factors, samples, out, indices, conv, failures, passing, timings)
+    return ScreeningResult(method, seed, n, policy, factors, samples, out, indices, conv, failures, passing, spreads,
+                           timings)

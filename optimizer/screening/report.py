@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import textwrap
 from pathlib import Path
 
 import numpy as np
@@ -15,6 +16,13 @@ def ranking_lines(res) -> list[str]:
     key = "ST" if res.method == "sobol" else "mu_star"
     for name, idx in res.indices.items():
         lines.append(f"\n{name}:")
+        sp = res.spread.get(name)
+        if sp is not None:
+            lines.append(f"  spread over {sp['samples']} quasi-random samples: P5 {sp['p5']:.6g}, P50 "
+                         f"{sp['p50']:.6g}, P95 {sp['p95']:.6g}")
+        elif name in res.spread:
+            lines.append("  spread: not estimated (Morris trajectories are no sample of the input distribution; "
+                         "use --method sobol)")
         if isinstance(idx, str):
             lines.append(f"  {idx}")
             continue
@@ -45,7 +53,7 @@ def as_json(res) -> dict:
             "failure_policy": res.policy, "factors": res.factors,
             "indices": {k: table(v) for k, v in res.indices.items()},
             "convergence": {k: {kk: vv for kk, vv in v.items() if kk != "history"} for k, v in res.convergence.items()},
-            "failures": res.failures, "probability_of_passing": res.probability_of_passing,
+            "failures": res.failures, "probability_of_passing": res.probability_of_passing, "spread": res.spread,
             "timings": res.timings}
 
 
@@ -76,29 +84,60 @@ def write_files(res, out: Path) -> dict:
 
 
 def plot(res, path: Path) -> Path:
-    tables = [(k, v) for k, v in res.indices.items() if not isinstance(v, str)]
-    cols = max(1, min(3, len(tables)))
-    rows = max(1, math.ceil(len(tables) / cols))
+    """One panel per output: Morris mu* against sigma (a group of factors has no sigma in SALib, so it is
+    drawn on the axis with an open marker and said so), or Sobol S1 and ST bars with their 95 % intervals
+    (values above 1, an estimation artefact, are written out with their interval). An output that was not
+    analysed keeps its panel, which says why."""
+    panels = list(res.indices.items())
+    cols = max(1, min(3, len(panels)))
+    rows = max(1, math.ceil(len(panels) / cols))
     fig = new_figure((5.0 * cols, 3.8 * rows))
     axes = fig.subplots(rows, cols, squeeze=False)
-    for ax, (name, idx) in zip(axes.ravel(), tables):
-        if res.method == "morris":
-            ax.errorbar(idx["mu_star"], idx["sigma"], xerr=idx["mu_star_conf"], fmt="o", ms=4, capsize=2)
-            for f, r in idx.iterrows():
-                ax.annotate(plain(f), (r["mu_star"], r["sigma"]), fontsize=7, xytext=(3, 3), textcoords="offset points")
-            ax.set_xlabel("mu*")
-            ax.set_ylabel("sigma")
-        else:
-            x = np.arange(len(idx))
-            ax.bar(x - 0.2, idx["S1"], 0.4, yerr=idx["S1_conf"], capsize=2, label="S1")
-            ax.bar(x + 0.2, idx["ST"], 0.4, yerr=idx["ST_conf"], capsize=2, label="ST")
-            ax.set_xticks(x, [plain(f) for f in idx.index], rotation=45, ha="right", fontsize=7)
-            ax.set_ylim(bottom=min(0.0, float(np.nanmin(idx["S1"] - idx["S1_conf"]))))
-            ax.legend(fontsize=7)
+    for ax, (name, idx) in zip(axes.ravel(), panels):
         ax.set_title(plain(name), fontsize=9)
-    for ax in axes.ravel()[len(tables):]:
+        if isinstance(idx, str):
+            ax.axis("off")
+            ax.text(0.5, 0.5, plain(textwrap.fill(idx, 40)), ha="center", va="center", fontsize=8,
+                    transform=ax.transAxes)
+            continue
+        if res.method == "morris":
+            _morris_panel(ax, idx)
+        else:
+            _sobol_panel(ax, idx)
+    for ax in axes.ravel()[len(panels):]:
         ax.axis("off")
     fig.text(0.01, 0.005, "Screening estimate only - verify before use.", fontsize=7, color="gray")
     fig.tight_layout(rect=(0, 0.02, 1, 1))
     fig.savefig(path, dpi=100)
     return path
+
+
+def _morris_panel(ax, idx):
+    sigma = np.asarray(idx["sigma"], dtype=float)
+    known = np.isfinite(sigma)
+    ax.errorbar(idx["mu_star"][known], sigma[known], xerr=idx["mu_star_conf"][known], fmt="o", ms=4, capsize=2)
+    if (~known).any():
+        ax.errorbar(idx["mu_star"][~known], np.zeros((~known).sum()), xerr=idx["mu_star_conf"][~known], fmt="o",
+                    mfc="none", ms=6, capsize=2, label="group (sigma not defined)")
+        ax.legend(fontsize=7)
+    for (f, r), ok in zip(idx.iterrows(), known):
+        ax.annotate(plain(f), (r["mu_star"], r["sigma"] if ok else 0.0), fontsize=7, xytext=(3, 3),
+                    textcoords="offset points")
+    ax.set_xlabel("mu*")
+    ax.set_ylabel("sigma")
+
+
+def _sobol_panel(ax, idx):
+    x = np.arange(len(idx))
+    ax.bar(x - 0.2, idx["S1"], 0.4, yerr=idx["S1_conf"], capsize=2, label="S1")
+    ax.bar(x + 0.2, idx["ST"], 0.4, yerr=idx["ST_conf"], capsize=2, label="ST")
+    ax.set_xticks(x, [plain(f) for f in idx.index], rotation=45, ha="right", fontsize=7)
+    top = float(np.nanmax(np.concatenate([idx["S1"] + idx["S1_conf"], idx["ST"] + idx["ST_conf"], [1.0]])))
+    ax.set_ylim(min(0.0, float(np.nanmin(idx["S1"] - idx["S1_conf"]))), 1.08 * top)
+    ax.axhline(1.0, color="gray", lw=0.6, ls=":")
+    for k, (_, r) in enumerate(idx.iterrows()):
+        for dx, key in ((-0.2, "S1"), (0.2, "ST")):
+            if r[key] > 1.0:
+                ax.annotate(f"{r[key]:.2f}+-{r[key + '_conf']:.2f}", (k + dx, r[key]), fontsize=6, ha="center",
+                            xytext=(0, 3), textcoords="offset points")
+    ax.legend(fontsize=7)

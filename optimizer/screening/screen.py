@@ -11,7 +11,7 @@ SCREENED_OUTPUTS = ("max_temperature_K", "conversion", "product_selectivity", "p
                     "pressure_drop_Pa", "passes_hot_spot_limit", "passes_limits")
 
 
-def screen(case, method: str = "morris", n: int = 16, seed: int = 0, policy: str = "report",
+def screen(case, method: str = "morris", n: int = 16, seed: int = 0, policy: str = "censor",
            batched: bool = True, batch_size: int = 500, progress=None, reoptimise: bool = False,
            workers: int = 1) -> ScreeningResult:
     """Screen the [uncertain] quantities of a case for the reactor outputs (SCREENED_OUTPUTS), or with

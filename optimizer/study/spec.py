@@ -12,7 +12,7 @@
     #           or latin_hypercube = { samples, seed, ranges = { KEY = [lo, hi] } } (whole-number bounds: rounded)
     # optimize: starts = N, seed = S, ideal = true
     # pareto:   points = N
-    # screen:   method = "morris" | "sobol", samples = N, seed = S, policy = "report" | "censor"
+    # screen:   method = "morris" | "sobol", samples = N, seed = S, policy = "censor" | "strict"
 
 A concrete task's identity is a hash of its kind, options and fully resolved case (includes and overrides
 applied) and the software version: re-running a study skips what is already done.
@@ -244,7 +244,7 @@ def _options(t, kind, src, where) -> dict:
         if method not in METHODS:
             raise CaseError(src, f"{where}.method", f"{method!r} is not allowed; allowed: "
                             + ", ".join(f'"{m}"' for m in METHODS))
-        policy = t.get("policy", "report")
+        policy = t.get("policy", POLICIES[0])
         if policy not in POLICIES:
             raise CaseError(src, f"{where}.policy", f"{policy!r} is not allowed{suggest(str(policy), POLICIES)}; "
                             "allowed: " + ", ".join(f'"{m}"' for m in POLICIES))

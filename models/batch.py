@@ -17,6 +17,7 @@ from scipy.integrate import BDF, solve_ivp
 from scipy.sparse import csc_matrix
 from scipy.sparse.linalg import splu
 
+from .limits import LIMITS
 from .outcomes import Reason, Status
 from .parameters import apply
 from .simulator import complex_step_columns, simulate, state_rhs
@@ -178,10 +179,11 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> Bat
     return BatchResult(status, reason, outputs, time.perf_counter() - t0, censored, int(handover.sum()), codes)
 
 
-OUTPUTS = ("max_temperature_K", "max_temperature_position_m", "conversion", "pressure_drop_Pa",
-           "outlet_temperature_K", "heat_removed_W", "production_rate_mol_s", "product_selectivity", "product_yield",
-           "max_temperature_difference_K", "max_runaway_group", "coolant_outlet_temperature_K",
-           "inlet_velocity_m_s", "reynolds", "length_to_diameter")
+_REPORTED = ("max_temperature_K", "max_temperature_position_m", "conversion", "pressure_drop_Pa",
+             "outlet_temperature_K", "heat_removed_W", "production_rate_mol_s", "product_selectivity",
+             "product_yield")
+# every figure a limit bounds is an output, so that screening judges each limit (models.limits)
+OUTPUTS = _REPORTED + tuple(dict.fromkeys(row.figure for row in LIMITS.values() if row.figure not in _REPORTED))
 
 
 def single_outputs(result, censored: bool = False) -> dict:

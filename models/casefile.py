@@ -268,7 +268,7 @@ def build_case(data: dict, source: str) -> C.Case:
             raise CaseError(source, "bed.particle_diameter", "must be smaller than tube.inner_diameter")
     coolant = _coolant(top.sub("coolant"), feed, source)
     heat = _heat_transfer(top.sub("heat_transfer", required=False), coolant, bed, feed, source)
-    limits = _limits(top.sub("limits", required=False), species, product, coolant, source)
+    limits = _limits(top.sub("limits", required=False), species, product, coolant, bed, source)
     return C.Case(source=source, title=title, phase=phase, species=tuple(species), reactions=tuple(reactions),
                   key_reactant=key, product=product or None, feed=feed, tube=tube, bed=bed, coolant=coolant,
                   heat_transfer=heat, numerics=numerics, limits=limits,
@@ -585,9 +585,10 @@ def _heat_transfer(t: Table | None, coolant, bed, feed, source):
     return ht
 
 
-def _limits(t: Table | None, species, product, coolant, source) -> dict:
+def _limits(t: Table | None, species, product, coolant, bed, source) -> dict:
     """[limits] by the rows of models.limits: each bound in SI; a limit that cannot apply (no product, a
-    coolant mode without heat exchange or without a coolant flow) is refused."""
+    coolant mode without heat exchange or without a coolant flow, no packed bed) is refused. A switch row
+    (``correlations_in_range = true``) is stored with its fixed bound 0; ``false`` leaves it out."""
     if t is None:
         return {}
     t.allowed = set(LIMITS)
@@ -602,6 +603,15 @@ def _limits(t: Table | None, species, product, coolant, source) -> dict:
             raise CaseError(source, t.key(key), f'does not apply to coolant mode "{coolant.mode}" (no heat exchange)')
         if row.needs_coolant_flow and not coolant.kind.has_coolant_flow:
             raise CaseError(source, t.key(key), f'does not apply to coolant mode "{coolant.mode}" (no coolant flow)')
+        if row.needs_bed and bed is None:
+            raise CaseError(source, t.key(key), "applies to packed tubes only (this case has no [bed])")
+        if row.switch:
+            value = t.raw(key)
+            if not isinstance(value, bool):
+                raise CaseError(source, t.key(key), f"must be true or false, got {value!r}")
+            if value:
+                out[key] = 0.0
+            continue
         if row.dimension == "production":
             out[key] = _production_rate(t.raw(key), species, product, source, t.key(key))
         elif row.dimension == "dimensionless":

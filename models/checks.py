@@ -13,7 +13,7 @@ import numpy as np
 
 from . import correlations as corr
 from .backend import NUMPY
-from .figures import critical_reaction, runaway_group
+from .figures import correlation_arguments, critical_reaction, layout_figures, runaway_group
 from .limits import LIMITS
 from .summary import reaction_heats
 from .thermo import R_GAS
@@ -241,21 +241,14 @@ def runaway_criterion(case, result) -> list[Finding]:
 
 
 def correlation_ranges(case, result) -> list[Finding]:
-    """Validity ranges of the correlations and cp polynomials at the visited states, as warnings."""
+    """Validity ranges of the correlations and cp polynomials at the visited states, as warnings. The
+    design-dependent arguments come from models.figures.correlation_arguments, the same list that the
+    limit ``correlations_in_range`` bounds."""
     msgs = []
-    re = reynolds(case)
-    ht = case.heat_transfer
+    for fn, arg, x in correlation_arguments(case, layout_figures(case)):
+        msgs += corr.out_of_range(fn, **{arg: (x, x)})
     if case.bed is not None:
-        msgs += corr.out_of_range(corr.ergun_pressure_gradient, Re_p=(re, re), voidage=(case.bed.voidage,) * 2)
-        if ht.inside == "leva":
-            r = case.bed.particle_diameter / case.tube.inner_diameter
-            msgs += corr.out_of_range(corr.leva_cooling_wall_nusselt, Re_p=(re, re), dp_dt=(r, r))
-    else:
-        msgs += corr.out_of_range(corr.churchill_1977_friction, Re=(re, re))
-        fn = {"gnielinski": corr.gnielinski_nusselt, "dittus_boelter": corr.dittus_boelter_nusselt,
-              "laminar": corr.laminar_nusselt}.get(ht.inside)
-        if fn is not None:
-            msgs += corr.out_of_range(fn, Re=(re, re))
+        msgs += corr.out_of_range(corr.ergun_pressure_gradient, voidage=(case.bed.voidage,) * 2)
     t = result.columns["T_K"]
     for sp in case.species:
         lo, hi = sp.cp_model.t_min, sp.cp_model.t_max

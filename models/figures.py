@@ -14,6 +14,7 @@ import math
 
 import numpy as np
 
+from . import correlations as corr
 from .backend import NUMPY
 from .reactions import heat_of_reaction
 from .thermo import R_GAS
@@ -32,7 +33,7 @@ def layout_figures(case) -> dict:
     else:
         vdot_tube = mass_flow_tube / feed.density
     d_char = case.bed.particle_diameter if case.bed is not None else tube.inner_diameter
-    return {
+    out = {
         "inlet_velocity_m_s": vdot_tube / tube.area,
         "reynolds": mass_flow_tube / tube.area * d_char / feed.viscosity,
         "length_to_diameter": tube.length / tube.inner_diameter,
@@ -40,6 +41,49 @@ def layout_figures(case) -> dict:
         "outer_area_m2": n * math.pi * (tube.inner_diameter + 2.0 * tube.wall_thickness) * tube.length,
         "inlet_volumetric_flow_m3_s": n * vdot_tube,
     }
+    if case.bed is not None:
+        out["tube_to_particle_ratio"] = tube.inner_diameter / case.bed.particle_diameter
+    return out
+
+
+def correlation_arguments(case, figures: dict) -> list[tuple]:
+    """The arguments of the transport correlations that the case uses which depend on the design, as
+    (correlation function, argument name, value) with the value taken from the layout ``figures`` (numbers
+    or Pyomo expressions). The Reynolds number of the feed holds along the whole tube (constant mass flux
+    and viscosity), so the inlet value is every value. Properties the design cannot move (voidage, Prandtl
+    number) are checked by ``models.checks.correlation_ranges`` only."""
+    re = figures["reynolds"]
+    out = []
+    if case.bed is not None:
+        out.append((corr.ergun_pressure_gradient, "Re_p", re))
+        if case.coolant.kind.exchanges_heat and case.heat_transfer.inside == "leva" and \
+                case.heat_transfer.overall is None:
+            out += [(corr.leva_cooling_wall_nusselt, "Re_p", re),
+                    (corr.leva_cooling_wall_nusselt, "dp_dt", 1.0 / figures["tube_to_particle_ratio"])]
+        return out
+    out.append((corr.churchill_1977_friction, "Re", re))
+    if case.coolant.kind.exchanges_heat and case.heat_transfer.overall is None:
+        inside = {"gnielinski": corr.gnielinski_nusselt, "dittus_boelter": corr.dittus_boelter_nusselt,
+                  "laminar": corr.laminar_nusselt}.get(case.heat_transfer.inside)
+        if inside is not None:
+            out.append((inside, "Re", re))
+        if inside is corr.gnielinski_nusselt:
+            out.append((corr.petukhov_friction, "Re", re))
+    return out
+
+
+def correlation_range_excesses(case, figures: dict) -> dict:
+    """The relative excess of every design-dependent correlation argument over its validity range, one
+    entry per side: (low - x)/low and (x - high)/high, each <= 0 inside the range. The limit
+    ``correlations_in_range`` bounds every entry by 0 (one constraint each in the collocation model; the
+    simulation reports the largest)."""
+    out = {}
+    for fn, arg, x in correlation_arguments(case, figures):
+        low, high = fn.validity[arg]
+        if low > 0.0:
+            out[f"{fn.__name__}.{arg}>={low:g}"] = (low - x) / low
+        out[f"{fn.__name__}.{arg}<={high:g}"] = (x - high) / high
+    return out
 
 
 def critical_reaction(case) -> int:

@@ -30,10 +30,13 @@ class Limit:
     needs_product: bool = False
     needs_coolant: bool = False  # only for coolant modes that exchange heat
     needs_coolant_flow: bool = False  # only for coolant modes with a coolant flow
+    needs_bed: bool = False  # only for packed tubes
+    switch: bool = False  # written `name = true` in [limits]; the bound is fixed (0), false leaves it out
 
     @property
     def pointwise(self) -> bool:
-        return self.figure in POINTWISE
+        """Bounded entry by entry (each collocation point, or each side of each correlation range)."""
+        return self.figure in POINTWISE or self.figure == "max_correlation_range_excess"
 
     def passes(self, value, bound, rtol: float = 1e-6):
         """Whether ``value`` (number or array) keeps the bound (NaN fails), with a relative tolerance that
@@ -69,6 +72,11 @@ LIMITS = {
               "coolant temperature where it leaves", needs_coolant=True, needs_coolant_flow=True),
         Limit("runaway_margin", "max", "dimensionless", "-", "max_runaway_group",
               "runaway group, largest (T - Tc) E/(R Tc^2) along the tube", needs_coolant=True),
+        Limit("min_tube_to_particle_ratio", "min", "dimensionless", "-", "tube_to_particle_ratio",
+              "tube-to-particle diameter ratio d_t/d_p", needs_bed=True),
+        Limit("correlations_in_range", "max", "dimensionless", "-", "max_correlation_range_excess",
+              "largest relative excess of a correlation argument over its validity range (<= 0 inside)",
+              switch=True),
     )
 }
 

@@ -7,7 +7,7 @@ import numpy as np
 
 from .backend import NUMPY
 from .balances import local_properties, rates
-from .figures import POINTWISE, critical_reaction, layout_figures
+from .figures import POINTWISE, correlation_range_excesses, critical_reaction, layout_figures
 from .reactions import heat_of_reaction
 from .state import TAIL, StateLayout
 
@@ -93,22 +93,26 @@ def outlet_figures(case, y_in, y_out, maxima: dict, hot_position) -> dict:
     """The figures of one tube from its inlet and outlet states (per tube; trailing sample axes allowed),
     the pointwise maxima (pointwise_maxima) and the hot-spot position: the outputs shared by the summary of
     one simulation and by the batches of screening. Every figure a limit bounds (models.limits) is here."""
-    layout = StateLayout.of(case)
+    layout = layout_figures(case)
+    excess = correlation_range_excesses(case, layout)
+    state = StateLayout.of(case)
     N = case.tube.count
     shape = np.shape(y_out)[1:]
     f_in = np.array([np.broadcast_to(f, shape) for f in case.feed.molar_flows], dtype=float)
-    f_out = np.asarray(y_out[layout.flows]) * N
+    f_out = np.asarray(y_out[state.flows]) * N
     out = {
         **{k: np.asarray(v, dtype=float) for k, v in maxima.items()},
         "max_temperature_position_m": np.asarray(hot_position, dtype=float),
         "conversion": conversion(case, f_in, f_out),
-        "pressure_drop_Pa": np.broadcast_to(case.feed.pressure, shape) - layout.get(y_out, "P"),
-        "outlet_pressure_Pa": np.asarray(layout.get(y_out, "P"), dtype=float),
-        "outlet_temperature_K": np.asarray(layout.get(y_out, "T"), dtype=float),
-        "heat_removed_W": np.asarray(layout.get(y_out, "Q"), dtype=float),
-        "residence_time_s": np.asarray(layout.get(y_out, "tau"), dtype=float),
+        "pressure_drop_Pa": np.broadcast_to(case.feed.pressure, shape) - state.get(y_out, "P"),
+        "outlet_pressure_Pa": np.asarray(state.get(y_out, "P"), dtype=float),
+        "outlet_temperature_K": np.asarray(state.get(y_out, "T"), dtype=float),
+        "heat_removed_W": np.asarray(state.get(y_out, "Q"), dtype=float),
+        "residence_time_s": np.asarray(state.get(y_out, "tau"), dtype=float),
         "coolant_outlet_temperature_K": coolant_outlet_temperature(case, y_in, y_out, shape),
-        **{k: np.broadcast_to(v, shape).astype(float) for k, v in layout_figures(case).items()},
+        **{k: np.broadcast_to(v, shape).astype(float) for k, v in layout.items()},
+        "max_correlation_range_excess": (np.max(np.stack([np.broadcast_to(v, shape) for v in excess.values()]), axis=0)
+                                         if excess else np.full(shape, np.nan)),
     }
     if case.product:
         formed, yld, sel = formed_yield_selectivity(case, case.product, f_in, f_out)

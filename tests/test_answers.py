@@ -127,3 +127,45 @@ def test_morris_plot_keeps_groups(tmp_path):
     finally:
         report._morris_panel = real
     assert drawn["points"] == 2 and "group (sigma not defined)" in drawn["legend"]
+
+
+# --- the optimum is checked like any simulation --------------------------------------------------------
+
+def test_geometric_limits_are_offered_and_judged_like_the_checks():
+    # The demo's particle Reynolds number (about 97) lies below Leva's stored range 250-3000: the switch
+    # reports the relative shortfall (250 - Re_p)/250 by the same figure as its constraint.
+    from tubewright.models.correlations import leva_cooling_wall_nusselt
+
+    case = load_case(DEMO / "oxidation.toml", {"limits.correlations_in_range": True,
+                                               "limits.min_tube_to_particle_ratio": 12})
+    r = simulate(case)
+    found = {f.code: f for f in r.findings}
+    re_p = r.summary["reynolds"]
+    low = leva_cooling_wall_nusselt.validity["Re_p"][0]
+    assert found["limit_correlations_in_range"].value == pytest.approx((low - re_p) / low, rel=1e-12)
+    assert found["limit_correlations_in_range"].level == "warning"
+    ratio = case.tube.inner_diameter / case.bed.particle_diameter  # 25.4 mm / 2.5 mm
+    assert found["limit_min_tube_to_particle_ratio"].value == pytest.approx(ratio)
+    assert found["limit_min_tube_to_particle_ratio"].level == "warning"  # 10.16 < 12
+
+
+def test_optimum_keeps_the_tube_to_particle_ratio():
+    from tubewright.optimizer import verbs
+
+    case = load_case(DEMO / "oxidation-design.toml", {"limits.min_tube_to_particle_ratio": 12})
+    res = verbs.optimize(case)
+    assert res.ok, res.reason
+    assert res.design["inner_diameter_m"] / case.bed.particle_diameter >= 12 * (1 - 1e-6)
+    row = next(r for r in res.limits if r.name == "min_tube_to_particle_ratio")
+    assert row.binding and row.multiplier > 0  # the demo's optimum wants thinner tubes: the limit costs money
+
+
+@pytest.mark.parametrize("limits, message", [
+    ({"correlations_in_range": "yes"}, "must be true or false"),
+    ({"min_tube_to_particle_ratio": 10}, "packed tubes only"),
+])
+def test_geometric_limits_refuse_what_cannot_apply(limits, message):
+    from tubewright.models import CaseError
+
+    with pytest.raises(CaseError, match=message):
+        load_case(DEMO / "coil.toml", {"limits": limits})

@@ -13,7 +13,7 @@ import numpy as np
 import pyomo.environ as pyo
 from tubewright.models.backend import NUMPY, pyomo_backend
 from tubewright.models.errors import ComputationFailed
-from tubewright.models.figures import POINTWISE, critical_reaction, layout_figures
+from tubewright.models.figures import POINTWISE, correlation_range_excesses, critical_reaction, layout_figures
 from tubewright.models.limits import LIMITS
 from tubewright.models.outcomes import Reason
 from tubewright.models.simulator import simulate
@@ -97,10 +97,12 @@ class DesignProblem:
         f_out = [m.F[s, 1.0] for s in case.names]
         points = list(m.xi)
         j = critical_reaction(case)
+        layout = layout_figures(pcase)
         figures = {
             "conversion": conversion(case, f_in, f_out),
             "pressure_drop_Pa": m.P[0.0] - m.P[1.0],
-            **layout_figures(pcase),
+            **layout,
+            "max_correlation_range_excess": correlation_range_excesses(pcase, layout),
             **{name: {x: f(pcase, m.T[x], m.Tc[x], j) for x in points} for name, f in POINTWISE.items()},
         }
         enters = case.coolant.kind.enters_at

@@ -112,21 +112,55 @@ _IF97_N = (
 )
 
 
-def water_saturation_temperature(pressure: float) -> float:
+def water_saturation_temperature(pressure, m=None):
     """Saturation temperature of water [K] from its pressure [Pa]: the backward equation of IAPWS-IF97,
     region 4, Eq. (31) (Wagner et al., J. Eng. Gas Turbines Power 122, 2000, 150-182).
-    Valid 611.213 Pa <= p <= 22.064 MPa; consistent with IAPWS-95 within a few mK."""
-    import math
+    Valid 611.213 Pa <= p <= 22.064 MPa; consistent with IAPWS-95 within a few mK. With a math backend
+    ``m`` the same formula gives a Pyomo expression (the steam pressure as a design variable); the range
+    is then kept by the design bounds."""
+    if m is None:
+        import math
 
-    if not (611.213 <= pressure <= 22.064e6):
-        raise ValueError(f"water saturation pressure {pressure} Pa outside 611.213 Pa .. 22.064 MPa")
+        if not (611.213 <= pressure <= 22.064e6):
+            raise ValueError(f"water saturation pressure {pressure} Pa outside 611.213 Pa .. 22.064 MPa")
+        sqrt = math.sqrt
+    else:
+        sqrt = m.sqrt
     n = _IF97_N
     beta = (pressure / 1.0e6) ** 0.25
     e = beta**2 + n[2] * beta + n[5]
     f = n[0] * beta**2 + n[3] * beta + n[6]
     g = n[1] * beta**2 + n[4] * beta + n[7]
-    d = 2.0 * g / (-f - math.sqrt(f * f - 4.0 * e * g))
-    return 0.5 * (n[9] + d - math.sqrt((n[9] + d) ** 2 - 4.0 * (n[8] + n[9] * d)))
+    d = 2.0 * g / (-f - sqrt(f * f - 4.0 * e * g))
+    return 0.5 * (n[9] + d - sqrt((n[9] + d) ** 2 - 4.0 * (n[8] + n[9] * d)))
+
+
+def water_saturation_pressure(temperature: float) -> float:
+    """Saturation pressure of water [Pa] from its temperature [K]: the basic equation of IAPWS-IF97,
+    region 4, Eq. (30) (Wagner et al., J. Eng. Gas Turbines Power 122, 2000, 150-182), the inverse of
+    ``water_saturation_temperature``. Valid 273.15 K <= T <= 647.096 K."""
+    import math
+
+    if not (273.15 <= temperature <= 647.096):
+        raise ValueError(f"water saturation temperature {temperature} K outside 273.15 .. 647.096 K")
+    n = _IF97_N
+    theta = temperature + n[8] / (temperature - n[9])
+    a = theta**2 + n[0] * theta + n[1]
+    b = n[2] * theta**2 + n[3] * theta + n[4]
+    c = n[5] * theta**2 + n[6] * theta + n[7]
+    return 1.0e6 * (2.0 * c / (-b + math.sqrt(b * b - 4.0 * a * c))) ** 4
+
+
+def water_latent_heat(temperature: float) -> float:
+    """Enthalpy of vaporisation of water [J/kg] at a saturation temperature [K] by Watson's relation
+    (Watson, Ind. Eng. Chem. 35, 1943, 398-406): dh = dh_b ((1 - T/Tc) / (1 - T_b/Tc))^0.38, anchored at the
+    normal boiling point (T_b = 373.124 K, dh_b = 2256.4 kJ/kg, from memory of the steam tables) with
+    Tc = 647.096 K (IAPWS). Within 3 % of IAPWS-95 from 300 K to 620 K (checked against CoolProp
+    in the tests); it is used for the steam raised by a boiling-water coolant."""
+    t_c, t_b, dh_b = 647.096, 373.124, 2.2564e6
+    if not (273.15 <= temperature < t_c):
+        raise ValueError(f"temperature {temperature} K outside 273.15 .. 647.096 K")
+    return dh_b * ((1.0 - temperature / t_c) / (1.0 - t_b / t_c)) ** 0.38
 
 
 def out_of_range(fn, **values) -> list[str]:

@@ -48,6 +48,7 @@ class Reason(_Word):
     CONVERGED = "converged"  # the NLP solver converged
     SOLVER_FAILED = "solver_failed"  # the NLP solver stopped without convergence
     NO_FEASIBLE_POINT = "no_feasible_point"  # the NLP solver reports the limits infeasible
+    BEYOND_STOICHIOMETRY = "beyond_stoichiometry"  # a duty above what the feed can give (checked before IPOPT)
     NOTHING_FREE = "nothing_free"  # no free design variable
     START_NOT_SIMULATED = "start_not_simulated"  # the starting design of an optimisation cannot be simulated
     COMPLETED = "completed"  # a study task completed

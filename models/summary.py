@@ -7,6 +7,7 @@ import numpy as np
 
 from .backend import NUMPY
 from .balances import local_properties, rates
+from .correlations import water_latent_heat
 from .figures import POINTWISE, correlation_range_excesses, critical_reaction, layout_figures
 from .reactions import heat_of_reaction
 from .state import TAIL, StateLayout
@@ -148,6 +149,9 @@ def summarise(case, z, y, y_out) -> dict:
         "yield": {},
         "selectivity": {},
     }
+    if case.coolant.kind.temperature_source == "saturation":  # boiling water: its pressure and the steam raised
+        out["coolant_pressure_Pa"] = case.coolant.pressure
+        out["steam_raised_kg_s"] = figures["heat_removed_W"] / water_latent_heat(case.coolant.temperature)
     if case.product:  # the desired product only: co-products (water, CO2) have no meaningful selectivity
         out["yield"][case.product] = figures["product_yield"]
         out["selectivity"][case.product] = figures["product_selectivity"]

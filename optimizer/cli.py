@@ -153,22 +153,42 @@ def _json_answer(case, result, files) -> dict:
 
 def optimisation_lines(case, res) -> list[str]:
     lines = [f"  status: {res.status} - {res.reason}"]
-    if res.objective is not None:
-        unit = GOALS[res.goal].unit
-        lines.append(f"  goal: {res.goal} = {_fmt(res.objective)} {'' if unit == '-' else unit}".rstrip())
+    unit = GOALS[res.goal].unit
+    unit = "" if unit == "-" else f" {unit}"
+    if res.objective is not None and res.goal_valid:
+        lines.append(f"  goal: {res.goal} = {_fmt(res.objective)}{unit}")
+    elif res.objective is not None:
+        lines.append(f"  goal: {res.goal}: NOT VALID (no feasible converged design); at the best point found "
+                     f"{_fmt(res.objective)}{unit}")
+    else:
+        lines.append(f"  goal: {res.goal}: NOT VALID (no design was computed)")
+    base = res.extras.get("base")
     if res.design:
-        lines.append("\ndesign:")
+        title = "best point found (not a valid design)" if not res.goal_valid else "optimum"
+        lines.append(f"\ndesign{'' if base is None else ' (base case as written beside it)'}:")
         width = max(len(k) for k in res.design)
-        lines += [f"  {k:<{width}}  {_fmt(v)}" for k, v in res.design.items()]
+        if base is not None:
+            lines.append(f"  {'':<{width}}  {'base case':>14}  {title}")
+        for k, v in res.design.items():
+            was = "" if base is None else f"{_fmt(base['design'].get(k)):>14}  "
+            lines.append(f"  {k:<{width}}  {was}{_fmt(v)}")
+        if base is not None and res.simulation is not None and res.simulation.summary:
+            for k, v in base["figures"].items():
+                lines.append(f"  {k:<{width}}  {_fmt(v):>14}  {_fmt(res.simulation.summary.get(k))}")
     if res.limits:
-        lines.append("\nlimits (multiplier = change of the goal per unit of the limit):")
-        lines.append(f"  {'limit':<32}{'value':>14}{'bound':>14}  {'binds':<6}{'multiplier':>14}  unit")
+        lines.append("\nlimits (multiplier = change of the goal per unit of the limit; only at a converged design):")
+        lines.append(f"  {'limit':<32}{'value':>14}{'bound':>14}  {'state':<22}{'multiplier':>14}  unit")
         for r in res.limits:
-            lines.append(f"  {r.name:<32}{_fmt(r.value):>14}{_fmt(r.bound):>14}  {'yes' if r.binding else 'no':<6}"
+            state = (f"VIOLATED by {r.violation:.4g}" if r.violated else "binds" if r.binding else "kept")
+            lines.append(f"  {r.name:<32}{_fmt(r.value):>14}{_fmt(r.bound):>14}  {state:<22}"
                          f"{_fmt(r.multiplier):>14}  {r.unit}")
     if res.costs:
         lines.append("\nannual cost parts [per year]:")
         lines += [f"  {k:<14}{_fmt(v):>14}" for k, v in res.costs.items()]
+        sh = res.extras.get("shells")
+        if sh:
+            lines.append(f"  tube area {sh['area_m2']:.4g} m^2 in {sh['count']} equal shell(s) of "
+                         f"{sh['area_per_shell_m2']:.4g} m^2")
     if res.verification:
         v = res.verification
         lines.append(f"\nverification against the adaptive integrator: largest relative deviation "
@@ -204,17 +224,27 @@ def cmd_optimize(args) -> int:
     res = verbs.optimize(case, ideal=args.ideal, starts=args.starts, seed=args.seed, pareto=args.pareto)
     extras = res.extras
     files = {}
-    if args.out and res.simulation is not None and res.simulation.columns:
-        from tubewright.optimizer.design.problem import design_case
-        from tubewright.optimizer.output.plots import plot_profiles
-
+    if args.out:  # written for a failed optimisation too: the report says why
         out = Path(args.out)
         out.mkdir(parents=True, exist_ok=True)
-        files["profiles_csv"] = str(out / "optimal_profiles.csv")
-        safe_frame(res.simulation.profiles).to_csv(files["profiles_csv"], index=False)
-        best = design_case(res.case, _design_values(res))
-        files["plot_png"] = str(plot_profiles(best, res.simulation, out / "optimal_profiles.png",
-                                              limits=res.limits))
+        if res.simulation is not None and res.simulation.columns:
+            from tubewright.optimizer.design.problem import design_case
+            from tubewright.optimizer.output.plots import plot_profiles
+
+            files["profiles_csv"] = str(out / "optimal_profiles.csv")
+            safe_frame(res.simulation.profiles).to_csv(files["profiles_csv"], index=False)
+            best = design_case(res.case, _design_values(res))
+            files["plot_png"] = str(plot_profiles(best, res.simulation, out / "optimal_profiles.png",
+                                                  limits=res.limits))
+        if res.ok:
+            from tubewright.optimizer.output.casewriter import write_optimum_case
+
+            files["case_toml"] = str(write_optimum_case(out / "optimum.toml", res.case, res.design,
+                                                        _parse_sets(args.set), f"Optimum of: {case.title}"))
+        if "pareto" in extras:
+            from tubewright.optimizer.output.plots import plot_front
+
+            files["pareto_png"] = str(plot_front(case, extras["pareto"], out / "pareto.png"))
         files["result_json"] = str(out / "optimum.json")
         Path(files["result_json"]).write_text(json.dumps(_optimisation_answer(case, res, files), indent=2) + "\n")
     if args.json:
@@ -243,14 +273,20 @@ def extra_lines(res, extras) -> list[str]:
                      f"{_fmt(b['objective'])} ({b['status']}); this layout is {_fmt(b['gap'])} from it")
     if "multistart" in extras:
         ms = extras["multistart"]
-        lines.append(f"\nmulti-start (seed {ms['seed']}): {ms['converged']} of {len(ms['runs'])} starts converged, "
-                     f"best {_fmt(ms['best'])}, spread {_fmt(ms['spread'])}; {len(ms['skipped'])} random designs "
-                     "skipped (their simulation did not reach the outlet)")
+        lines.append(f"\nmulti-start (seed {ms['seed']}): {len(ms['runs'])} of {ms['starts']} starts asked ran, "
+                     f"{ms['converged']} converged, best {_fmt(ms['best'])}, spread {_fmt(ms['spread'])}; "
+                     f"{len(ms['skipped'])} random designs skipped (their simulation did not reach the outlet)")
+        if len(ms["runs"]) < ms["starts"]:
+            lines.append(f"  only {len(ms['runs'])} starts: {ms['draws']} random designs drawn (at most "
+                         f"{ms['max_draws']}), the others could not be simulated; narrow the design bounds")
     if "pareto" in extras:
-        lines.append("\ncost-selectivity front (epsilon constraint):")
-        lines.append(f"  {'selectivity':>12}{'annual cost':>16}  status")
-        for p in extras["pareto"]["points"]:
-            lines.append(f"  {p['selectivity']:>12.5f}{p['annual_cost_per_year']:>16.6g}  {p['status']}")
+        front = extras["pareto"]
+        lines.append("\ncost-selectivity front (epsilon constraint; converged points only):")
+        lines.append(f"  {'selectivity':>12}{'annual cost':>16}")
+        for p in front["points"]:
+            lines.append(f"  {p['selectivity']:>12.5f}{p['annual_cost_per_year']:>16.6g}")
+        for p in front["not_converged"]:
+            lines.append(f"  not on the front (IPOPT {p['status']}): selectivity asked >= {p['epsilon']:.5f}")
     return lines
 
 

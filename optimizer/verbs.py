@@ -49,6 +49,7 @@ def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0
                 chosen["design.inner_diameter"] = diameter
             case = build_case(apply_overrides(case.raw, chosen, case.source), case.source)
     res = optimise(case)
+    res.extras["base"] = base_design(case)
     if ideal and res.ok:
         bound = ideal_bound(case)
         bound["gap"] = (res.objective - bound["objective"]) if bound["success"] else None
@@ -60,6 +61,21 @@ def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0
     res.extras.update(extras)
     res.case = case
     return res
+
+
+COMPARED = ("max_temperature_K", "pressure_drop_Pa", "conversion", "product_selectivity", "production_rate_mol_s",
+            "heat_removed_W", "steam_raised_kg_s")
+
+
+def base_design(case) -> dict:
+    """The design of the case as written (before optimisation) and its simulated key figures, to show
+    beside the optimum."""
+    from tubewright.optimizer.design.spec import DESIGN_FIELDS, DESIGN_KEYS, case_value
+
+    design = {DESIGN_FIELDS[k]: case_value(case, k) for k in DESIGN_KEYS if case_value(case, k) is not None}
+    sim = _simulate_with_checks(case, checks=False)
+    figures = {k: sim.summary.get(k) for k in COMPARED if sim.summary.get(k) is not None}
+    return {"design": design, "figures": figures, "status": sim.status}
 
 
 def pareto(case, points: int) -> dict:

@@ -169,3 +169,93 @@ def test_geometric_limits_refuse_what_cannot_apply(limits, message):
 
     with pytest.raises(CaseError, match=message):
         load_case(DEMO / "coil.toml", {"limits": limits})
+
+
+def test_stoichiometric_maximum_is_the_lp_bound_and_refuses_the_duty_before_ipopt():
+    # Analytic: the demo feeds 80 mol/s at 7 % propene and 12 % oxygen; C3H6 + O2 -> C3H4O + H2O can make at
+    # most min(5.6, 9.6) = 5.6 mol/s of acrolein (the combustion only consumes more).
+    from tubewright.models.outcomes import Reason, Status
+    from tubewright.optimizer import verbs
+    from tubewright.optimizer.design.precheck import stoichiometric_maximum_production
+
+    case = load_case(DEMO / "oxidation-design.toml", {"limits.production_rate": "9 mol/s"})
+    assert stoichiometric_maximum_production(case) == pytest.approx(80 * 0.07, rel=1e-9)
+    res = verbs.optimize(case)
+    assert res.status == Status.INFEASIBLE and res.reason_code == Reason.BEYOND_STOICHIOMETRY
+    assert not res.goal_valid and res.timings["total_s"] < 1.0
+    (row,) = res.limits
+    assert row.violated and row.violation == pytest.approx(9 - 5.6) and row.multiplier is None
+
+
+def test_an_infeasible_optimum_lists_violations_marks_the_goal_and_writes_files(tmp_path, capsys):
+    from tubewright.optimizer.cli import main
+
+    code = main(["optimize", str(DEMO / "oxidation-design.toml"), "--set", "limits.correlations_in_range=true",
+                 "--out", str(tmp_path)])
+    out = capsys.readouterr().out
+    assert code == 1
+    assert "NOT VALID" in out and "VIOLATED by" in out
+    import json
+
+    answer = json.loads((tmp_path / "optimum.json").read_text())
+    assert answer["goal_valid"] is False
+    rows = {r["limit"]: r for r in answer["limits"]}
+    assert rows["correlations_in_range"]["violated"] and rows["correlations_in_range"]["multiplier_per_unit"] is None
+    assert not any(r["binding"] for r in answer["limits"])
+
+
+def test_the_optimum_as_a_case_file_reproduces_it_and_reports_shells_and_steam(tmp_path, capsys):
+    # The demo's optimum needs about 2,200 m^2 of tubes: costed as the smallest number of equal shells inside
+    # the correlation's 10-1000 m^2 (common practice); boiling water reports its steam pressure (IAPWS-IF97
+    # Eq. 30, checked against CoolProp elsewhere) and the steam raised.
+    import json
+
+    from tubewright.models.correlations import water_saturation_temperature
+    from tubewright.optimizer.cli import main
+
+    assert main(["optimize", str(DEMO / "oxidation-design.toml"), "--out", str(tmp_path), "--json"]) == 0
+    answer = json.loads(capsys.readouterr().out)
+    shells = answer["shells"]
+    assert shells["count"] == int(np.ceil(shells["area_m2"] / 1000.0)) >= 2
+    design = answer["design"]
+    assert water_saturation_temperature(design["coolant_pressure_Pa"]) == pytest.approx(
+        design["coolant_temperature_K"], abs=1e-6)
+    assert answer["summary"]["steam_raised_kg_s"] > 0 and answer["base"]["design"]["tube_count"] == 4000
+    again = simulate(load_case(tmp_path / "optimum.toml"))
+    for key in ("production_rate_mol_s", "max_temperature_K", "pressure_drop_Pa"):
+        assert again.summary[key] == pytest.approx(answer["summary"][key], rel=1e-9), key
+
+
+def test_steam_pressure_as_the_design_variable(tmp_path):
+    from tubewright.optimizer import verbs
+
+    case_file = tmp_path / "pressure.toml"
+    case_file.write_text(f'include = "{DEMO / "oxidation-design.toml"}"\n'
+                         '[design]\ncoolant_temperature = "591.23 K"\n')
+    from tubewright.models import CaseError
+    from tubewright.optimizer.design.spec import read_design
+
+    with pytest.raises(CaseError, match="not both"):
+        read_design(load_case(case_file, {"design.coolant_pressure": {"min": "80 bar", "max": "120 bar"}}))
+    data = (DEMO / "oxidation-design.toml").read_text().replace(
+        'coolant_temperature = { min = "570 K", max = "600 K" }',
+        'coolant_pressure = { min = "80 bar", max = "120 bar" }').replace('include = "oxidation.toml"',
+                                                                        f'include = "{DEMO / "oxidation.toml"}"')
+    case_file.write_text(data)
+    res = verbs.optimize(load_case(case_file))
+    assert res.ok, res.reason
+    p = res.design["coolant_pressure_Pa"]
+    assert 80e5 <= p <= 120e5
+    assert res.simulation.summary["coolant_pressure_Pa"] == pytest.approx(p, rel=1e-9)
+    runaway = next(r for r in res.limits if r.name == "runaway_margin")
+    assert runaway.binding  # the steam pressure rises until the runaway margin binds, as the temperature did
+
+
+def test_pareto_keeps_unconverged_points_apart():
+    from tubewright.optimizer.design import alternatives
+
+    case = load_case(DEMO / "oxidation-design.toml")
+    front = alternatives.pareto_front(case, 3)
+    assert all(p["status"] == "optimal" for p in front["points"])
+    assert all(p["status"] != "optimal" for p in front["not_converged"])
+    assert len(front["points"]) + len(front["not_converged"]) == 3

@@ -22,16 +22,18 @@ def pareto_front(case, points: int) -> dict:
     selective = DesignProblem(case, goal="max_selectivity").build()
     best = selective.solve_nlp()
     s_high = float(best.objective) if best.success else s_low
-    front = []
+    front, apart = [], []
     for eps in np.linspace(s_low, s_high, max(points, 2)):
         cheap.model.pareto_eps = float(eps)
         out = cheap.solve_nlp(warm_start=True)
         selectivity = float(pyo.value(cheap.model.figures["product_selectivity"]))
-        front.append({"selectivity": selectivity, "annual_cost_per_year": float(out.objective),
-                      "status": out.status_name, "design": cheap.design_values()})
+        point = {"epsilon": float(eps), "selectivity": selectivity, "annual_cost_per_year": float(out.objective),
+                 "status": out.status_name, "design": cheap.design_values()}
+        (front if out.success else apart).append(point)  # a point that did not converge is not on the front
     return {"cheapest": {"status": first.status_name, "annual_cost_per_year": first.objective,
                          "selectivity": s_low},
-            "most_selective": {"status": best.status_name, "selectivity": s_high}, "points": front}
+            "most_selective": {"status": best.status_name, "selectivity": s_high}, "points": front,
+            "not_converged": apart}
 
 
 def multistart(case, starts: int, seed: int = 0) -> dict:
@@ -65,7 +67,8 @@ def multistart(case, starts: int, seed: int = 0) -> dict:
                      "iterations": out.iterations, "design": problem.design_values()})
     found = [r["objective"] for r in runs if r["objective"] is not None]
     pick = min if problem.model.goal.sense == pyo.minimize else max
-    return {"seed": seed, "starts": starts, "runs": runs, "skipped": skipped, "converged": len(found),
+    return {"seed": seed, "starts": starts, "draws": draws, "max_draws": 5 * starts, "runs": runs,
+            "skipped": skipped, "converged": len(found),
             "best": pick(found) if found else None, "spread": (max(found) - min(found)) if found else None}
 
 

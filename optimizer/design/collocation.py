@@ -17,6 +17,7 @@ import pyomo.dae as dae
 import pyomo.environ as pyo
 from tubewright.models.backend import NUMPY, pyomo_backend
 from tubewright.models.balances import axial_derivatives
+from tubewright.models.correlations import water_saturation_temperature
 from tubewright.models.state import TAIL, StateLayout
 from tubewright.optimizer.design.spec import DESIGN_KEYS, case_value
 
@@ -54,6 +55,10 @@ def parametrised_case(model, case, spec):
     coolant = case.coolant
     if "coolant_temperature" in d:
         coolant = replace(coolant, temperature=d["coolant_temperature"])
+    if "coolant_pressure" in d and "coolant_pressure" in spec.free:  # boiling water: T from the steam pressure
+        model.coolant_saturation = pyo.Expression(expr=water_saturation_temperature(d["coolant_pressure"],
+                                                                                     pyomo_backend()))
+        coolant = replace(coolant, temperature=model.coolant_saturation, pressure=d["coolant_pressure"])
     if "coolant_flow" in d:
         coolant = replace(coolant, mass_flow=d["coolant_flow"])
     reactions = tuple(replace(rx, k_ref=model.k_ref[j], activation_energy=model.e_act[j])

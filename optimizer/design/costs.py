@@ -48,12 +48,20 @@ def exchanger_capital(m, cm: CostModel, area):
     return purchased * cm.bare_module_factor * cm.cost_index / cm.base_index
 
 
+def shells_for(cm: CostModel, area: float) -> int:
+    """The smallest number of equal shells that brings each shell's area inside the capital correlation's
+    range (common practice: a duty beyond the largest shell is split over equal shells in parallel)."""
+    return max(1, math.ceil(area / cm.area_max - 1e-9))
+
+
 def annual_cost(m, cm: CostModel, *, area, catalyst_mass, inlet_volumetric_flow, pressure_drop, coolant_flow,
-                key_lost, key_molar_mass) -> dict:
+                key_lost, key_molar_mass, shells=1) -> dict:
     """Parts of the annual cost [currency/year]; ``total`` is their sum. SI inputs: area m^2, catalyst kg,
-    inlet volumetric flow m^3/s, pressure drop Pa, coolant flow kg/s, key reactant lost mol/s."""
+    inlet volumetric flow m^3/s, pressure drop Pa, coolant flow kg/s, key reactant lost mol/s. The tubes
+    are split over ``shells`` equal shells (a number, or a fixed parameter of the optimisation: the cost
+    stays smooth in the area), each costed by the correlation at its share of the area."""
     seconds = cm.hours_per_year * SECONDS_PER_HOUR
-    capital = cm.capital_charge * exchanger_capital(m, cm, area)
+    capital = cm.capital_charge * shells * exchanger_capital(m, cm, area / shells)
     power = inlet_volumetric_flow * pressure_drop / cm.compressor_efficiency  # W
     parts = {
         "capital": capital,
@@ -66,7 +74,7 @@ def annual_cost(m, cm: CostModel, *, area, catalyst_mass, inlet_volumetric_flow,
     return parts
 
 
-def cost_figures(m, cm: CostModel, case, figures: dict, coolant_flow) -> dict:
+def cost_figures(m, cm: CostModel, case, figures: dict, coolant_flow, shells=1) -> dict:
     """The annual cost parts of a design from its figures (Pyomo expressions of the collocation model, or
     the numbers of a simulation summary): one cost formula for the objective and for the report.
     ``coolant_flow`` [kg/s] is the coolant mass flow, 0 without one."""
@@ -75,4 +83,4 @@ def cost_figures(m, cm: CostModel, case, figures: dict, coolant_flow) -> dict:
     return annual_cost(m, cm, area=figures["outer_area_m2"], catalyst_mass=catalyst,
                        inlet_volumetric_flow=figures["inlet_volumetric_flow_m3_s"],
                        pressure_drop=figures["pressure_drop_Pa"], coolant_flow=coolant_flow, key_lost=lost,
-                       key_molar_mass=case.species_map[case.key_reactant].molar_mass)
+                       key_molar_mass=case.species_map[case.key_reactant].molar_mass, shells=shells)

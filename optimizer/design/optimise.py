@@ -8,9 +8,12 @@ import time
 
 import pyomo.environ as pyo
 from tubewright.models.errors import ComputationFailed
+from tubewright.models.limits import LIMITS
 from tubewright.models.outcomes import Reason, Status
 from tubewright.models.simulator import simulate
-from tubewright.optimizer.design.outcome import OptimizationResult
+from tubewright.optimizer.design.costs import shells_for
+from tubewright.optimizer.design.outcome import LimitRow, OptimizationResult
+from tubewright.optimizer.design.precheck import infeasible_duties
 from tubewright.optimizer.design.problem import DesignProblem, design_case
 from tubewright.optimizer.design.spec import DESIGN_FIELDS
 
@@ -27,6 +30,17 @@ def optimise(case, nfe=None, ncp=None) -> OptimizationResult:
                                   "simulated, not optimised", spec.goal, None, simulation=sim,
                                   reason_code=Reason.NOTHING_FREE)
     notes = []
+    ruled_out = infeasible_duties(case, spec.limits)
+    if ruled_out:
+        rows = [LimitRow(r["limit"], r["maximum"], r["bound"], LIMITS[r["limit"]].kind, False, None, r["unit"])
+                for r in ruled_out]
+        worst = ruled_out[0]
+        return OptimizationResult(Status.INFEASIBLE, f"limits.{worst['limit']} = {worst['bound']:.6g} "
+                                  f"{worst['unit']} cannot be met: {worst['why']} (checked before IPOPT)", spec.goal,
+                                  None, limits=rows, reason_code=Reason.BEYOND_STOICHIOMETRY,
+                                  timings={"total_s": time.perf_counter() - t0},
+                                  hint=f"lower limits.{worst['limit']} below {worst['maximum']:.6g} {worst['unit']} "
+                                  "or raise the feed")
     try:
         problem.build()
     except ComputationFailed as err:
@@ -43,6 +57,7 @@ def optimise(case, nfe=None, ncp=None) -> OptimizationResult:
         n.setub(rounded)
         outcome = problem.solve_nlp(warm_start=True)
         solves.append(outcome)
+    outcome = _split_into_shells(problem, outcome, solves, notes)
     values = problem.design_values()
     verification, sim = problem.verify(values) if outcome.success else ({}, None)
     if outcome.success and verification["max_relative_deviation"] > problem.verify_tolerance:
@@ -53,12 +68,15 @@ def optimise(case, nfe=None, ncp=None) -> OptimizationResult:
         if "tube_count" in spec.free and spec.round_tube_count:
             finer.model.design["tube_count"].setlb(values["tube_count"])
             finer.model.design["tube_count"].setub(values["tube_count"])
+        finer.model.shells = problem.model.shells.value
         outcome = finer.solve_nlp()
         solves.append(outcome)
         problem = finer
         values = problem.design_values()
         verification, sim = problem.verify(values) if outcome.success else ({}, None)
     limits = problem.limit_rows(outcome)
+    if not outcome.success:  # the best point found: its simulation shows where it stands, and its findings
+        sim = simulate(design_case(case, values))
     if outcome.success:
         status, code = Status.OPTIMAL, Reason.CONVERGED
     elif outcome.status in (2, -2):
@@ -67,8 +85,7 @@ def optimise(case, nfe=None, ncp=None) -> OptimizationResult:
         status, code = Status.FAILED, Reason.SOLVER_FAILED
     hint = ""
     if not outcome.success:
-        violated = [r for r in limits if (r.kind == "max" and r.value > r.bound * (1 + 1e-6) + 1e-9)
-                    or (r.kind == "min" and r.value < r.bound * (1 - 1e-6) - 1e-9)]
+        violated = [r for r in limits if r.violated]
         if violated:
             worst = max(violated, key=lambda r: abs(r.value - r.bound) / max(abs(r.bound), 1e-12))
             hint = (f"relax limits.{worst.name} (bound {worst.bound:.6g} {worst.unit}, best point found "
@@ -92,8 +109,9 @@ def optimise(case, nfe=None, ncp=None) -> OptimizationResult:
             side = "lower" if v - fv.lower < fv.upper - v else "upper"
             notes.append(f"design.{name} sits at its {side} bound: widening it would improve the goal")
     area = float(pyo.value(problem.model.figures["outer_area_m2"]))
-    if spec.goal == "min_cost" and not (spec.costs.area_min <= area <= spec.costs.area_max):
-        notes.append(f"tube area {area:.4g} m^2 lies outside the cost correlation's range "
+    shells = int(pyo.value(problem.model.shells))
+    if spec.goal == "min_cost" and not (spec.costs.area_min <= area / shells <= spec.costs.area_max):
+        notes.append(f"tube area {area / shells:.4g} m^2 per shell lies outside the cost correlation's range "
                      f"{spec.costs.area_min:g}-{spec.costs.area_max:g} m^2 (extrapolated)")
     solver = outcome.as_dict()
     solver["solves"] = len(solves)
@@ -104,8 +122,32 @@ def optimise(case, nfe=None, ncp=None) -> OptimizationResult:
                "ipopt_s": sum(o.times["ipopt_s"] for o in solves),
                "callbacks_s": sum(o.times["callbacks_s"] for o in solves), "total_s": time.perf_counter() - t0}
     reason = outcome.message if outcome.success else f"IPOPT: {outcome.status_name} ({outcome.message})"
-    return OptimizationResult(status, reason, spec.goal, outcome.objective, _design_fields(values), limits, costs,
-                              verification, solver, timings, sim, notes, hint, code)
+    res = OptimizationResult(status, reason, spec.goal, outcome.objective, _design_fields(values), limits, costs,
+                             verification, solver, timings, sim, notes, hint, code)
+    res.extras["shells"] = {"count": shells, "area_per_shell_m2": area / shells, "area_m2": area}
+    return res
+
+
+def _split_into_shells(problem, outcome, solves, notes, passes: int = 3):
+    """A layout whose tube area passes the largest shell of the cost correlation is costed as the smallest
+    number of equal shells inside the range (costs.shells_for): fix that number, re-solve warm, and repeat
+    while the count changes (at most ``passes`` times)."""
+    if not outcome.success or problem.spec.goal != "min_cost":
+        return outcome
+    model = problem.model
+    for _ in range(passes):
+        area = float(pyo.value(model.figures["outer_area_m2"]))
+        shells = shells_for(problem.spec.costs, area)
+        if shells == int(pyo.value(model.shells)):
+            break
+        notes.append(f"tube area {area:.4g} m^2 split over {shells} equal shells of {area / shells:.4g} m^2 "
+                     f"(the capital correlation holds up to {problem.spec.costs.area_max:g} m^2 per shell); re-solved")
+        model.shells = shells
+        outcome = problem.solve_nlp(warm_start=True)
+        solves.append(outcome)
+        if not outcome.success:
+            break
+    return outcome
 
 
 def _design_fields(values: dict) -> dict:

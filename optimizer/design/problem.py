@@ -12,6 +12,7 @@ from dataclasses import replace
 import numpy as np
 import pyomo.environ as pyo
 from tubewright.models.backend import NUMPY, pyomo_backend
+from tubewright.models.correlations import water_saturation_pressure, water_saturation_temperature
 from tubewright.models.errors import ComputationFailed
 from tubewright.models.figures import POINTWISE, correlation_range_excesses, critical_reaction, layout_figures
 from tubewright.models.limits import LIMITS
@@ -33,6 +34,12 @@ def design_case(case, values: dict):
     for name, v in values.items():
         section, attr = DESIGN_KEYS[name][1].split(".")
         parts[section][attr] = int(round(v)) if name == "tube_count" and abs(v - round(v)) < 1e-9 else v
+    if case.coolant.kind.temperature_source == "saturation":  # boiling water: pressure and temperature agree
+        c = parts["coolant"]
+        if "pressure" in c:
+            c["temperature"] = water_saturation_temperature(c["pressure"])
+        elif "temperature" in c:
+            c["pressure"] = water_saturation_pressure(c["temperature"])
     return replace(case, tube=replace(case.tube, **parts["tube"]), feed=replace(case.feed, **parts["feed"]),
                    coolant=replace(case.coolant, **parts["coolant"]))
 
@@ -112,7 +119,8 @@ class DesignProblem:
             figures.update(production_rate_mol_s=N * formed, product_yield=yld, product_selectivity=selectivity,
                            key_lost_mol_s=N * key_lost(case, f_in, f_out))
         coolant = m.design["coolant_flow"] if "coolant_flow" in m.design else 0.0
-        costs = cost_figures(pyomo_backend(), self.spec.costs, case, figures, coolant)
+        m.shells = pyo.Param(mutable=True, initialize=1)  # set by optimise when the area passes one shell's range
+        costs = cost_figures(pyomo_backend(), self.spec.costs, case, figures, coolant, m.shells)
         figures["annual_cost_per_year"] = costs["total"]
         self.cost_expressions = costs
         return figures
@@ -203,7 +211,13 @@ class DesignProblem:
         return self.nlp.solve(options=opts, warm_start=warm_start, scaling=self.scaling())
 
     def design_values(self) -> dict:
-        return {name: float(pyo.value(comp)) for name, comp in self.model.design.items()}
+        """The design at the current point; a boiling coolant's temperature follows its steam pressure."""
+        values = {name: float(pyo.value(comp)) for name, comp in self.model.design.items()}
+        if hasattr(self.model, "coolant_saturation"):
+            values["coolant_temperature"] = float(pyo.value(self.model.coolant_saturation))
+        elif "coolant_pressure" in values:  # the temperature was chosen: the steam pressure that gives it
+            values["coolant_pressure"] = water_saturation_pressure(values["coolant_temperature"])
+        return values
 
     def limit_rows(self, outcome) -> list[LimitRow]:
         rows = []
@@ -219,8 +233,9 @@ class DesignProblem:
             # IPOPT: L = f_min + lambda g; d f_min*/d bound = -lambda. For a maximised goal f = -f_min.
             # An inactive limit costs nothing: its multiplier is reported as 0 (IPOPT leaves ~1e-8 there).
             row = LIMITS[name]
-            rows.append(LimitRow(name, value, bound, row.kind, bool(binding), float(sign * lam) if binding else 0.0,
-                                 row.unit))
+            # multipliers mean something only at a converged point: None elsewhere
+            multiplier = (float(sign * lam) if binding else 0.0) if outcome.success else None
+            rows.append(LimitRow(name, value, bound, row.kind, bool(binding) and outcome.success, multiplier, row.unit))
         return rows
 
     def verify(self, values) -> tuple[dict, object]:
@@ -257,7 +272,8 @@ class DesignProblem:
         figures = dict(summary)
         try:
             figures["annual_cost_per_year"] = cost_figures(NUMPY, self.spec.costs, case, figures,
-                                                           case.coolant.mass_flow or 0.0)["total"]
+                                                           case.coolant.mass_flow or 0.0,
+                                                           int(pyo.value(self.model.shells)))["total"]
             return float(GOALS[self.spec.goal].value(figures))
         except (KeyError, TypeError, ZeroDivisionError):  # a stopped simulation lacks outlet figures
             return None

@@ -22,12 +22,14 @@ DESIGN_KEYS = {
     "inlet_pressure": ("pressure", "feed.pressure"),
     "coolant_flow": ("mass_flow", "coolant.mass_flow"),
     "coolant_temperature": ("temperature", "coolant.temperature"),
+    "coolant_pressure": ("pressure", "coolant.pressure"),  # boiling water: sets the coolant temperature
 }
 
 # design key -> field name of reports (SI unit in the name)
 DESIGN_FIELDS = {"length": "length_m", "inner_diameter": "inner_diameter_m", "tube_count": "tube_count",
                  "inlet_temperature": "inlet_temperature_K", "inlet_pressure": "inlet_pressure_Pa",
-                 "coolant_flow": "coolant_flow_kg_s", "coolant_temperature": "coolant_temperature_K"}
+                 "coolant_flow": "coolant_flow_kg_s", "coolant_temperature": "coolant_temperature_K",
+                 "coolant_pressure": "coolant_pressure_Pa"}
 
 @dataclass(frozen=True)
 class FreeVariable:
@@ -115,6 +117,18 @@ def read_design(case) -> DesignSpec:
     if "coolant_temperature" in free and not case.coolant.kind.exchanges_heat:
         raise CaseError(source, "design.coolant_temperature", f'coolant mode "{case.coolant.mode}" has no coolant '
                         "temperature")
+    boiling = case.coolant.kind.temperature_source == "saturation"
+    for key in ("coolant_pressure",):
+        if key in set(free) | set(fixed) and not boiling:
+            raise CaseError(source, f"design.{key}", f'applies to coolant mode "boiling_water" only (this case: '
+                            f'"{case.coolant.mode}")')
+    if boiling and "coolant_temperature" in set(free) | set(fixed) and "coolant_pressure" in set(free) | set(fixed):
+        raise CaseError(source, "design.coolant_temperature", "boiling water: give the steam pressure "
+                        "(design.coolant_pressure) or the coolant temperature, not both")
+    if "coolant_pressure" in free and not 611.213 <= free["coolant_pressure"].lower < free["coolant_pressure"].upper \
+            <= 22.064e6:
+        raise CaseError(source, "design.coolant_pressure", "must lie within 611.213 Pa .. 22.064 MPa (the "
+                        "saturation line of water)")
     if standard and "inner_diameter" in free:
         raise CaseError(source, "design.standard_tubes", "give either standard_tubes = true or a free "
                         "inner_diameter, not both")

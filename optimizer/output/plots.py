@@ -42,3 +42,22 @@ def plot_profiles(case, result, path: Path, limits=None) -> Path:
     path = Path(path)
     fig.savefig(path, dpi=110)
     return path
+
+
+def plot_front(case, front: dict, path: Path) -> Path:
+    """The cost-selectivity front: converged points joined, points that did not converge left out (listed
+    in the report)."""
+    fig = new_figure((6.0, 4.2))
+    ax = fig.subplots()
+    pts = sorted(front["points"], key=lambda p: p["selectivity"])
+    ax.plot([p["selectivity"] for p in pts], [p["annual_cost_per_year"] for p in pts], "o-", ms=4)
+    ax.set_xlabel(plain(f"selectivity to {case.product} [-]"))
+    ax.set_ylabel("annual cost [per year]")
+    missing = len(front.get("not_converged", []))
+    ax.set_title(plain(case.title) + (f"\n({missing} point(s) did not converge: not drawn)" if missing else ""),
+                 fontsize=8)
+    fig.text(0.01, 0.005, "Screening estimate only - verify before use.", fontsize=7, color="gray")
+    fig.tight_layout(rect=(0, 0.02, 1, 1))
+    path = Path(path)
+    fig.savefig(path, dpi=110)
+    return path

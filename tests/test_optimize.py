@@ -156,9 +156,10 @@ def test_cli_optimize_json_and_infeasible_report(demo_dir, capsys):
     assert limits["production_rate"]["binding"] and limits["production_rate"]["multiplier_per_unit"] > 0
     assert answer["verification"]["max_relative_deviation"] < answer["verification"]["tolerance"]
     assert "Screening estimate" in answer["caution"]
+    # 6 mol/s is above the feed's stoichiometric maximum (5.6 mol/s): refused before IPOPT, with the bound
     code = main(["optimize", str(demo_dir / "oxidation-design.toml"), "--set", "limits.production_rate=6 mol/s"])
     text = capsys.readouterr().out
-    assert code == 1 and "infeasible" in text and "relax limits.production_rate" in text
+    assert code == 1 and "infeasible" in text and "lower limits.production_rate below 5.6 mol/s" in text
 
 
 def test_cli_optimize_bad_design_exit_2(tmp_path, demo_dir, capsys):

@@ -11,7 +11,6 @@ from tubewright.models.errors import ComputationFailed
 from tubewright.models.limits import LIMITS
 from tubewright.models.outcomes import Reason, Status
 from tubewright.models.simulator import simulate
-from tubewright.optimizer.design.costs import shells_for
 from tubewright.optimizer.design.outcome import LimitRow, OptimizationResult
 from tubewright.optimizer.design.precheck import infeasible_duties
 from tubewright.optimizer.design.problem import DesignProblem, design_case
@@ -49,6 +48,7 @@ def optimise(case, nfe=None, ncp=None) -> OptimizationResult:
                                   hint="start from a design that can be simulated: set design.*.start")
     outcome = problem.solve_nlp()
     solves = [outcome]
+    notes += problem.shell_notes
     if outcome.success and "tube_count" in spec.free and spec.round_tube_count:
         n = problem.model.design["tube_count"]
         rounded = float(max(round(n.value), math.ceil(spec.free["tube_count"].lower)))
@@ -57,7 +57,7 @@ def optimise(case, nfe=None, ncp=None) -> OptimizationResult:
         n.setub(rounded)
         outcome = problem.solve_nlp(warm_start=True)
         solves.append(outcome)
-    outcome = _split_into_shells(problem, outcome, solves, notes)
+        notes += problem.shell_notes
     values = problem.design_values()
     verification, sim = problem.verify(values) if outcome.success else ({}, None)
     if outcome.success and verification["max_relative_deviation"] > problem.verify_tolerance:
@@ -126,28 +126,6 @@ def optimise(case, nfe=None, ncp=None) -> OptimizationResult:
                              verification, solver, timings, sim, notes, hint, code)
     res.extras["shells"] = {"count": shells, "area_per_shell_m2": area / shells, "area_m2": area}
     return res
-
-
-def _split_into_shells(problem, outcome, solves, notes, passes: int = 3):
-    """A layout whose tube area passes the largest shell of the cost correlation is costed as the smallest
-    number of equal shells inside the range (costs.shells_for): fix that number, re-solve warm, and repeat
-    while the count changes (at most ``passes`` times)."""
-    if not outcome.success or problem.spec.goal != "min_cost":
-        return outcome
-    model = problem.model
-    for _ in range(passes):
-        area = float(pyo.value(model.figures["outer_area_m2"]))
-        shells = shells_for(problem.spec.costs, area)
-        if shells == int(pyo.value(model.shells)):
-            break
-        notes.append(f"tube area {area:.4g} m^2 split over {shells} equal shells of {area / shells:.4g} m^2 "
-                     f"(the capital correlation holds up to {problem.spec.costs.area_max:g} m^2 per shell); re-solved")
-        model.shells = shells
-        outcome = problem.solve_nlp(warm_start=True)
-        solves.append(outcome)
-        if not outcome.success:
-            break
-    return outcome
 
 
 def _design_fields(values: dict) -> dict:

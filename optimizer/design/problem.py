@@ -21,7 +21,7 @@ from tubewright.models.simulator import simulate
 from tubewright.models.state import TAIL
 from tubewright.models.summary import conversion, key_lost, product_figures
 from tubewright.optimizer.design.collocation import build_tube_model, initialise_from_simulation, state_scaling
-from tubewright.optimizer.design.costs import cost_figures
+from tubewright.optimizer.design.costs import cost_figures, shells_for
 from tubewright.optimizer.design.goals import GOALS
 from tubewright.optimizer.design.outcome import LimitRow
 from tubewright.optimizer.design.spec import DESIGN_KEYS, read_design
@@ -203,12 +203,38 @@ class DesignProblem:
                 g_s[row[id(c)]] = 1.0 / bound
         return self.obj_scale, x_s, g_s
 
-    def solve_nlp(self, warm_start=False, options=None):
+    def solve_nlp(self, warm_start=False, options=None, passes: int = 3):
+        """Solve (warm from the current point if asked). With the cost goal, a layout whose tube area passes
+        the largest shell of the cost correlation is costed as the smallest number of equal shells inside
+        its range (costs.shells_for): the number is fixed and the problem re-solved warm while it changes
+        (at most ``passes`` times), so that every caller (optimum, rounding, standard tubes, starts, Pareto
+        points) reports the same cost definition. The notes of the last solve are in ``shell_notes``."""
         # a larger MUMPS pivot tolerance than IPOPT's default (1e-6) avoids failed step computations on the
         # nearly singular KKT systems of counter-current cases (measured on the coil demo)
         opts = {"max_iter": 500, "tol": 1e-7, "acceptable_tol": 1e-5, "mumps_pivtol": 1e-4}
         opts.update(options or {})
-        return self.nlp.solve(options=opts, warm_start=warm_start, scaling=self.scaling())
+        outcome = self.nlp.solve(options=opts, warm_start=warm_start, scaling=self.scaling())
+        self.shell_notes = []
+        if self.spec.goal != "min_cost":
+            return outcome
+        model = self.model
+        for _ in range(passes):
+            if not outcome.success:
+                break
+            area = float(pyo.value(model.figures["outer_area_m2"]))
+            shells = shells_for(self.spec.costs, area)
+            if shells == int(pyo.value(model.shells)):
+                break
+            self.shell_notes.append(f"tube area {area:.4g} m^2 costed as {shells} equal shells of "
+                                    f"{area / shells:.4g} m^2 (the capital correlation holds up to "
+                                    f"{self.spec.costs.area_max:g} m^2 per shell); re-solved")
+            model.shells = shells
+            before = outcome
+            outcome = self.nlp.solve(options=opts, warm_start=True, scaling=self.scaling())
+            outcome.iterations += before.iterations  # the counters cover every pass
+            for key in ("ipopt_s", "callbacks_s"):
+                outcome.times[key] = outcome.times.get(key, 0.0) + before.times.get(key, 0.0)
+        return outcome
 
     def design_values(self) -> dict:
         """The design at the current point; a boiling coolant's temperature follows its steam pressure."""

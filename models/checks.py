@@ -109,6 +109,8 @@ def radial_gradient(case, result) -> list[Finding]:
     if case.bed is None or case.feed.thermal_conductivity is None or not (mode.exchanges_heat or
                                                                          mode.holds_temperature):
         return []
+    if not result.ok:  # a runaway's heat release at the ceiling would give a meaningless number
+        return [Finding("radial_gradient", "warning", f"not estimated: the simulation stopped ({result.reason})")]
     cols = result.columns
     q = reaction_heats(case, cols).sum(axis=0)
     i = int(np.argmax(q))

@@ -135,6 +135,18 @@ def equilibrium_constant(m, rx: Reaction, species: dict, T):
     return ka * (P_STD / (R_GAS * T)) ** dn
 
 
+def approach_to_equilibrium(m, rx: Reaction, species: dict, T, drive: dict):
+    """Approach to equilibrium of a reversible reaction, beta = Q / K(T), with the reaction quotient
+    Q = prod_i drive_i^nu_i in the reaction's driving basis (concentrations or partial pressures) and K of
+    ``equilibrium_constant``: beta = 0 far from equilibrium (no products), 1 at equilibrium (the net rate
+    vanishes), above 1 the reaction runs backwards (thermodynamics, e.g. Froment, Bischoff and De Wilde,
+    Chemical Reactor Analysis and Design, 2011, ch. 1)."""
+    q = 1.0
+    for name, nu in rx.nu.items():
+        q = q * _power(drive[name], nu)
+    return q / equilibrium_constant(m, rx, species, T)
+
+
 def _power(a, exponent):
     if isinstance(exponent, (int, float)):  # shortcuts only for plain numbers (sampled orders are arrays)
         if exponent == 0:

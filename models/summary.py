@@ -9,7 +9,7 @@ from .backend import NUMPY
 from .balances import local_properties, rates
 from .correlations import water_latent_heat
 from .figures import POINTWISE, correlation_range_excesses, critical_reaction, layout_figures
-from .reactions import heat_of_reaction
+from .reactions import approach_to_equilibrium, heat_of_reaction
 from .state import TAIL, StateLayout
 
 
@@ -149,6 +149,15 @@ def summarise(case, z, y, y_out) -> dict:
         "yield": {},
         "selectivity": {},
     }
+    reversible = [rx for rx in case.reactions if rx.reversible]
+    if reversible:  # how close the outlet is to equilibrium, per reversible reaction
+        t_out, p_out = float(layout.get(y_out, "T")), float(layout.get(y_out, "P"))
+        local = local_properties(NUMPY, case, list(y_out[layout.flows]), t_out, p_out)
+        out["approach_to_equilibrium"] = {
+            rx.name: float(approach_to_equilibrium(
+                NUMPY, rx, case.species_map, t_out,
+                local.partial_pressure if rx.driving == "partial_pressure" else local.concentration))
+            for rx in reversible}
     if case.coolant.kind.temperature_source == "saturation":  # boiling water: its pressure and the steam raised
         out["coolant_pressure_Pa"] = case.coolant.pressure
         out["steam_raised_kg_s"] = figures["heat_removed_W"] / water_latent_heat(case.coolant.temperature)

@@ -94,6 +94,8 @@ def summary_lines(case, result) -> list[str]:
         ("coolant outlet temperature [K]", s.get("coolant_outlet_temperature_K")),
         ("residence time [s]", s.get("residence_time_s")),
     ]
+    for name, beta in s.get("approach_to_equilibrium", {}).items():
+        rows.append((f"approach to equilibrium of {name} (Q/K at the outlet; 1 = equilibrium)", beta))
     for name, f in s.get("outlet_molar_flow_mol_s", {}).items():
         rows.append((f"outlet flow of {name} [mol/s]", f))
     width = max(len(r[0]) for r in rows)

@@ -259,3 +259,59 @@ def test_pareto_keeps_unconverged_points_apart():
     assert all(p["status"] == "optimal" for p in front["points"])
     assert all(p["status"] != "optimal" for p in front["not_converged"])
     assert len(front["points"]) + len(front["not_converged"]) == 3
+
+
+# --- reversible reactions, stopped runs -------------------------------------------------------------------
+
+def test_approach_to_equilibrium_is_q_over_k():
+    # Analytic: A <=> D with K = 3 in an isothermal liquid: beta = (c_D/c_A)/K, which tends to 1 in a long tube
+    # and equals (X/(1-X))/3 at any length (c_D/c_A = X/(1-X) with no D fed).
+    from builders import liquid_case, make
+
+    for length, near_one in (("200 m", True), ("5 m", False)):
+        data = liquid_case(**{"tube.length": length})
+        data["chemistry"]["reactions"]["r1"].update({"equation": "A <=> D", "equilibrium_constant": "3"})
+        r = simulate(make(data), checks=False)
+        beta = r.summary["approach_to_equilibrium"]["r1"]
+        x = r.summary["conversion"]
+        assert beta == pytest.approx(x / (1 - x) / 3, rel=1e-9)
+        assert (abs(beta - 1) < 1e-6) == near_one
+
+
+def test_a_stopped_run_says_so_in_its_plot_and_gives_no_radial_number(tmp_path):
+    from tubewright.optimizer.output import plots
+
+    case = load_case(DEMO / "oxidation.toml", {"coolant.pressure": "140 bar"})
+    r = simulate(case)
+    assert r.status == "stopped"
+    radial = next(f for f in r.findings if f.code == "radial_gradient")
+    assert radial.value is None and radial.message.startswith("not estimated: the simulation stopped")
+    seen = {}
+    real = plots.new_figure
+
+    def keep(*args, **kwargs):
+        seen["fig"] = real(*args, **kwargs)
+        return seen["fig"]
+
+    plots.new_figure = keep
+    try:
+        plots.plot_profiles(case, r, tmp_path / "p.png")
+    finally:
+        plots.new_figure = real
+    title = seen["fig"]._suptitle.get_text()
+    assert "SIMULATION STOPPED" in title and "ceiling" in title
+    texts = [t.get_text() for ax in seen["fig"].axes for t in ax.texts]
+    assert any(t.startswith("stopped at z = ") for t in texts)
+
+
+def test_the_optimum_keeps_its_limits_between_the_collocation_points():
+    # The collocation model bounds pointwise figures at its points only; the re-simulated optimum must keep
+    # every limit of [limits] too (the demo's runaway group reached 1.0015 against 1 before).
+    from tubewright.optimizer import verbs
+
+    res = verbs.optimize(load_case(DEMO / "oxidation-design.toml"))
+    assert res.ok
+    verdicts = {f.code: f for f in res.simulation.findings if f.code.startswith("limit_")}
+    assert verdicts and all("violates" not in f.message for f in verdicts.values()), verdicts
+    runaway = next(r for r in res.limits if r.name == "runaway_margin")
+    assert runaway.bound == 1.0 and runaway.binding

@@ -59,6 +59,7 @@ class DesignProblem:
         self.verify_tolerance = float(num.verify_tolerance)
         self.model = None
         self.nlp = None
+        self.tightened = {}  # limit -> NLP bound moved inward so that the limit holds between the points
 
     # --- building ---------------------------------------------------------------------------------------
     def start_values(self) -> dict:
@@ -245,6 +246,23 @@ class DesignProblem:
             values["coolant_pressure"] = water_saturation_pressure(values["coolant_temperature"])
         return values
 
+    def tighten_between_points(self, summary, margin: float = 1.5) -> dict:
+        """Pointwise limits are enforced at the collocation points only; where the re-simulated design
+        passes one between them, move that limit's NLP bound inward by ``margin`` times the excess (the
+        user's bound stays the reported one). Returns {limit: (re-simulated value, new NLP bound)}."""
+        moved = {}
+        for name, bound in self.spec.limits.items():
+            row = LIMITS[name]
+            value = summary.get(row.figure)
+            if not row.pointwise or value is None or row.passes(value, bound):
+                continue
+            param = self.model.limit_value[name]
+            excess = value - bound if row.kind == "max" else bound - value
+            param.set_value(float(pyo.value(param)) + (-1.0 if row.kind == "max" else 1.0) * margin * excess)
+            self.tightened[name] = float(pyo.value(param))
+            moved[name] = (float(value), self.tightened[name])
+        return moved
+
     def limit_rows(self, outcome) -> list[LimitRow]:
         rows = []
         index = {id(c): i for i, c in enumerate(self.nlp.constraints)}
@@ -253,9 +271,11 @@ class DesignProblem:
             cons = list(comp.values()) if comp.is_indexed() else [comp]
             lam = sum(outcome.multipliers[index[id(c)]] for c in cons)
             value = self.limit_value(name)
-            bound = float(pyo.value(self.model.limit_value[name]))
-            scale = max(abs(bound), 1e-12)
-            binding = abs(value - bound) <= 1e-5 * scale + 1e-9 and abs(lam) > 1e-12
+            enforced = float(pyo.value(self.model.limit_value[name]))
+            scale = max(abs(enforced), 1e-12)
+            binding = abs(value - enforced) <= 1e-5 * scale + 1e-9 and abs(lam) > 1e-12
+            # a limit tightened to hold between the collocation points is reported against the user's bound
+            bound = self.spec.limits[name] if name in self.tightened else enforced
             # IPOPT: L = f_min + lambda g; d f_min*/d bound = -lambda. For a maximised goal f = -f_min.
             # An inactive limit costs nothing: its multiplier is reported as 0 (IPOPT leaves ~1e-8 there).
             row = LIMITS[name]

@@ -36,9 +36,17 @@ def plot_profiles(case, result, path: Path, limits=None) -> Path:
             axes[2].legend(loc="best", fontsize=8)
     axes[2].set_ylabel("pressure [bar]")
     axes[2].set_xlabel("axial position z [m]")
-    fig.suptitle(plain(case.title), fontsize=9)
+    title = plain(case.title)
+    if not result.ok:  # say where and why the run stopped, on every panel
+        z_end = float(z[-1])
+        for a in axes:
+            a.axvline(z_end, color="black", lw=0.8, ls="--")
+        axes[0].annotate(f"stopped at z = {z_end:.3g} m", (z_end, float(cols["T_K"][-1])), fontsize=8,
+                         xytext=(-4, -12), textcoords="offset points", ha="right")
+        title += "\n" + plain(f"SIMULATION STOPPED: {result.reason}")
+    fig.suptitle(title, fontsize=9)
     fig.text(0.01, 0.005, "Screening estimate only - verify before use.", fontsize=7, color="gray")
-    fig.tight_layout(rect=(0, 0.02, 1, 0.97))
+    fig.tight_layout(rect=(0, 0.02, 1, 0.95 if not result.ok else 0.97))
     path = Path(path)
     fig.savefig(path, dpi=110)
     return path

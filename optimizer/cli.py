@@ -23,10 +23,12 @@ else:  # pragma: no cover
 
 from tubewright.models.casefile import load_case
 from tubewright.models.errors import CaseError, ComputationFailed, option_error
+from tubewright.models.limits import LIMITS
 from tubewright.models.outcomes import Status
 from tubewright.optimizer import verbs
 from tubewright.optimizer.design.goals import GOALS
-from tubewright.optimizer.design.spec import DESIGN_FIELDS
+from tubewright.optimizer.design.spec import DESIGN_FIELDS, read_design
+from tubewright.optimizer.output import display
 from tubewright.optimizer.output.caution import CAUTION
 from tubewright.optimizer.output.jsonsafe import finite
 from tubewright.optimizer.output.progress import ProgressBar
@@ -73,33 +75,35 @@ def _fmt(value) -> str:
     return str(value)
 
 
+SUMMARY_ROWS = (("production rate", "production_rate_mol_s"), ("outlet temperature", "outlet_temperature_K"),
+                ("hot-spot temperature", "max_temperature_K"), ("hot-spot position", "max_temperature_position_m"),
+                ("pressure drop", "pressure_drop_Pa"), ("heat removed", "heat_removed_W"),
+                ("coolant outlet temperature", "coolant_outlet_temperature_K"),
+                ("steam pressure", "coolant_pressure_Pa"), ("steam raised", "steam_raised_kg_s"),
+                ("residence time", "residence_time_s"))
+
+
 def summary_lines(case, result) -> list[str]:
+    """The summary in display units (output.display: degC, bar, kW/MW, t/h, the duty's own unit); --json and
+    the files stay SI."""
     s = result.summary
+    duty = display.duty_unit(case)
     rows = [
         ("status", result.status),
         ("reason", result.reason),
-        (f"conversion of {case.key_reactant}", s.get("conversion")),
+        (f"conversion of {case.key_reactant}", _fmt(s.get("conversion"))),
     ]
     for name, y in s.get("yield", {}).items():
-        rows.append((f"yield of {name}", y))
+        rows.append((f"yield of {name}", _fmt(y)))
     for name, y in s.get("selectivity", {}).items():
-        rows.append((f"selectivity to {name}", y))
-    rows += [
-        ("production rate [mol/s]", s.get("production_rate_mol_s")),
-        ("outlet temperature [K]", s.get("outlet_temperature_K")),
-        ("hot-spot temperature [K]", s.get("max_temperature_K")),
-        ("hot-spot position [m]", s.get("max_temperature_position_m")),
-        ("pressure drop [Pa]", s.get("pressure_drop_Pa")),
-        ("heat removed [W]", s.get("heat_removed_W")),
-        ("coolant outlet temperature [K]", s.get("coolant_outlet_temperature_K")),
-        ("residence time [s]", s.get("residence_time_s")),
-    ]
+        rows.append((f"selectivity to {name}", _fmt(y)))
+    rows += [(label, display.field(key, s.get(key), duty)) for label, key in SUMMARY_ROWS if key in s]
     for name, beta in s.get("approach_to_equilibrium", {}).items():
-        rows.append((f"approach to equilibrium of {name} (Q/K at the outlet; 1 = equilibrium)", beta))
+        rows.append((f"approach to equilibrium of {name} (Q/K at the outlet; 1 = equilibrium)", _fmt(beta)))
     for name, f in s.get("outlet_molar_flow_mol_s", {}).items():
-        rows.append((f"outlet flow of {name} [mol/s]", f))
+        rows.append((f"outlet flow of {name} [mol/s]", _fmt(f)))
     width = max(len(r[0]) for r in rows)
-    return [f"  {label:<{width}}  {_fmt(value)}" for label, value in rows]
+    return [f"  {label:<{width}}  {value}" for label, value in rows]
 
 
 def cmd_simulate(args) -> int:
@@ -155,8 +159,10 @@ def _json_answer(case, result, files) -> dict:
 
 def optimisation_lines(case, res) -> list[str]:
     lines = [f"  status: {res.status} - {res.reason}"]
+    duty = display.duty_unit(res.case or case)
+    currency = read_design(case).costs.currency
     unit = GOALS[res.goal].unit
-    unit = "" if unit == "-" else f" {unit}"
+    unit = "" if unit == "-" else f" {currency} {unit}" if res.goal == "min_cost" else f" {unit}"
     if res.objective is not None and res.goal_valid:
         lines.append(f"  goal: {res.goal} = {_fmt(res.objective)}{unit}")
     elif res.objective is not None:
@@ -170,23 +176,27 @@ def optimisation_lines(case, res) -> list[str]:
         lines.append(f"\ndesign{'' if base is None else ' (base case as written beside it)'}:")
         width = max(len(k) for k in res.design)
         if base is not None:
-            lines.append(f"  {'':<{width}}  {'base case':>14}  {title}")
+            lines.append(f"  {'':<{width}}  {'base case':>16}  {title}")
         for k, v in res.design.items():
-            was = "" if base is None else f"{_fmt(base['design'].get(k)):>14}  "
-            lines.append(f"  {k:<{width}}  {was}{_fmt(v)}")
+            was = "" if base is None else f"{display.field(k, base['design'].get(k)):>16}  "
+            lines.append(f"  {k:<{width}}  {was}{display.field(k, v)}")
         if base is not None and res.simulation is not None and res.simulation.summary:
             for k, v in base["figures"].items():
-                lines.append(f"  {k:<{width}}  {_fmt(v):>14}  {_fmt(res.simulation.summary.get(k))}")
+                lines.append(f"  {k:<{width}}  {display.field(k, v, duty):>16}  "
+                             f"{display.field(k, res.simulation.summary.get(k), duty)}")
     if res.limits:
         lines.append("\nlimits (multiplier = change of the goal per unit of the limit; only at a converged design):")
-        lines.append(f"  {'limit':<32}{'value':>14}{'bound':>14}  {'state':<22}{'multiplier':>14}  unit")
+        lines.append(f"  {'limit':<30}{'value':>16}{'bound':>16}  {'state':<22}{'multiplier':>14}  per SI unit")
         for r in res.limits:
-            state = (f"VIOLATED by {r.violation:.4g}" if r.violated else "binds" if r.binding else "kept")
-            lines.append(f"  {r.name:<32}{_fmt(r.value):>14}{_fmt(r.bound):>14}  {state:<22}"
-                         f"{_fmt(r.multiplier):>14}  {r.unit}")
+            row = LIMITS[r.name]
+            state = (f"VIOLATED by {r.violation:.4g} {r.unit}".rstrip(" -") if r.violated else
+                     "binds" if r.binding else "kept")
+            per = f"{currency}/year per {r.unit}" if res.goal == "min_cost" and r.unit != "-" else r.unit
+            lines.append(f"  {r.name:<30}{display.limit_value(row, r.value, duty):>16}"
+                         f"{display.limit_value(row, r.bound, duty):>16}  {state:<22}{_fmt(r.multiplier):>14}  {per}")
     if res.costs:
-        lines.append("\nannual cost parts [per year]:")
-        lines += [f"  {k:<14}{_fmt(v):>14}" for k, v in res.costs.items()]
+        lines.append(f"\nannual cost parts [{currency} per year]:")
+        lines += [f"  {k:<14}{display.money(v, currency):>18}" for k, v in res.costs.items()]
         sh = res.extras.get("shells")
         if sh:
             lines.append(f"  tube area {sh['area_m2']:.4g} m^2 in {sh['count']} equal shell(s) of "
@@ -491,6 +501,10 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)
         return EXIT_INTERRUPTED
+    except BrokenPipeError:  # the reader of stdout went away (e.g. `| head`): nothing more to say to it
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return EXIT_NOT_OK
     except Exception as err:  # a bug: one line and the saved traceback, never a wall of Python
         path = Path(tempfile.gettempdir()) / f"tubewright-traceback-{os.getpid()}.txt"
         path.write_text(traceback.format_exc(), encoding="utf-8")

@@ -315,3 +315,40 @@ def test_the_optimum_keeps_its_limits_between_the_collocation_points():
     assert verdicts and all("violates" not in f.message for f in verdicts.values()), verdicts
     runaway = next(r for r in res.limits if r.name == "runaway_margin")
     assert runaway.bound == 1.0 and runaway.binding
+
+
+# --- display units ------------------------------------------------------------------------------------------
+
+def test_terminal_tables_use_display_units_and_json_stays_si(capsys):
+    # Conversions by definition (SI brochure): T[degC] = T[K] - 273.15, 1 bar = 1e5 Pa, 1 t/h = 1/3.6 kg/s;
+    # 8000 t/year of acrolein (M = 56.06 g/mol) at 8760 h/year (pint's year is 365.25 d).
+    import json
+
+    from tubewright.optimizer.cli import main
+    from tubewright.optimizer.output import display
+
+    assert main(["simulate", str(DEMO / "oxidation.toml")]) == 0
+    text = capsys.readouterr().out
+    assert main(["simulate", str(DEMO / "oxidation.toml"), "--json"]) == 0
+    s = json.loads(capsys.readouterr().out)["summary"]
+    assert f"{s['max_temperature_K'] - 273.15:.6g} degC" in text
+    assert f"{s['pressure_drop_Pa'] / 1e5:.6g} bar" in text
+    assert f"{s['heat_removed_W'] / 1e6:.6g} MW" in text and f"{s['steam_raised_kg_s'] * 3.6:.6g} t/h" in text
+    case = load_case(DEMO / "oxidation-design.toml", {"limits.production_rate": "8000 t/year",
+                                                      "costs.currency": "EUR"})
+    duty = display.duty_unit(case)
+    molar_mass = case.species_map["C3H4O"].molar_mass
+    rate = 8000e3 / (365.25 * 24 * 3600) / molar_mass  # mol/s
+    assert case.limits["production_rate"] == pytest.approx(rate, rel=1e-9)
+    assert duty(rate) == "8000 t/year"
+    assert display.field("max_temperature_difference_K", 20.0) == "20 K"  # a difference is not shifted
+
+
+def test_currency_labels_costs_and_is_checked():
+    from tubewright.models import CaseError
+    from tubewright.optimizer.design.spec import read_design
+
+    assert read_design(load_case(DEMO / "oxidation-design.toml", {"costs.currency": "EUR"})).costs.currency == "EUR"
+    assert read_design(load_case(DEMO / "oxidation-design.toml")).costs.currency == "USD"
+    with pytest.raises(CaseError, match="costs.currency"):
+        read_design(load_case(DEMO / "oxidation-design.toml", {"costs.currency": "1+1"}))

@@ -72,7 +72,7 @@ def test_cli_table_and_files(tmp_path, capsys):
     out = tmp_path / "run"
     assert main(["simulate", str(DEMO / "coil.toml"), "--out", str(out)]) == 0
     text = capsys.readouterr().out
-    assert "hot-spot temperature [K]" in text and "CAUTION" in text
+    assert "hot-spot temperature" in text and " degC" in text and "CAUTION" in text
     import pandas as pd
 
     frame = pd.read_csv(out / "profiles.csv")

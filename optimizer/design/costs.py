@@ -39,6 +39,7 @@ class CostModel:
     raw_material_price: float = 1.0  # per kg of key reactant lost to by-products
     area_min: float = 10.0
     area_max: float = 1000.0
+    currency: str = "USD"  # a label of the figures (the correlation's own currency; no conversion is made)
 
 
 def exchanger_capital(m, cm: CostModel, area):

@@ -4,6 +4,7 @@ bounds, what to optimise (optimizer.design.goals) and at what prices; [limits] i
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field, fields
 
 from tubewright.models.casefile import Table
@@ -12,6 +13,8 @@ from tubewright.models.errors import CaseError
 from tubewright.models.units import quantity
 from tubewright.optimizer.design.costs import CostModel
 from tubewright.optimizer.design.goals import GOALS
+
+CURRENCY = re.compile(r"[A-Za-z\u00a3\u00a5\u20ac$]{1,8}")  # a label only: ISO codes, "kEUR", signs
 
 # design key -> (unit dimension, where the value lives in the case, human name)
 DESIGN_KEYS = {
@@ -142,9 +145,15 @@ def read_design(case) -> DesignSpec:
             raise CaseError(source, "goal.objective", f'"{goal}" needs chemistry.product')
     costs = CostModel()
     if "costs" in raw:
-        allowed = {f.name for f in fields(CostModel)}
-        c = Table(raw["costs"], source, "costs", allowed)
-        values = {k: c.number(k, low=0.0) for k in list(c.data) if k in allowed}
+        numbers = {f.name for f in fields(CostModel)} - {"currency"}
+        c = Table(raw["costs"], source, "costs", numbers | {"currency"})
+        values = {k: c.number(k, low=0.0) for k in list(c.data) if k in numbers}
+        if c.has("currency"):
+            currency = c.raw("currency")
+            if not isinstance(currency, str) or not CURRENCY.fullmatch(currency):
+                raise CaseError(source, "costs.currency", f"must be a currency code or sign of 1-8 letters (\"EUR\", "
+                                f"\"USD\", \"kEUR\"), got {currency!r}; it only labels the figures (no conversion)")
+            values["currency"] = currency
         c.finish()
         costs = CostModel(**values)
     return DesignSpec(free, fixed, limits, goal, costs, standard, rounding, profile)

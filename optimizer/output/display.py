@@ -43,8 +43,9 @@ BY_FIELD = {
     "coolant_flow_kg_s": mass_flow,
     "max_temperature_difference_K": lambda v: f"{_g(v)} K",
 }
-BY_SUFFIX = (("_mol_s", lambda v: f"{_g(v)} mol/s"), ("_K", temperature), ("_Pa", pressure), ("_W", power), ("_kg_s", mass_flow), ("_m", length),
-             ("_s", lambda v: f"{_g(v)} s"), ("_m_s", lambda v: f"{_g(v)} m/s"))
+BY_SUFFIX = (("_mol_s", lambda v: f"{_g(v)} mol/s"), ("_K", temperature), ("_Pa", pressure), ("_W", power),
+             ("_kg_s", mass_flow), ("_m", length), ("_s", lambda v: f"{_g(v)} s"),
+             ("_m_s", lambda v: f"{_g(v)} m/s"))
 # a limit's dimension -> formatter of its value and bound (models.limits rows)
 BY_DIMENSION = {"temperature": temperature, "temperature_difference": lambda v: f"{_g(v)} K",
                 "pressure": pressure, "velocity": lambda v: f"{_g(v)} m/s"}

@@ -31,7 +31,7 @@ from tubewright.optimizer.design.spec import DESIGN_FIELDS, read_design
 from tubewright.optimizer.output import display
 from tubewright.optimizer.output.caution import CAUTION
 from tubewright.optimizer.output.jsonsafe import finite
-from tubewright.optimizer.output.progress import ProgressBar
+from tubewright.optimizer.output.progress import Phases, ProgressBar
 from tubewright.optimizer.output.text import safe_frame
 from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES, POLICIES
 from tubewright.optimizer.study.spec import MAX_TASKS
@@ -233,7 +233,19 @@ def _optimisation_answer(case, res, files) -> dict:
 
 def cmd_optimize(args) -> int:
     case = load_case(args.case, _parse_sets(args.set))
-    res = verbs.optimize(case, ideal=args.ideal, starts=args.starts, seed=args.seed, pareto=args.pareto)
+    progress = Phases(enabled=not args.json)
+
+    def show_optimum(res):  # the main optimum as soon as it is known; alternatives follow
+        if args.json:
+            return
+        progress.close()
+        print(f"{case.title}\n  case file: {case.source}")
+        print("\n".join(optimisation_lines(case, res)))
+        sys.stdout.flush()
+
+    res = verbs.optimize(case, ideal=args.ideal, starts=args.starts, seed=args.seed, pareto=args.pareto,
+                         progress=progress, on_optimum=show_optimum)
+    progress.close()
     extras = res.extras
     files = {}
     if args.out:  # written for a failed optimisation too: the report says why
@@ -262,8 +274,6 @@ def cmd_optimize(args) -> int:
     if args.json:
         _emit_json(_optimisation_answer(case, res, files))
     else:
-        print(f"{case.title}\n  case file: {case.source}")
-        print("\n".join(optimisation_lines(case, res)))
         print("\n".join(extra_lines(res, extras)))
         for label, path in files.items():
             print(f"  wrote {label}: {path}")
@@ -324,6 +334,14 @@ def cmd_screen(args) -> int:
     answer.update(case=case.source, title=case.title, caution=CAUTION)
     if args.out:
         answer["files"] = write_files(res, Path(args.out))
+    if res.interrupted:  # the samples evaluated so far are kept (under --out), nothing is analysed
+        done = int((res.outputs["status"] != "interrupted").sum())
+        kept = f"kept in {answer['files']['outputs_csv']}" if args.out else "give --out DIR to keep them"
+        print(f"interrupted: {done} of {len(res.outputs)} samples evaluated ({kept}); nothing analysed",
+              file=sys.stderr)
+        if args.json:
+            _emit_json(finite(answer))
+        return EXIT_INTERRUPTED
     if args.json:
         _emit_json(finite(answer))
         return EXIT_OK

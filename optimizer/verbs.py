@@ -22,11 +22,14 @@ def simulate(case):
     return _simulate_with_checks(case, checks=True)
 
 
-def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0, pareto: int | None = None):
+def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0, pareto: int | None = None,
+             progress=None, on_optimum=None):
     """The cheapest (or best) layout of a case: an OptimizationResult whose ``extras`` hold, as asked, the
     ranking of standard tubes (``[design] standard_tubes = true``: the best tube is then optimised), the
     ideal bound with its gap (``ideal``), a multi-start (``starts``, ``seed``) and a cost-selectivity front
-    (``pareto`` points). ``result.case`` is the case that was optimised (with the chosen standard tube)."""
+    (``pareto`` points). ``result.case`` is the case that was optimised (with the chosen standard tube).
+    ``progress``: see output.progress.Phases; ``on_optimum(result)`` is called as soon as the main optimum
+    is known, before the alternatives are computed (the command line prints it then)."""
     from tubewright.optimizer.design.alternatives import multistart, pareto_front, rank_standard_tubes
     from tubewright.optimizer.design.ideal import ideal_bound
     from tubewright.optimizer.design.optimise import optimise
@@ -38,7 +41,7 @@ def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0
         raise option_error("--pareto", f"a front needs at least 2 points, got {pareto}")
     extras = {}
     if read_design(case).standard_tubes:
-        ranking = rank_standard_tubes(case, MIN_STANDARD_INNER, MAX_STANDARD_INNER)
+        ranking = rank_standard_tubes(case, MIN_STANDARD_INNER, MAX_STANDARD_INNER, progress)
         extras["standard_tubes"] = ranking
         best = next((r for r in ranking if r["objective"] is not None), None)
         if best is not None:
@@ -48,16 +51,21 @@ def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0
             if "inner_diameter" in case.raw.get("design", {}):  # a fixed design diameter would override the tube
                 chosen["design.inner_diameter"] = diameter
             case = build_case(apply_overrides(case.raw, chosen, case.source), case.source)
-    res = optimise(case)
+    res = optimise(case, progress=progress)
     res.extras["base"] = base_design(case)
+    res.case = case
+    if on_optimum is not None:
+        on_optimum(res)
     if ideal and res.ok:
+        if progress is not None:
+            progress("ideal bound (free temperature profile)")
         bound = ideal_bound(case)
         bound["gap"] = (res.objective - bound["objective"]) if bound["success"] else None
         extras["ideal_bound"] = bound
     if starts:
-        extras["multistart"] = multistart(case, starts, seed)
+        extras["multistart"] = multistart(case, starts, seed, progress)
     if pareto:
-        extras["pareto"] = pareto_front(case, pareto)  # the same front as the pareto verb
+        extras["pareto"] = pareto_front(case, pareto, progress)  # the same front as the pareto verb
     res.extras.update(extras)
     res.case = case
     return res

@@ -352,3 +352,83 @@ def test_currency_labels_costs_and_is_checked():
     assert read_design(load_case(DEMO / "oxidation-design.toml")).costs.currency == "USD"
     with pytest.raises(CaseError, match="costs.currency"):
         read_design(load_case(DEMO / "oxidation-design.toml", {"costs.currency": "1+1"}))
+
+
+def test_optimize_reports_its_phases_and_the_main_optimum_first():
+    import io
+
+    from tubewright.optimizer import verbs
+    from tubewright.optimizer.output.progress import Phases
+
+    stream = io.StringIO()
+    progress = Phases(stream=stream)
+    order = []
+    res = verbs.optimize(load_case(DEMO / "oxidation-design.toml"), starts=2, progress=progress,
+                         on_optimum=lambda r: order.append(("optimum", stream.getvalue().count("\n"))))
+    text = stream.getvalue()
+    for phase in ("building the collocation model", "compiling the NLP", "solving with IPOPT", "IPOPT iteration",
+                  "verifying the design", "start 1 of 2", "start 2 of 2"):
+        assert phase in text, phase
+    assert res.ok and order and text.index("start 1 of 2") > len("\n".join(text.splitlines()[: order[0][1]]))
+    assert len(res.extras["multistart"]["runs"]) == 2
+
+
+# --- interrupts and the split over workers -------------------------------------------------------------------
+
+def test_samples_split_evenly_over_the_workers():
+    from tubewright.optimizer.screening.evaluation import even_slices
+
+    for n, batch, workers in ((512, 500, 2), (1024, 500, 2), (7168, 500, 2), (3, 500, 2), (10, 4, 1)):
+        sizes = [s.stop - s.start for s in even_slices(n, batch, workers)]
+        assert sum(sizes) == n and max(sizes) <= batch and max(sizes) - min(sizes) <= 1
+        if workers > 1 and n >= workers:
+            assert len(sizes) % workers == 0
+
+
+def test_an_interrupted_screening_keeps_the_evaluated_samples():
+    from tubewright.optimizer.screening.screen import screen
+
+    calls = []
+
+    def interrupt_after_the_first_batch(done, total, failed):
+        calls.append(done)
+        if len(calls) == 1:
+            raise KeyboardInterrupt
+
+    case = load_case(DEMO / "oxidation-screen.toml")
+    res = screen(case, "morris", 10, seed=0, batch_size=20, progress=interrupt_after_the_first_batch)
+    assert res.interrupted
+    status = res.outputs["status"]
+    assert (status == "interrupted").sum() == len(status) - calls[0] > 0
+    assert np.isfinite(res.outputs.loc[status == "ok", "conversion"]).all()
+    assert set(status[status != "interrupted"]) <= {"ok", "stopped"}
+    assert all(isinstance(v, str) and "interrupted" in v for v in res.indices.values())
+
+
+@pytest.mark.slow
+def test_ctrl_c_stops_a_screening_within_two_seconds_and_keeps_its_samples(tmp_path):
+    import signal
+    import subprocess
+    import sys
+    import time
+
+    import pandas as pd
+    from builders import ROOT
+
+    out = tmp_path / "sobol"
+    proc = subprocess.Popen([sys.executable, "-m", "tubewright.optimizer.cli", "screen",
+                             str(DEMO / "oxidation-screen.toml"), "--method", "sobol", "--samples", "1024",
+                             "--workers", "2", "--yes", "--out", str(out)], cwd=ROOT, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True,
+                            preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
+    time.sleep(4.0)  # imports, sampling and the first batches
+    if proc.poll() is not None:
+        pytest.skip("the screening finished before the interruption")
+    proc.send_signal(signal.SIGINT)
+    t0 = time.time()
+    stdout, stderr = proc.communicate(timeout=30)
+    assert time.time() - t0 < 2.0, stderr
+    assert proc.returncode == 130 and "Traceback" not in stderr, stderr
+    assert "interrupted:" in stderr
+    outputs = pd.read_csv(out / "outputs.csv")
+    assert (outputs["status"] == "interrupted").any()

@@ -17,11 +17,11 @@ from tubewright.optimizer.design.problem import DesignProblem, design_case
 from tubewright.optimizer.design.spec import DESIGN_FIELDS
 
 
-def optimise(case, nfe=None, ncp=None) -> OptimizationResult:
+def optimise(case, nfe=None, ncp=None, progress=None) -> OptimizationResult:
     """The whole `optimize` verb: solve, round the tube count and re-solve, verify (refining the mesh once
     if needed), and report."""
     t0 = time.perf_counter()
-    problem = DesignProblem(case, nfe, ncp)
+    problem = DesignProblem(case, nfe, ncp, progress=progress)
     spec = problem.spec
     if not spec.has_freedom:
         sim = simulate(design_case(case, problem.start_values()))
@@ -46,6 +46,7 @@ def optimise(case, nfe=None, ncp=None) -> OptimizationResult:
         sim = simulate(design_case(case, problem.start_values()), checks=False)
         return OptimizationResult(Status.FAILED, str(err), spec.goal, None, simulation=sim, reason_code=err.code,
                                   hint="start from a design that can be simulated: set design.*.start")
+    problem.say("solving with IPOPT")
     outcome = problem.solve_nlp()
     solves = [outcome]
     notes += problem.shell_notes
@@ -53,17 +54,19 @@ def optimise(case, nfe=None, ncp=None) -> OptimizationResult:
         n = problem.model.design["tube_count"]
         rounded = float(max(round(n.value), math.ceil(spec.free["tube_count"].lower)))
         notes.append(f"tube count {n.value:.2f} rounded to {rounded:.0f} and re-solved")
+        problem.say(f"tube count rounded to {rounded:.0f}: re-solving")
         n.setlb(rounded)
         n.setub(rounded)
         outcome = problem.solve_nlp(warm_start=True)
         solves.append(outcome)
         notes += problem.shell_notes
     values = problem.design_values()
+    problem.say("verifying the design with the adaptive integrator")
     verification, sim = problem.verify(values) if outcome.success else ({}, None)
     if outcome.success and verification["max_relative_deviation"] > problem.verify_tolerance:
         notes.append(f"verification deviation {verification['max_relative_deviation']:.2e} above tolerance "
                      f"{problem.verify_tolerance:g}: mesh refined from {problem.nfe} to {2 * problem.nfe} elements")
-        finer = DesignProblem(case, 2 * problem.nfe, problem.ncp)
+        finer = DesignProblem(case, 2 * problem.nfe, problem.ncp, progress=progress)
         finer.build(values)
         if "tube_count" in spec.free and spec.round_tube_count:
             finer.model.design["tube_count"].setlb(values["tube_count"])
@@ -78,6 +81,7 @@ def optimise(case, nfe=None, ncp=None) -> OptimizationResult:
         moved = problem.tighten_between_points(sim.summary) if outcome.success and sim is not None else {}
         if not moved:
             break
+        problem.say(f"tightening {', '.join(moved)} between the collocation points: re-solving")
         for name, (value, enforced) in moved.items():
             notes.append(f"limits.{name}: the re-simulated design reaches {value:.6g} between the collocation "
                          f"points; its bound in the NLP tightened to {enforced:.6g} and re-solved")

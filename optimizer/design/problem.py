@@ -48,7 +48,8 @@ class DesignProblem:
     """Build once, solve many: the compiled NLP is kept; parameters (k_ref, E_a, U multiplier, limit values,
     fixed design values) change through ``set_parameter`` and re-solve without recompiling."""
 
-    def __init__(self, case, nfe: int | None = None, ncp: int | None = None, goal: str | None = None):
+    def __init__(self, case, nfe: int | None = None, ncp: int | None = None, goal: str | None = None,
+                 progress=None):
         self.case = case
         self.spec = read_design(case)
         if goal is not None:
@@ -60,6 +61,11 @@ class DesignProblem:
         self.model = None
         self.nlp = None
         self.tightened = {}  # limit -> NLP bound moved inward so that the limit holds between the points
+        self.progress = progress  # optional: progress(text) and progress.iteration(k, objective, infeasibility)
+
+    def say(self, text: str):
+        if self.progress is not None:
+            self.progress(text)
 
     # --- building ---------------------------------------------------------------------------------------
     def start_values(self) -> dict:
@@ -71,6 +77,7 @@ class DesignProblem:
         """Build, initialise from a simulation of the starting design, add goal and limits, compile.
         ``modify(model)`` may change the model (deactivate equations, free profiles) before compilation."""
         t0 = time.perf_counter()
+        self.say(f"building the collocation model ({self.nfe} elements x {self.ncp} points)")
         start_case = design_case(self.case, start or self.start_values())
         sim = simulate(start_case, checks=False)
         if not sim.columns:
@@ -90,7 +97,10 @@ class DesignProblem:
         self._objective(m)
         if modify is not None:
             modify(m)
+        self.say("compiling the NLP for IPOPT")
         self.nlp = CompiledNLP(m)
+        if self.progress is not None:
+            self.nlp.on_iteration = getattr(self.progress, "iteration", None)
         self._scales = state_scaling(m, start_case, sim)
         self.obj_scale = 1.0 / max(abs(pyo.value(m.goal)), 1e-12)
         self.build_s = time.perf_counter() - t0

@@ -338,6 +338,8 @@ class CompiledNLP:
         self.g_lb = np.array([-INFINITY if c.lower is None else value(c.lower) for c in self.constraints], dtype=float)
         self.g_ub = np.array([INFINITY if c.upper is None else value(c.upper) for c in self.constraints], dtype=float)
 
+    on_iteration = None  # optional f(iteration, objective, primal infeasibility), called by IPOPT every iteration
+
     def current_point(self) -> np.ndarray:
         x = np.array([0.0 if v.value is None else v.value for v in self.variables], dtype=float)
         return np.clip(x, self.x_lb, self.x_ub)
@@ -377,8 +379,10 @@ class CompiledNLP:
             def hessianstructure(self):
                 return outer.hess_rows, outer.hess_cols
 
-            def intermediate(self, alg_mod, iter_count, *args):
+            def intermediate(self, alg_mod, iter_count, obj_value, inf_pr, *args):
                 iterations[0] = iter_count
+                if outer.on_iteration is not None:
+                    outer.on_iteration(int(iter_count), outer.sign * float(obj_value), float(inf_pr))
                 return True
 
         problem = cyipopt.Problem(n=self.n, m=self.m, problem_obj=_Problem(), lb=self.x_lb, ub=self.x_ub,

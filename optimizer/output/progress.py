@@ -30,3 +30,42 @@ class ProgressBar:
     def close(self):
         if self.shown:
             sys.stderr.write("\n")
+
+
+class Phases:
+    """Phases and IPOPT iterations of an optimisation, on stderr when it is a terminal (``enabled`` and a
+    TTY), with the elapsed time: "building", "compiling", iterations, "verifying", "start k of N"... The
+    design layer calls it as ``progress(text)`` and ``progress.iteration(k, objective, infeasibility)``."""
+
+    def __init__(self, enabled: bool = True, stream=None):
+        self.stream = stream or sys.stderr
+        self.enabled = enabled and (stream is not None or sys.stderr.isatty())
+        self.t0 = time.perf_counter()
+        self.open_line = False
+        self.last = -1.0
+
+    def __call__(self, text: str):
+        if not self.enabled:
+            return
+        self._end_line()
+        self.stream.write(f"  [{time.perf_counter() - self.t0:6.1f} s] {text}\n")
+        self.stream.flush()
+
+    def iteration(self, k: int, objective: float, infeasibility: float):
+        now = time.perf_counter()
+        if not self.enabled or now - self.last < 0.2:  # a few updates a second are enough to see it move
+            return
+        self.last = now
+        self.stream.write(f"\r  [{time.perf_counter() - self.t0:6.1f} s]   IPOPT iteration {k:4d}, objective "
+                          f"{objective:.6g}, infeasibility {infeasibility:.2e} ")
+        self.stream.flush()
+        self.open_line = True
+
+    def _end_line(self):
+        if self.open_line:
+            self.stream.write("\n")
+            self.open_line = False
+
+    def close(self):
+        if self.enabled:
+            self._end_line()

@@ -170,6 +170,7 @@ class ScreeningResult:
     probability_of_passing: dict = field(default_factory=dict)  # output -> probability() (None with Morris)
     spread: dict = field(default_factory=dict)  # output -> spread(): P5/P50/P95 (None with Morris)
     timings: dict = field(default_factory=dict)
+    interrupted: bool = False  # Ctrl-C during the evaluations: samples kept, nothing analysed
 
 
 def run(items, evaluator, method: str = "morris", n: int = 16, seed: int = 0, policy: str = "censor",
@@ -193,8 +194,13 @@ def run(items, evaluator, method: str = "morris", n: int = 16, seed: int = 0, po
     indices, failures, conv = {}, {}, {}
     factors = factor_names(problem)
     t_analysis = time.perf_counter()
+    interrupted = bool(getattr(ev, "interrupted", False))
     for name in outputs or ev.outputs:
         if name not in ev.outputs:
+            continue
+        if interrupted:  # a design with holes is no Morris or Sobol design: keep the samples, analyse nothing
+            done = int(np.sum(ev.status != "interrupted"))
+            indices[name] = f"not analysed: interrupted after {done} of {len(ev.status)} samples"
             continue
         y = np.array((ev.censored if policy == "censor" else ev.outputs)[name], dtype=float)
         bad = ~np.isfinite(y)
@@ -213,10 +219,11 @@ def run(items, evaluator, method: str = "morris", n: int = 16, seed: int = 0, po
         res = analyse(problem, method, unit_x, y, seed)
         indices[name] = pd.DataFrame({k: np.asarray(v, dtype=float) for k, v in res.items()}, index=factors)
         conv[name] = convergence(problem, method, unit_x, y, n, seed)
-    passing = {name: probability(problem, method, ev.outputs[name])
-               for name in ("passes_hot_spot_limit", "passes_limits") if name in ev.outputs}
-    spreads = {name: spread(problem, method, (ev.censored if policy == "censor" else ev.outputs)[name])
-               for name in (outputs or ev.outputs) if name in ev.outputs and not name.startswith("passes_")}
+    passing = {} if interrupted else {name: probability(problem, method, ev.outputs[name])
+                                      for name in ("passes_hot_spot_limit", "passes_limits") if name in ev.outputs}
+    spreads = {} if interrupted else {
+        name: spread(problem, method, (ev.censored if policy == "censor" else ev.outputs)[name])
+        for name in (outputs or ev.outputs) if name in ev.outputs and not name.startswith("passes_")}
     stopped = int(np.sum(ev.status != "ok"))
     timings = {"evaluate_s": ev.seconds, "stopped_samples": stopped,
                "censored_samples": stopped if policy == "censor" else 0,
@@ -224,4 +231,4 @@ def run(items, evaluator, method: str = "morris", n: int = 16, seed: int = 0, po
                "evaluations": int(unit_x.shape[0]), "evaluations_per_s": unit_x.shape[0] / max(ev.seconds, 1e-9),
                "handed_over": ev.handed_over}
     return ScreeningResult(method, seed, n, policy, factors, samples, out, indices, conv, failures, passing, spreads,
-                           timings)
+                           timings, interrupted)

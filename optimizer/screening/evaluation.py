@@ -7,8 +7,8 @@ every limit of [limits] is judged by its row of models.limits.
 
 from __future__ import annotations
 
+import signal
 import time
-from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
@@ -30,11 +30,29 @@ class Evaluations:
     seconds: float
     handed_over: int = 0
     codes: np.ndarray = None  # Reason per sample
+    interrupted: bool = False  # Ctrl-C: the samples not evaluated carry Status.INTERRUPTED
 
 
 def _batch_task(args):
     case, chunk, size, trap = args
     return simulate_batch(case, chunk, size, trap=trap)
+
+
+def _worker_start():
+    signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C is the coordinator's: it ends the workers
+
+
+def even_slices(n: int, batch_size: int, workers: int) -> list[slice]:
+    """Consecutive slices of ``n`` samples of nearly equal size: at least one per worker and none above
+    ``batch_size``, their number a multiple of the workers, so that every worker gets the same share
+    (a fixed batch of 500 split 512 samples 500 + 12 and left one worker idle)."""
+    count = max(1, -(-n // batch_size))
+    if workers > 1:
+        count = max(count, workers)
+        count = -(-count // workers) * workers
+    count = min(count, max(n, 1))
+    edges = np.linspace(0, n, count + 1).round().astype(int)
+    return [slice(int(a), int(b)) for a, b in zip(edges[:-1], edges[1:]) if b > a]
 
 
 def evaluate(case, items, unit_x, batch_size: int = 500, batched: bool = True, progress=None,
@@ -55,6 +73,7 @@ def evaluate(case, items, unit_x, batch_size: int = 500, batched: bool = True, p
     if not case.coolant.kind.batchable:
         batched = False
     done = 0
+    evaluated = np.zeros(n, dtype=bool)
 
     def store(idx, res):
         nonlocal handed, done
@@ -67,41 +86,72 @@ def evaluate(case, items, unit_x, batch_size: int = 500, batched: bool = True, p
         reason[idx] = res.reason
         handed += res.handed_over
         done += idx.stop - idx.start
+        evaluated[idx] = True
         if progress is not None:
             progress(done, n, int(np.sum(status != Status.OK)))
 
-    if batched:
-        slices = [slice(a, min(a + batch_size, n)) for a in range(0, n, batch_size)]
-        tasks = [(case, {p: v[s] for p, v in values.items()}, s.stop - s.start, trap) for s in slices]
-        if workers > 1 and len(tasks) > 1:
-            with ProcessPoolExecutor(max_workers=workers, mp_context=process_context()) as pool:
-                futures = [pool.submit(_batch_task, t) for t in tasks]
-                for s, fut in zip(slices, futures):
-                    try:
-                        store(s, fut.result())
-                    except Exception as err:  # a lost worker must not lose the other batches
-                        status[s] = Status.FAILED
-                        codes[s] = Reason.BATCH_FAILED
-                        reason[s] = [f"batch process failed: {err!r}"] * (s.stop - s.start)
-                        done += s.stop - s.start
+    interrupted = False
+    try:
+        if batched:
+            slices = even_slices(n, batch_size, workers)
+            tasks = [(case, {p: v[s] for p, v in values.items()}, s.stop - s.start, trap) for s in slices]
+            if workers > 1 and len(tasks) > 1:
+                _on_pool(tasks, slices, workers, store, status, codes, reason, evaluated)
+            else:
+                for s, t in zip(slices, tasks):
+                    store(s, _batch_task(t))
         else:
-            for s, t in zip(slices, tasks):
-                store(s, _batch_task(t))
-    else:
-        for i in range(n):
-            r = simulate(apply(case, {p: float(v[i]) for p, v in values.items()}), checks=False)
-            for target, flag in ((outputs, False), (censored, True)):
-                for k, v in single_outputs(r, flag).items():
-                    target[k][i] = v
-            status[i], reason[i], codes[i] = r.status, r.reason, r.reason_code
-            if progress is not None:
-                progress(i + 1, n, int(np.sum(status[: i + 1] != Status.OK)))
+            for i in range(n):
+                r = simulate(apply(case, {p: float(v[i]) for p, v in values.items()}), checks=False)
+                for target, flag in ((outputs, False), (censored, True)):
+                    for k, v in single_outputs(r, flag).items():
+                        target[k][i] = v
+                status[i], reason[i], codes[i] = r.status, r.reason, r.reason_code
+                evaluated[i] = True
+                if progress is not None:
+                    progress(i + 1, n, int(np.sum(status[: i + 1] != Status.OK)))
+    except KeyboardInterrupt:  # keep what was evaluated; the rest is recorded as interrupted
+        interrupted = True
+        status[~evaluated] = Status.INTERRUPTED
+        codes[~evaluated] = Reason.INTERRUPTED
+        for i in np.flatnonzero(~evaluated):
+            reason[i] = "interrupted (Ctrl-C) before this sample was evaluated"
     passes = passing(case, outputs, codes)
     outputs.update(passes)
     censored.update(passes)
     present = [k for k, v in censored.items() if not np.all(np.isnan(v))]
     return Evaluations({k: outputs[k] for k in present}, {k: censored[k] for k in present}, status, reason,
-                       time.perf_counter() - t0, handed, codes)
+                       time.perf_counter() - t0, handed, codes, interrupted)
+
+
+def _on_pool(tasks, slices, workers, store, status, codes, reason, evaluated, poll: float = 0.1):
+    """The batches on a pool of ``workers`` processes (the platform's start method). The workers ignore
+    Ctrl-C; on Ctrl-C the coordinator terminates them at once (within a poll interval) and re-raises, so
+    that the caller keeps the batches already stored. A batch whose process failed is recorded as failed
+    samples with the reason, and the others go on."""
+    pool = process_context().Pool(workers, initializer=_worker_start)
+    try:
+        pending = [(s, pool.apply_async(_batch_task, (t,))) for s, t in zip(slices, tasks)]
+        while pending:
+            still = []
+            for s, job in pending:
+                if not job.ready():
+                    still.append((s, job))
+                    continue
+                try:
+                    store(s, job.get())
+                except Exception as err:  # a lost worker must not lose the other batches
+                    status[s] = Status.FAILED
+                    codes[s] = Reason.BATCH_FAILED
+                    reason[s] = [f"batch process failed: {err!r}"] * (s.stop - s.start)
+                    evaluated[s] = True
+            pending = still
+            if pending:
+                pending[0][1].wait(poll)
+        pool.close()
+    finally:
+        pool.terminate()
+        pool.join()
 
 
 def passing(case, outputs: dict, codes) -> dict:

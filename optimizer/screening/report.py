@@ -50,6 +50,7 @@ def as_json(res) -> dict:
         return {f: {k: float(v) for k, v in row.items()} for f, row in idx.iterrows()}  # NaN: see jsonsafe
 
     return {"method": res.method, "seed": res.seed, "samples": res.n, "evaluations": len(res.outputs),
+            "interrupted": res.interrupted,
             "failure_policy": res.policy, "factors": res.factors,
             "indices": {k: table(v) for k, v in res.indices.items()},
             "convergence": {k: {kk: vv for kk, vv in v.items() if kk != "history"} for k, v in res.convergence.items()},

@@ -32,7 +32,8 @@ def main():
     print(f"batched:       {rate_batched:8.1f} evaluations/s ({batched.handed_over} samples handed over to the "
           "single simulator)")
     rate_parallel = parallel.status.size / parallel.seconds
-    print(f"batched, 2 processes: {rate_parallel:8.1f} evaluations/s")
+    print(f"batched, 2 processes: {rate_parallel:8.1f} evaluations/s "
+          f"({rate_parallel / rate_batched:.2f} x one process)")
     print(f"ratio batched / one at a time: {rate_batched / rate_single:.1f} (one process), "
           f"{rate_parallel / rate_single:.1f} (two processes)")
     print(f"projected time for 10 000 evaluations: {10000 / rate_parallel:.0f} s batched on 2 processes, "

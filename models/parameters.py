@@ -4,7 +4,8 @@ Supported paths:
     chemistry.reactions.NAME.k_ref | .activation_energy | .heat_of_reaction | .orders.SPECIES
     heat_transfer.multiplier
     feed.temperature | feed.pressure | feed.molar_flows.SPECIES
-    coolant.temperature | coolant.mass_flow
+    coolant.temperature | coolant.mass_flow | coolant.pressure  (only those the coolant mode reads; the
+    pressure of boiling water sets its saturation temperature)
 
 ``apply`` accepts numbers (one case) or numpy arrays of one value per sample (a batch): the balances
 broadcast over the samples, so one integration carries them all."""
@@ -16,6 +17,7 @@ from dataclasses import replace
 import numpy as np
 
 from .backend import NUMPY
+from .correlations import water_saturation_temperature
 from .errors import CaseError, suggest
 from .reactions import heat_of_reaction, rate_units
 from .thermo import T_STD
@@ -26,12 +28,19 @@ SIMPLE = {
     "feed.pressure": "Pa",
     "coolant.temperature": "K",
     "coolant.mass_flow": "kg/s",
+    "coolant.pressure": "Pa",
 }
 REACTION_FIELDS = ("k_ref", "activation_energy", "heat_of_reaction", "orders")
 
 
 def si_unit(case, path: str, source: str, key: str) -> str:
     """The SI unit (pint string) of the parameter at ``path``; CaseError for an unknown path."""
+    if path.startswith("coolant.") and path in SIMPLE:  # only what the mode reads (models.coolant_modes)
+        mode = case.coolant.kind
+        if path.split(".")[1] not in mode.keys:
+            reads = ", ".join(f"coolant.{k}" for k in mode.keys if f"coolant.{k}" in SIMPLE) or "no coolant parameter"
+            raise CaseError(source, key, f'"{path}" does not apply to coolant mode "{mode.name}"; this mode reads: '
+                            f"{reads}")
     if path in SIMPLE:
         return SIMPLE[path]
     parts = path.split(".")
@@ -100,6 +109,8 @@ def apply(case, values: dict):
             feed = replace(feed, **{parts[1]: v})
         elif path in ("coolant.temperature", "coolant.mass_flow"):
             coolant = replace(coolant, **{parts[1]: v})
+        elif path == "coolant.pressure":  # boiling water: the pressure sets the coolant temperature
+            coolant = replace(coolant, pressure=v, temperature=water_saturation_temperature(v, NUMPY))
         elif path.startswith("feed.molar_flows."):
             flows[case.index(parts[2])] = v
         else:

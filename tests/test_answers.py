@@ -432,3 +432,24 @@ def test_ctrl_c_stops_a_screening_within_two_seconds_and_keeps_its_samples(tmp_p
     assert "interrupted:" in stderr
     outputs = pd.read_csv(out / "outputs.csv")
     assert (outputs["status"] == "interrupted").any()
+
+
+@pytest.mark.parametrize("path, mode_ok", [("coolant.temperature", False), ("coolant.mass_flow", False),
+                                           ("coolant.pressure", True)])
+def test_screening_refuses_a_coolant_parameter_the_mode_does_not_read(tmp_path, capsys, path, mode_ok):
+    from tubewright.optimizer.cli import main
+
+    unit = {"coolant.temperature": ("580 K", "590 K"), "coolant.mass_flow": ("1 kg/s", "2 kg/s"),
+            "coolant.pressure": ("100 bar", "110 bar")}[path]
+    case = tmp_path / "screen.toml"
+    case.write_text(f'include = "{DEMO / "oxidation.toml"}"\n[uncertain.x]\nparameter = "{path}"\n'
+                    f'distribution = "uniform"\nmin = "{unit[0]}"\nmax = "{unit[1]}"\n')
+    code = main(["screen", str(case), "--samples", "4", "--workers", "1", "--json"])
+    captured = capsys.readouterr()
+    if mode_ok:  # boiling water reads its pressure: the saturation temperature (IAPWS-IF97) moves with it
+        import json
+
+        assert code == 0
+        assert json.loads(captured.out)["indices"]["max_temperature_K"]["x"]["mu_star"] > 1.0
+    else:
+        assert code == 2 and 'does not apply to coolant mode "boiling_water"' in captured.err

@@ -453,3 +453,29 @@ def test_screening_refuses_a_coolant_parameter_the_mode_does_not_read(tmp_path, 
         assert json.loads(captured.out)["indices"]["max_temperature_K"]["x"]["mu_star"] > 1.0
     else:
         assert code == 2 and 'does not apply to coolant mode "boiling_water"' in captured.err
+
+
+def test_the_front_is_drawn_from_its_converged_points(tmp_path):
+    from tubewright.optimizer.output import plots
+
+    case = load_case(DEMO / "oxidation-design.toml")
+    front = {"points": [{"selectivity": 0.91, "annual_cost_per_year": 8.0e5},
+                        {"selectivity": 0.90, "annual_cost_per_year": 7.9e5}],
+             "not_converged": [{"epsilon": 0.93, "status": "maximum iterations"}]}
+    seen = {}
+    real = plots.new_figure
+
+    def keep(*args, **kwargs):
+        seen["fig"] = real(*args, **kwargs)
+        return seen["fig"]
+
+    plots.new_figure = keep
+    try:
+        path = plots.plot_front(case, front, tmp_path / "pareto.png")
+    finally:
+        plots.new_figure = real
+    assert path.stat().st_size > 5_000
+    (ax,) = seen["fig"].axes
+    (line,) = ax.get_lines()
+    assert list(line.get_xdata()) == [0.90, 0.91]  # sorted, and only the converged points
+    assert "1 point(s) did not converge" in ax.get_title()

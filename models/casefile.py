@@ -224,7 +224,8 @@ def build_case(data: dict, source: str) -> C.Case:
     chem.finish()
 
     num_t = top.sub("numerics", {"rtol", "atol", "method", "temperature_ceiling", "min_pressure",
-                                 "finite_elements", "collocation_points", "verify_tolerance"}, required=False)
+                                 "finite_elements", "collocation_points", "verify_tolerance", "mumps_pivot_order",
+                                 "mumps_mem_percent"}, required=False)
     numerics = C.Numerics()
     if num_t is not None:
         numerics = C.Numerics(
@@ -241,6 +242,9 @@ def build_case(data: dict, source: str) -> C.Case:
                                             high=8, integer=True),
             verify_tolerance=num_t.number("verify_tolerance", default=numerics.verify_tolerance, low=1e-12,
                                           high=1.0),
+            mumps_pivot_order=_ordering(num_t, numerics.mumps_pivot_order),
+            mumps_mem_percent=num_t.number("mumps_mem_percent", default=numerics.mumps_mem_percent, low=0,
+                                           high=100_000, integer=True),
         )
         num_t.finish()
     feed = _feed(top.sub("feed"), species, phase, numerics, source)
@@ -524,6 +528,19 @@ def _check_key_and_product(reactions, feed, names, key, product, source):
             raise CaseError(source, "chemistry.product", "must differ from chemistry.key_reactant")
         if not any(rx.nu.get(product, 0.0) > 0 for rx in reactions):
             raise CaseError(source, "chemistry.product", f'no reaction forms "{product}"')
+
+
+MUMPS_ORDERINGS = {0: "AMD", 2: "AMF", 4: "PORD", 6: "QAMD", 7: "automatic"}  # no METIS or SCOTCH in this MUMPS
+
+
+def _ordering(t: Table, default):
+    if not t.has("mumps_pivot_order"):
+        return default
+    value = t.number("mumps_pivot_order", low=0, high=7, integer=True)
+    if value not in MUMPS_ORDERINGS:
+        allowed = ", ".join(f"{k} ({v})" for k, v in MUMPS_ORDERINGS.items())
+        raise CaseError(t.source, t.key("mumps_pivot_order"), f"{value} is not available; allowed: {allowed}")
+    return int(value)
 
 
 def _coolant(t: Table, feed, source):

@@ -12,13 +12,33 @@ from .errors import CaseError
 
 @lru_cache(maxsize=1)
 def registry():
-    import pint
+    pint = _import_pint()
 
     try:  # a cached registry loads in a tenth of the time; the cache folder is the user's cache directory
         ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True, cache_folder=":auto:")
     except Exception:  # an unwritable cache is no reason to fail
         ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
     return ureg
+
+
+def _import_pint():
+    """pint, imported without its optional dask support: pint.compat imports dask whenever it is installed
+    (0.2 s per process, and dask is installed here for studies), and tubewright never puts dask arrays into
+    quantities. While pint is first imported, ``dask`` is marked absent in sys.modules; the mark is removed
+    at once, so a later ``import dask`` works as usual. Nothing changes if either is imported already."""
+    import sys
+
+    if "pint" in sys.modules or "dask" in sys.modules:
+        import pint
+
+        return pint
+    sys.modules["dask"] = None  # importlib.util.find_spec then reports dask as absent
+    try:
+        import pint
+    finally:
+        if sys.modules.get("dask", 0) is None:
+            del sys.modules["dask"]
+    return pint
 
 
 # Dimension names used in the case schema -> a pint unit whose dimensionality is the one required.

@@ -10,7 +10,12 @@ from __future__ import annotations
 
 from tubewright.models.casefile import apply_overrides, build_case
 from tubewright.models.errors import option_error
-from tubewright.models.simulator import simulate as _simulate_with_checks
+
+
+def _simulate_with_checks(case, checks: bool = True):
+    from tubewright.models.simulator import simulate as run  # the integrators only when a verb simulates
+
+    return run(case, checks=checks)
 
 MIN_STANDARD_INNER, MAX_STANDARD_INNER = 0.01, 0.06  # m: the TEMA tubes ranked by standard_tubes = true
 DEFAULT_MAX_HOURS = 2.0  # a screening estimated to take longer is refused unless the budget is raised

@@ -214,6 +214,15 @@ class DesignProblem:
                 g_s[row[id(c)]] = 1.0 / bound
         return self.obj_scale, x_s, g_s
 
+    def mumps_ordering(self) -> int:
+        """MUMPS's fill-reducing ordering: [numerics] mumps_pivot_order if given, else MUMPS's automatic choice
+        (7, IPOPT's default). Measured on the demo (tests/benchmarks/bench_linear_solver.py) no ordering wins
+        at every mesh: AMF was 8x faster than the automatic choice at 120 elements but slower and less
+        accurate at 90 (124 iterations to an acceptable point against 49 to the optimum), so the default
+        stays IPOPT's and the choice is the user's."""
+        given = self.case.numerics.mumps_pivot_order
+        return 7 if given is None else given
+
     def solve_nlp(self, warm_start=False, options=None, passes: int = 3):
         """Solve (warm from the current point if asked). With the cost goal, a layout whose tube area passes
         the largest shell of the cost correlation is costed as the smallest number of equal shells inside
@@ -222,7 +231,8 @@ class DesignProblem:
         points) reports the same cost definition. The notes of the last solve are in ``shell_notes``."""
         # a larger MUMPS pivot tolerance than IPOPT's default (1e-6) avoids failed step computations on the
         # nearly singular KKT systems of counter-current cases (measured on the coil demo)
-        opts = {"max_iter": 500, "tol": 1e-7, "acceptable_tol": 1e-5, "mumps_pivtol": 1e-4}
+        opts = {"max_iter": 500, "tol": 1e-7, "acceptable_tol": 1e-5, "mumps_pivtol": 1e-4,
+                "mumps_pivot_order": self.mumps_ordering(), "mumps_mem_percent": self.case.numerics.mumps_mem_percent}
         opts.update(options or {})
         outcome = self.nlp.solve(options=opts, warm_start=warm_start, scaling=self.scaling())
         self.shell_notes = []

@@ -6,7 +6,7 @@ import pytest
 
 pytest.importorskip("cyipopt")
 
-from builders import min_volume_case  # noqa: E402
+from builders import DEMO, min_volume_case  # noqa: E402
 from tubewright.optimizer.design.costs import CostModel, exchanger_capital  # noqa: E402
 from tubewright.optimizer.design.tubes import BWG_THICKNESS, TEMA_TUBES, standard_tubes  # noqa: E402
 
@@ -49,6 +49,9 @@ def test_multistart_is_reproducible_and_finds_the_analytic_optimum():
     assert a["best"] == pytest.approx(v, rel=1e-5)
     other = multistart(case, 3, seed=1)
     assert [r["start"] for r in other["runs"]] != [r["start"] for r in a["runs"]]
+    alone = multistart(case, 3, seed=0, workers=1)  # the same starts and optima on one process
+    assert [r["start"] for r in alone["runs"]] == [r["start"] for r in a["runs"]]
+    assert [r["objective"] for r in alone["runs"]] == pytest.approx([r["objective"] for r in a["runs"]], rel=1e-9)
 
 
 def test_standard_tube_ranking_is_sorted():
@@ -70,3 +73,17 @@ def test_pareto_front_trades_cost_for_selectivity(demo_dir):
     sel = [p["selectivity"] for p in pts]
     cost = [p["annual_cost_per_year"] for p in pts]
     assert sel == sorted(sel) and cost == sorted(cost) and cost[-1] > cost[0]
+
+
+@pytest.mark.slow
+def test_standard_tube_ranking_is_the_same_on_one_or_two_processes():
+    # Each size starts from the same point, so the ranking depends neither on the order nor on the workers
+    # (regression only).
+    from tubewright.models import load_case
+    from tubewright.optimizer.design.alternatives import rank_standard_tubes
+
+    case = load_case(DEMO / "oxidation-design.toml", {"design.inner_diameter": "25 mm"})
+    one = rank_standard_tubes(case, 0.015, 0.025, workers=1)
+    two = rank_standard_tubes(case, 0.015, 0.025, workers=2)
+    assert [r["label"] for r in one] == [r["label"] for r in two]
+    assert [r["objective"] for r in one] == pytest.approx([r["objective"] for r in two], rel=1e-9)

@@ -253,7 +253,7 @@ class DesignProblem:
             before = outcome
             outcome = self.nlp.solve(options=opts, warm_start=True, scaling=self.scaling())
             outcome.iterations += before.iterations  # the counters cover every pass
-            for key in ("ipopt_s", "callbacks_s"):
+            for key in ("ipopt_s", "callbacks_s", "solve_s"):
                 outcome.times[key] = outcome.times.get(key, 0.0) + before.times.get(key, 0.0)
         return outcome
 

@@ -11,6 +11,22 @@ from tubewright.models import load_case, simulate
 from tubewright.models.checks import SENSITIVITY_STEP, runaway_sensitivity
 
 
+@pytest.fixture
+def drawn(monkeypatch):
+    """The Figure objects the plotting module draws on (output.plots.new_figure, captured)."""
+    from tubewright.optimizer.output import plots
+
+    figures = []
+    real = plots.new_figure
+
+    def keep(*args, **kwargs):
+        figures.append(real(*args, **kwargs))
+        return figures[-1]
+
+    monkeypatch.setattr(plots, "new_figure", keep)
+    return figures
+
+
 def _at_coolant(case, tc, rtol=1e-8):
     return replace(case, coolant=replace(case.coolant, temperature=tc), numerics=replace(case.numerics, rtol=rtol))
 
@@ -278,7 +294,7 @@ def test_approach_to_equilibrium_is_q_over_k():
         assert (abs(beta - 1) < 1e-6) == near_one
 
 
-def test_a_stopped_run_says_so_in_its_plot_and_gives_no_radial_number(tmp_path):
+def test_a_stopped_run_says_so_in_its_plot_and_gives_no_radial_number(tmp_path, drawn):
     from tubewright.optimizer.output import plots
 
     case = load_case(DEMO / "oxidation.toml", {"coolant.pressure": "140 bar"})
@@ -286,21 +302,11 @@ def test_a_stopped_run_says_so_in_its_plot_and_gives_no_radial_number(tmp_path):
     assert r.status == "stopped"
     radial = next(f for f in r.findings if f.code == "radial_gradient")
     assert radial.value is None and radial.message.startswith("not estimated: the simulation stopped")
-    seen = {}
-    real = plots.new_figure
-
-    def keep(*args, **kwargs):
-        seen["fig"] = real(*args, **kwargs)
-        return seen["fig"]
-
-    plots.new_figure = keep
-    try:
-        plots.plot_profiles(case, r, tmp_path / "p.png")
-    finally:
-        plots.new_figure = real
-    title = seen["fig"]._suptitle.get_text()
+    plots.plot_profiles(case, r, tmp_path / "p.png")
+    (fig,) = drawn
+    title = fig._suptitle.get_text()
     assert "SIMULATION STOPPED" in title and "ceiling" in title
-    texts = [t.get_text() for ax in seen["fig"].axes for t in ax.texts]
+    texts = [t.get_text() for ax in fig.axes for t in ax.texts]
     assert any(t.startswith("stopped at z = ") for t in texts)
 
 
@@ -455,27 +461,16 @@ def test_screening_refuses_a_coolant_parameter_the_mode_does_not_read(tmp_path, 
         assert code == 2 and 'does not apply to coolant mode "boiling_water"' in captured.err
 
 
-def test_the_front_is_drawn_from_its_converged_points(tmp_path):
+def test_the_front_is_drawn_from_its_converged_points(tmp_path, drawn):
     from tubewright.optimizer.output import plots
 
     case = load_case(DEMO / "oxidation-design.toml")
     front = {"points": [{"selectivity": 0.91, "annual_cost_per_year": 8.0e5},
                         {"selectivity": 0.90, "annual_cost_per_year": 7.9e5}],
              "not_converged": [{"epsilon": 0.93, "status": "maximum iterations"}]}
-    seen = {}
-    real = plots.new_figure
-
-    def keep(*args, **kwargs):
-        seen["fig"] = real(*args, **kwargs)
-        return seen["fig"]
-
-    plots.new_figure = keep
-    try:
-        path = plots.plot_front(case, front, tmp_path / "pareto.png")
-    finally:
-        plots.new_figure = real
+    path = plots.plot_front(case, front, tmp_path / "pareto.png")
     assert path.stat().st_size > 5_000
-    (ax,) = seen["fig"].axes
+    (ax,) = drawn[0].axes
     (line,) = ax.get_lines()
     assert list(line.get_xdata()) == [0.90, 0.91]  # sorted, and only the converged points
     assert "1 point(s) did not converge" in ax.get_title()

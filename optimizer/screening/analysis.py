@@ -95,16 +95,23 @@ def random_rows(problem, method: str, size: int):
     return np.sort(np.concatenate([np.arange(0, size, block), np.arange(block - 1, size, block)]))
 
 
-def probability(problem, method: str, y) -> dict | None:
-    """The probability that a 0/1 output is 1, estimated only from samples of the input distribution
-    (``random_rows``), with the exact 95 % interval; None with Morris."""
+def random_values(problem, method: str, y):
+    """The finite values of an output on the rows that sample the input distribution (``random_rows``), or
+    None with Morris or when none is finite."""
     y = np.asarray(y, dtype=float)
     rows = random_rows(problem, method, y.size)
     if rows is None:
         return None
     values = y[rows]
     values = values[np.isfinite(values)]
-    if not values.size:
+    return values if values.size else None
+
+
+def probability(problem, method: str, y) -> dict | None:
+    """The probability that a 0/1 output is 1, estimated only from samples of the input distribution
+    (``random_values``), with the exact 95 % interval; None with Morris."""
+    values = random_values(problem, method, y)
+    if values is None:
         return None
     k, n = int(values.sum()), int(values.size)
     low, high = clopper_pearson(k, n)
@@ -113,15 +120,10 @@ def probability(problem, method: str, y) -> dict | None:
 
 def spread(problem, method: str, y) -> dict | None:
     """The 5th, 50th and 95th percentiles of an output over the samples of the input distribution
-    (``random_rows``; linear interpolation between order statistics, numpy's default) and the number of
+    (``random_values``; linear interpolation between order statistics, numpy's default) and the number of
     samples behind them; None with Morris, whose trajectories are no sample of the distribution."""
-    y = np.asarray(y, dtype=float)
-    rows = random_rows(problem, method, y.size)
-    if rows is None:
-        return None
-    values = y[rows]
-    values = values[np.isfinite(values)]
-    if not values.size:
+    values = random_values(problem, method, y)
+    if values is None:
         return None
     p5, p50, p95 = np.percentile(values, [5.0, 50.0, 95.0])
     return {"p5": float(p5), "p50": float(p50), "p95": float(p95), "samples": int(values.size)}

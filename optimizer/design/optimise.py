@@ -5,8 +5,10 @@ from __future__ import annotations
 
 import math
 import time
+from functools import partial
 
 import pyomo.environ as pyo
+from tubewright.models.checks import run_checks
 from tubewright.models.errors import ComputationFailed
 from tubewright.models.limits import LIMITS
 from tubewright.models.outcomes import Reason, Status
@@ -92,6 +94,9 @@ def optimise(case, nfe=None, ncp=None, progress=None) -> OptimizationResult:
     limits = problem.limit_rows(outcome)
     if not outcome.success:  # the best point found: its simulation shows where it stands, and its findings
         sim = simulate(design_case(case, values))
+    elif sim is not None and sim.summary:  # every check of the final design, as simulate reports it
+        final = design_case(case, values)
+        sim.findings = run_checks(final, sim, partial(simulate, checks=False))
     if outcome.success:
         status, code = Status.OPTIMAL, Reason.CONVERGED
     elif outcome.status in (2, -2):

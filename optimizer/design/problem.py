@@ -309,7 +309,7 @@ class DesignProblem:
         points: the largest deviation of T, P (relative) and of each flow (relative to the feed of the key
         reactant)."""
         case = design_case(self.case, values)
-        sim = simulate(case)
+        sim = simulate(case, checks=False)  # the checks are run once, on the final design (optimise)
         m = self.model
         if not sim.columns:
             return {"max_relative_deviation": math.inf, "status": sim.status, "reason": sim.reason}, sim

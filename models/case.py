@@ -75,7 +75,7 @@ class Numerics:
     finite_elements: int = 40  # collocation model
     collocation_points: int = 3
     verify_tolerance: float = 0.01  # largest relative deviation of the optimum from the integrator
-    mumps_pivot_order: int | None = None  # MUMPS ordering; None: by mesh size (DesignProblem.solve_nlp)
+    mumps_pivot_order: int | None = None  # MUMPS ordering; None: its automatic choice (DesignProblem.mumps_ordering)
     mumps_mem_percent: int = 1000  # MUMPS work-space increase (%) over its estimate; IPOPT's default
 
 

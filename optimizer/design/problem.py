@@ -130,7 +130,7 @@ class DesignProblem:
             figures.update(production_rate_mol_s=N * formed, product_yield=yld, product_selectivity=selectivity,
                            key_lost_mol_s=N * key_lost(case, f_in, f_out))
         coolant = m.design["coolant_flow"] if "coolant_flow" in m.design else 0.0
-        m.shells = pyo.Param(mutable=True, initialize=1)  # set by optimise when the area passes one shell's range
+        m.shells = pyo.Param(mutable=True, initialize=1)  # set by solve_nlp when the area passes one shell
         costs = cost_figures(pyomo_backend(), self.spec.costs, case, figures, coolant, m.shells)
         figures["annual_cost_per_year"] = costs["total"]
         self.cost_expressions = costs

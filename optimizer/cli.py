@@ -334,6 +334,13 @@ def cmd_screen(args) -> int:
     answer.update(case=case.source, title=case.title, caution=CAUTION)
     if args.out:
         answer["files"] = write_files(res, Path(args.out))
+        if not res.interrupted and not args.reoptimise:
+            from tubewright.optimizer.screening.envelope import plot_envelope, temperature_envelope
+            from tubewright.optimizer.screening.uncertain import read_uncertain
+
+            envelope = temperature_envelope(case, read_uncertain(case), res)
+            if envelope is not None:
+                answer["files"]["envelope_png"] = str(plot_envelope(case, envelope, Path(args.out) / "envelope.png"))
     if res.interrupted:  # the samples evaluated so far are kept (under --out), nothing is analysed
         done = int((res.outputs["status"] != "interrupted").sum())
         kept = f"kept in {answer['files']['outputs_csv']}" if args.out else "give --out DIR to keep them"

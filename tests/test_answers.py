@@ -474,3 +474,23 @@ def test_the_front_is_drawn_from_its_converged_points(tmp_path, drawn):
     (line,) = ax.get_lines()
     assert list(line.get_xdata()) == [0.90, 0.91]  # sorted, and only the converged points
     assert "1 point(s) did not converge" in ax.get_title()
+
+
+def test_temperature_envelope_of_an_isothermal_tube_is_the_feed_spread():
+    # Analytic: an isothermal tube holds T at the feed value, so with the feed temperature ~ U(340 K, 360 K)
+    # the profile's P5/P50/P95 are 341, 350 and 359 K at every position.
+    from builders import liquid_case, make
+    from tubewright.optimizer.screening.envelope import temperature_envelope
+    from tubewright.optimizer.screening.screen import screen
+    from tubewright.optimizer.screening.uncertain import read_uncertain
+
+    data = liquid_case(**{"uncertain": {"T0": {"parameter": "feed.temperature", "distribution": "uniform",
+                                               "min": "340 K", "max": "360 K"}},
+                          "numerics.rtol": 1e-7})
+    case = make(data)
+    res = screen(case, "sobol", 128, seed=0)
+    env = temperature_envelope(case, read_uncertain(case), res)
+    assert env["samples"] == 200
+    for key, value in (("p5", 341.0), ("p50", 350.0), ("p95", 359.0)):
+        assert np.allclose(env[key], value, atol=0.5), key
+    assert temperature_envelope(case, read_uncertain(case), screen(case, "morris", 4, seed=0)) is None

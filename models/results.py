@@ -40,13 +40,13 @@ class SimulationResult:
         return pd.DataFrame(self.columns)
 
 
-def hot_spot_position(sol, z, i_t: int) -> float:
+def hot_spot_position(sol, z, T, i_t: int) -> float:
     """The position of the largest temperature of the dense solution, refined between the neighbours of the
-    largest grid value (the grid maximum alone errs by up to T'' dz^2 / 8, which would blur small
-    differences of the hot spot such as those of the runaway sensitivity)."""
+    largest value of ``T`` (row ``i_t`` of the state) on the grid ``z``: the grid maximum alone errs by up to
+    T'' dz^2 / 8, which would blur small differences of the hot spot such as those of the runaway
+    sensitivity."""
     from scipy.optimize import minimize_scalar
 
-    T = sol.sol(z)[i_t]
     i = int(np.argmax(T))
     if i == 0 or i == z.size - 1:
         return float(z[i])
@@ -65,8 +65,12 @@ def build_result(case, sol, status: Status, code: Reason, reason: str, t0: float
     z_end = float(sol.t[-1])
     if sol.sol is not None:
         z = np.union1d(np.linspace(0.0, z_end, 2001), sol.t)
-        z = np.union1d(z, [hot_spot_position(sol, z, layout.index("T"))])
         y = sol.sol(z)
+        i_t = layout.index("T")
+        z_hot = hot_spot_position(sol, z, y[i_t], i_t)
+        if z_hot not in z:  # one more point, at the refined hot spot
+            k = int(np.searchsorted(z, z_hot))
+            z, y = np.insert(z, k, z_hot), np.insert(y, k, sol.sol(z_hot), axis=1)
         y[:, -1] = sol.y[:, -1]
     else:
         z, y = sol.t, sol.y

@@ -232,7 +232,8 @@ def _optimisation_answer(case, res, files) -> dict:
 
 
 def cmd_optimize(args) -> int:
-    case = load_case(args.case, _parse_sets(args.set))
+    overrides = _parse_sets(args.set)
+    case = load_case(args.case, overrides)
     progress = Phases(enabled=not args.json)
 
     def show_optimum(res):  # the main optimum as soon as it is known; alternatives follow
@@ -264,7 +265,7 @@ def cmd_optimize(args) -> int:
             from tubewright.optimizer.output.casewriter import write_optimum_case
 
             files["case_toml"] = str(write_optimum_case(out / "optimum.toml", res.case, res.design,
-                                                        _parse_sets(args.set), f"Optimum of: {case.title}"))
+                                                        overrides, f"Optimum of: {case.title}"))
         if "pareto" in extras:
             from tubewright.optimizer.output.plots import plot_front
 

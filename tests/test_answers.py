@@ -494,3 +494,37 @@ def test_temperature_envelope_of_an_isothermal_tube_is_the_feed_spread():
     for key, value in (("p5", 341.0), ("p50", 350.0), ("p95", 359.0)):
         assert np.allclose(env[key], value, atol=0.5), key
     assert temperature_envelope(case, read_uncertain(case), screen(case, "morris", 4, seed=0)) is None
+
+
+_DOOMED = {}  # the first sample value of the batch whose worker dies (set by the test below)
+
+
+def _dies_on_the_doomed_batch(args):
+    """A batch task (module level, so that the pool can send it) whose worker exits on one batch."""
+    import os
+
+    from tubewright.models.batch import simulate_batch
+
+    case, chunk, size, trap = args
+    if float(next(iter(chunk.values()))[0]) == _DOOMED["value"]:
+        os._exit(1)
+    return simulate_batch(case, chunk, size, trap=trap)
+
+
+def test_a_lost_batch_worker_fails_its_samples_only(monkeypatch):
+    # A worker that dies (here: exits in the middle of its first batch) must not hang the screening; the
+    # batches that did not finish are recorded as failed with the cause (BrokenProcessPool).
+    from tubewright.optimizer.screening import evaluation
+    from tubewright.optimizer.screening.sampling import sample
+    from tubewright.optimizer.screening.uncertain import read_uncertain, salib_problem
+
+    case = load_case(DEMO / "oxidation-screen.toml")
+    items = read_uncertain(case)
+    ux = sample(salib_problem(items), "sobol", 8, seed=0)
+    _DOOMED["value"] = float(next(iter(evaluation.to_parameters(items, ux[:1]).values()))[0])
+    monkeypatch.setattr(evaluation, "_batch_task", _dies_on_the_doomed_batch)
+    ev = evaluation.evaluate(case, items, ux, batch_size=10, workers=2)
+    failed = ev.status == "failed"
+    assert failed[0] and not ev.interrupted
+    assert all(r.startswith("batch process failed") and "BrokenProcessPool" in r
+               for r in np.asarray(ev.reason, dtype=object)[failed])

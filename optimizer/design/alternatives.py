@@ -17,6 +17,14 @@ from tubewright.optimizer.design.tubes import standard_tubes
 from tubewright.optimizer.processes import process_context
 
 
+def _processes(workers: int | None) -> int:
+    """Processes for independent solves: as asked, by default up to two (the cores of the reference machine);
+    one inside a study worker, which may not start processes of its own (a daemon process)."""
+    if multiprocessing.current_process().daemon:
+        return 1
+    return min(2, os.cpu_count() or 1) if workers is None else max(1, workers)
+
+
 def pareto_front(case, points: int, progress=None) -> dict:
     """Minimum annual cost for selectivities from that of the cheapest design up to the best achievable
     (epsilon constraint product_selectivity >= eps on the compiled cost problem)."""
@@ -78,9 +86,7 @@ def multistart(case, starts: int, seed: int = 0, progress=None, workers: int | N
             skipped.append({"start": start, "reason": sim.reason})
             continue
         chosen.append(start)
-    workers = min(2, os.cpu_count() or 1) if workers is None else max(1, workers)
-    if multiprocessing.current_process().daemon:  # a study worker may not start processes of its own
-        workers = 1
+    workers = _processes(workers)
     numbered = list(enumerate(chosen, 1))
     if workers > 1 and len(chosen) > 1:
         if progress is not None:
@@ -129,9 +135,7 @@ def rank_standard_tubes(case, min_inner: float = 0.01, max_inner: float = 0.06, 
     if "inner_diameter" in read_design(case).free:
         raise ValueError("rank standard tubes with a fixed inner diameter")
     tubes = standard_tubes(min_inner, max_inner)
-    workers = min(2, os.cpu_count() or 1) if workers is None else max(1, workers)
-    if multiprocessing.current_process().daemon:  # a study worker may not start processes of its own
-        workers = 1
+    workers = _processes(workers)
     if workers > 1 and len(tubes) > 1:
         shares = [tubes[k::workers] for k in range(workers)]
         if progress is not None:

@@ -125,33 +125,39 @@ def evaluate(case, items, unit_x, batch_size: int = 500, batched: bool = True, p
 
 
 def _on_pool(tasks, slices, workers, store, status, codes, reason, evaluated, poll: float = 0.1):
-    """The batches on a pool of ``workers`` processes (the platform's start method). The workers ignore
-    Ctrl-C; on Ctrl-C the coordinator terminates them at once (within a poll interval) and re-raises, so
-    that the caller keeps the batches already stored. A batch whose process failed is recorded as failed
-    samples with the reason, and the others go on."""
-    pool = process_context().Pool(workers, initializer=_worker_start)
+    """The batches on a pool of ``workers`` processes (the platform's start method). A batch that could not
+    be sent, or whose worker was lost (killed, out of memory: BrokenProcessPool, which also fails the
+    batches not yet finished), is recorded as failed samples with the cause; the batches already stored are
+    kept and nothing hangs. The workers ignore Ctrl-C; on Ctrl-C the coordinator kills
+    the workers this pool started (the children it did not have before) and re-raises, so that the caller
+    keeps the batches already stored."""
+    import multiprocessing
+    import pickle
+    from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+    from concurrent.futures.process import BrokenProcessPool
+
+    before = {p.pid for p in multiprocessing.active_children()}
+    pool = ProcessPoolExecutor(max_workers=workers, mp_context=process_context(), initializer=_worker_start)
     try:
-        pending = [(s, pool.apply_async(_batch_task, (t,))) for s, t in zip(slices, tasks)]
+        pending = {pool.submit(_batch_task, t): s for s, t in zip(slices, tasks)}
         while pending:
-            still = []
-            for s, job in pending:
-                if not job.ready():
-                    still.append((s, job))
-                    continue
+            done, _ = wait(pending, timeout=poll, return_when=FIRST_COMPLETED)  # short waits: Ctrl-C is seen
+            for fut in done:
+                s = pending.pop(fut)
                 try:
-                    store(s, job.get())
-                except Exception as err:  # a lost worker must not lose the other batches
+                    store(s, fut.result())
+                except (BrokenProcessPool, pickle.PicklingError) as err:  # lost worker or unsendable batch
                     status[s] = Status.FAILED
                     codes[s] = Reason.BATCH_FAILED
                     reason[s] = [f"batch process failed: {err!r}"] * (s.stop - s.start)
                     evaluated[s] = True
-            pending = still
-            if pending:
-                pending[0][1].wait(poll)
-        pool.close()
+    except KeyboardInterrupt:
+        for child in multiprocessing.active_children():
+            if child.pid not in before:
+                child.kill()
+        raise
     finally:
-        pool.terminate()
-        pool.join()
+        pool.shutdown(wait=True, cancel_futures=True)
 
 
 def passing(case, outputs: dict, codes) -> dict:

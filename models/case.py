@@ -75,7 +75,10 @@ class Numerics:
     finite_elements: int = 40  # collocation model
     collocation_points: int = 3
     verify_tolerance: float = 0.01  # largest relative deviation of the optimum from the integrator
-    mumps_pivot_order: int | None = None  # MUMPS ordering; None: its automatic choice (DesignProblem.mumps_ordering)
+    # IPOPT's linear solver MUMPS (DesignProblem.linear_solver_options; measured in bench_linear_solver.py)
+    mumps_pivot_order: int = 7  # fill-reducing ordering: MUMPS's automatic choice
+    mumps_scaling: int = 77  # row/column scaling: MUMPS's automatic choice
+    mumps_permuting_scaling: int = 0  # no permutation with scaling (the automatic one fails on large meshes)
     mumps_mem_percent: int = 1000  # MUMPS work-space increase (%) over its estimate; IPOPT's default
 
 

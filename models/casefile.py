@@ -224,7 +224,7 @@ def build_case(data: dict, source: str) -> C.Case:
     chem.finish()
 
     num_t = top.sub("numerics", {"rtol", "atol", "method", "temperature_ceiling", "min_pressure",
-                                 "finite_elements", "collocation_points", "verify_tolerance", "mumps_pivot_order",
+                                 "finite_elements", "collocation_points", "verify_tolerance", *MUMPS_CHOICES,
                                  "mumps_mem_percent"}, required=False)
     numerics = C.Numerics()
     if num_t is not None:
@@ -242,7 +242,7 @@ def build_case(data: dict, source: str) -> C.Case:
                                             high=8, integer=True),
             verify_tolerance=num_t.number("verify_tolerance", default=numerics.verify_tolerance, low=1e-12,
                                           high=1.0),
-            mumps_pivot_order=_ordering(num_t, numerics.mumps_pivot_order),
+            **{key: _mumps_choice(num_t, key, getattr(numerics, key)) for key in MUMPS_CHOICES},
             mumps_mem_percent=num_t.number("mumps_mem_percent", default=numerics.mumps_mem_percent, low=0,
                                            high=100_000, integer=True),
         )
@@ -530,16 +530,21 @@ def _check_key_and_product(reactions, feed, names, key, product, source):
             raise CaseError(source, "chemistry.product", f'no reaction forms "{product}"')
 
 
-MUMPS_ORDERINGS = {0: "AMD", 2: "AMF", 4: "PORD", 6: "QAMD", 7: "automatic"}  # no METIS or SCOTCH in this MUMPS
+MUMPS_CHOICES = {  # IPOPT option: {value: meaning}, as far as this MUMPS build (no METIS or SCOTCH) offers them
+    "mumps_pivot_order": {0: "AMD", 2: "AMF", 4: "PORD", 6: "QAMD", 7: "automatic"},
+    "mumps_scaling": {0: "none", 8: "iterative row and column scaling", 77: "automatic"},
+    "mumps_permuting_scaling": {0: "none", 7: "automatic"},
+}
 
 
-def _ordering(t: Table, default):
-    if not t.has("mumps_pivot_order"):
+def _mumps_choice(t: Table, key: str, default: int) -> int:
+    if not t.has(key):
         return default
-    value = t.number("mumps_pivot_order", low=0, high=7, integer=True)
-    if value not in MUMPS_ORDERINGS:
-        allowed = ", ".join(f"{k} ({v})" for k, v in MUMPS_ORDERINGS.items())
-        raise CaseError(t.source, t.key("mumps_pivot_order"), f"{value} is not available; allowed: {allowed}")
+    choices = MUMPS_CHOICES[key]
+    value = t.number(key, low=min(choices), high=max(choices), integer=True)
+    if value not in choices:
+        allowed = ", ".join(f"{k} ({v})" for k, v in choices.items())
+        raise CaseError(t.source, t.key(key), f"{value} is not available; allowed: {allowed}")
     return int(value)
 
 

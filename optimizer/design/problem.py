@@ -214,14 +214,17 @@ class DesignProblem:
                 g_s[row[id(c)]] = 1.0 / bound
         return self.obj_scale, x_s, g_s
 
-    def mumps_ordering(self) -> int:
-        """MUMPS's fill-reducing ordering: [numerics] mumps_pivot_order if given, else MUMPS's automatic choice
-        (7, IPOPT's default). Measured on the demo (tests/benchmarks/bench_linear_solver.py) no ordering wins
-        at every mesh: AMF was 8x faster than the automatic choice at 120 elements but slower and less
-        accurate at 90 (124 iterations to an acceptable point against 49 to the optimum), so the default
-        stays IPOPT's and the choice is the user's."""
-        given = self.case.numerics.mumps_pivot_order
-        return 7 if given is None else given
+    def linear_solver_options(self) -> dict:
+        """IPOPT's options for MUMPS from [numerics] (defaults in models.case.Numerics, chosen with
+        tests/benchmarks/bench_linear_solver.py). MUMPS's automatic permutation with scaling of the KKT matrix
+        (IPOPT's default) fails on large collocation meshes: the demo at 120 elements took 54 s and the
+        A -> B -> C profile problem at 400 elements stopped after one iteration ("matrix is singular" at every
+        inertia correction); without it both solve at every mesh, in time roughly linear in the elements."""
+        num = self.case.numerics
+        # a larger pivot tolerance than IPOPT's default (1e-6) avoids failed step computations on the nearly
+        # singular KKT systems of counter-current cases (measured on the coil demo)
+        return {"mumps_pivtol": 1e-4, "mumps_pivot_order": num.mumps_pivot_order, "mumps_scaling": num.mumps_scaling,
+                "mumps_permuting_scaling": num.mumps_permuting_scaling, "mumps_mem_percent": num.mumps_mem_percent}
 
     def solve_nlp(self, warm_start=False, options=None, passes: int = 3):
         """Solve (warm from the current point if asked). With the cost goal, a layout whose tube area passes
@@ -229,10 +232,7 @@ class DesignProblem:
         its range (costs.shells_for): the number is fixed and the problem re-solved warm while it changes
         (at most ``passes`` times), so that every caller (optimum, rounding, standard tubes, starts, Pareto
         points) reports the same cost definition. The notes of the last solve are in ``shell_notes``."""
-        # a larger MUMPS pivot tolerance than IPOPT's default (1e-6) avoids failed step computations on the
-        # nearly singular KKT systems of counter-current cases (measured on the coil demo)
-        opts = {"max_iter": 500, "tol": 1e-7, "acceptable_tol": 1e-5, "mumps_pivtol": 1e-4,
-                "mumps_pivot_order": self.mumps_ordering(), "mumps_mem_percent": self.case.numerics.mumps_mem_percent}
+        opts = {"max_iter": 500, "tol": 1e-7, "acceptable_tol": 1e-5, **self.linear_solver_options()}
         opts.update(options or {})
         outcome = self.nlp.solve(options=opts, warm_start=warm_start, scaling=self.scaling())
         self.shell_notes = []

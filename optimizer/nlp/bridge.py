@@ -16,6 +16,7 @@ so a changed parameter is re-solved without recompiling. Changing which variable
 
 from __future__ import annotations
 
+import os
 import time
 from dataclasses import dataclass, field
 
@@ -388,6 +389,8 @@ class CompiledNLP:
         problem = cyipopt.Problem(n=self.n, m=self.m, problem_obj=_Problem(), lb=self.x_lb, ub=self.x_ub,
                                   cl=self.g_lb, cu=self.g_ub)
         opts = {"print_level": 0, "sb": "yes", "tol": 1e-8, "max_iter": 3000}
+        if os.environ.get("TUBEWRIGHT_IPOPT_LOG"):  # for developers: IPOPT's own iteration log on stdout
+            opts.update(print_level=5, sb="no")
         if scaling is not None:
             obj_s, x_s, g_s = scaling
             problem.set_problem_scaling(obj_scaling=obj_s, x_scaling=np.asarray(x_s, float),

@@ -31,6 +31,9 @@ test: lint
 bench: $(STAMP)
 	$(BIN)/python tests/benchmarks/bench_simulate.py
 	$(BIN)/python tests/benchmarks/bench_optimize.py
+	$(BIN)/python -m pip install -q -e ".[bench]"
+	$(BIN)/python tests/benchmarks/bench_compact.py
+	$(BIN)/python tests/benchmarks/bench_linear_solver.py --quick
 	$(BIN)/python tests/benchmarks/bench_screen.py
 	$(BIN)/python tests/benchmarks/bench_study.py
 	$(BIN)/python tests/benchmarks/fuzz_cases.py 800

@@ -90,3 +90,113 @@ def test_derivatives_with_functions_and_piecewise_terms():
     nlp = CompiledNLP(m)
     assert nlp.times["forms"] == 1  # six constraints, one form
     _fd_check(nlp, np.array([1.2, 1.6, 0.9, 2.2, 1.4, 3.0]))
+
+
+def chained_model():
+    """x, y bounded; d and e free, defined by linear rows (e through d: two substitution levels); the row
+    ``fix`` (linear, with an input) and a nonlinear row remain for IPOPT."""
+    m = pyo.ConcreteModel()
+    m.x = pyo.Var(bounds=(-5, 5), initialize=0.5)
+    m.y = pyo.Var(bounds=(-5, 5), initialize=0.5)
+    m.d = pyo.Var(initialize=0.0)
+    m.e = pyo.Var(initialize=0.0)
+    m.a = pyo.Param(mutable=True, initialize=2.0)
+    m.p = pyo.Param(mutable=True, initialize=4.0)
+    m.define_d = pyo.Constraint(expr=m.d - m.a * m.x - 3 * m.y == 0.5)
+    m.define_e = pyo.Constraint(expr=2 * m.e - m.d - m.x == 0)
+    m.fix = pyo.Constraint(expr=m.d == m.p)
+    m.curve = pyo.Constraint(expr=m.x * m.y >= 0.1)
+    m.obj = pyo.Objective(expr=m.x**2 + m.y**2 + (m.e - 1) ** 2)
+    return m
+
+
+def test_compact_problem_eliminates_the_defined_variables():
+    nlp = CompiledNLP(chained_model())
+    red = nlp.compact
+    assert sorted(nlp.variables[i].name for i in red.eliminated) == ["d", "e"]
+    assert sorted(nlp.constraints[i].name for i in red.rows) == ["define_d", "define_e"]
+    assert red.levels == 2 and (red.n, red.m) == (2, 2)
+
+
+def test_compact_and_full_problems_agree_on_point_and_every_multiplier():
+    results = []
+    for compact in (True, False):
+        m = chained_model()
+        nlp = CompiledNLP(m, compact=compact)
+        out = nlp.solve(options={"tol": 1e-10})
+        assert out.success
+        results.append((out.objective, [pyo.value(v) for v in (m.x, m.y, m.d, m.e)],
+                        [nlp.multiplier(c) for c in (m.define_d, m.define_e, m.fix, m.curve)]))
+    (f1, x1, l1), (f2, x2, l2) = results
+    assert f1 == pytest.approx(f2, rel=1e-9)
+    assert x1 == pytest.approx(x2, abs=1e-7)
+    assert l1 == pytest.approx(l2, rel=1e-6, abs=1e-9)
+
+
+def test_compact_multiplier_is_the_analytic_sensitivity():
+    # min x^2 + y^2 + (e - 1)^2 with d = a x + 3 y + 0.5 = p and e = (d + x)/2: a smooth problem in (x, y);
+    # the multiplier of ``fix`` is -df*/dp (IPOPT: L = f + lambda g, g = d - p), checked by a central difference
+    m = chained_model()
+    nlp = CompiledNLP(m)
+    nlp.solve(options={"tol": 1e-12})
+    lam = nlp.multiplier(m.fix)
+    values = []
+    for p in (4.0 - 1e-4, 4.0 + 1e-4):
+        m.p = p
+        values.append(nlp.solve(options={"tol": 1e-12}).objective)
+    assert -lam == pytest.approx((values[1] - values[0]) / 2e-4, rel=1e-5)
+
+
+def test_compact_problem_reads_changed_coefficients():
+    # a (the coefficient of x in define_d) is an input: changing it must change the elimination, not the form
+    m = chained_model()
+    nlp = CompiledNLP(m)
+    m.a = -1.0
+    out = nlp.solve(options={"tol": 1e-10})
+    fresh = chained_model()
+    fresh.a = -1.0
+    ref = CompiledNLP(fresh, compact=False).solve(options={"tol": 1e-10})
+    assert out.objective == pytest.approx(ref.objective, rel=1e-9)
+    assert pyo.value(m.d) == pytest.approx(-1.0 * pyo.value(m.x) + 3 * pyo.value(m.y) + 0.5, abs=1e-9)
+
+
+def test_bounds_on_an_eliminated_variable_fall_back_to_the_full_problem():
+    m = chained_model()
+    nlp = CompiledNLP(m)
+    nlp.solve(options={"tol": 1e-10})
+    bound = pyo.value(m.e) + 0.05  # binding
+    m.e.setlb(bound)
+    out = nlp.solve(options={"tol": 1e-10})
+    assert nlp._reduction(nlp.current_point()) is None
+    full = chained_model()
+    full.e.setlb(bound)
+    ref = CompiledNLP(full, compact=False).solve(options={"tol": 1e-10})
+    assert out.success and pyo.value(m.e) == pytest.approx(bound, abs=1e-6)  # IPOPT relaxes bounds by 1e-8 relative
+    assert out.objective == pytest.approx(ref.objective, rel=1e-9)
+
+
+def test_compact_derivatives_against_finite_differences():
+    nlp = CompiledNLP(chained_model())
+    nlp.refresh()
+    red = nlp._reduction(nlp.current_point())
+    y = np.array([0.7, -1.3])
+    h = 1e-6
+    jac = np.zeros((red.m, red.n))
+    jac[red.jac_rows, red.jac_cols] = red.jacobian(y)
+    lam, sigma = np.array([0.8, 1.3]), 0.6
+    hess = np.zeros((red.n, red.n))
+    np.add.at(hess, (red.hess_rows, red.hess_cols), red.hessian(y, lam, sigma))
+    hess = hess + np.tril(hess, -1).T
+
+    def lag_grad(z):
+        j = np.zeros((red.m, red.n))
+        j[red.jac_rows, red.jac_cols] = red.jacobian(z)
+        return sigma * red.gradient(z) + lam @ j
+
+    for k in range(red.n):
+        e = np.zeros(red.n)
+        e[k] = h
+        assert red.gradient(y)[k] == pytest.approx((red.objective(y + e) - red.objective(y - e)) / (2 * h), rel=1e-6)
+        assert jac[:, k] == pytest.approx((red.constraints(y + e) - red.constraints(y - e)) / (2 * h), rel=1e-6,
+                                          abs=1e-8)
+        assert hess[:, k] == pytest.approx((lag_grad(y + e) - lag_grad(y - e)) / (2 * h), rel=1e-5, abs=1e-6)

@@ -26,6 +26,7 @@ from pyomo.core.base.constraint import Constraint
 from pyomo.core.base.objective import Objective, maximize
 from pyomo.core.expr.calculus.derivatives import differentiate
 from pyomo.environ import value
+from tubewright.optimizer.nlp.presolve import LinearElimination
 from tubewright.optimizer.nlp.pyomo_rules import install_rules
 
 INFINITY = 1.0e19
@@ -132,6 +133,7 @@ class _Form:
     derivatives: object  # returns the gradient entries, then the Hessian entries (shared subexpressions once)
     n_grad: int
     pairs: list  # (a, b) local pairs of the Hessian lower triangle, a >= b
+    constant_gradient: list  # per local variable: its derivative when a number, else None
 
 
 def _compile_function(name: str, body: str, nx: int, npar: int):
@@ -163,7 +165,8 @@ def _build_form(rep_expr, printer: _Printer, value_source: str, members, var_row
     return _Form(members, np.asarray(var_rows, dtype=np.int64).reshape(len(members), nx),
                  np.asarray(input_rows, dtype=np.int64).reshape(len(members), npar),
                  _compile_function("value", value_source, nx, npar),
-                 _compile_function("derivatives", deriv_source, nx, npar), len(grad_list), pairs)
+                 _compile_function("derivatives", deriv_source, nx, npar), len(grad_list), pairs,
+                 [float(g) if g.__class__ in EXPR.native_numeric_types else None for g in grads])
 
 
 def _rows(values, members: int) -> np.ndarray:
@@ -200,7 +203,9 @@ class SolveOutcome:
 class CompiledNLP:
     """A Pyomo model compiled once for IPOPT. ``solve()`` reads inputs and bounds anew each time."""
 
-    def __init__(self, model):
+    def __init__(self, model, compact: bool = True):
+        """``compact``: eliminate the variables that linear equalities define explicitly before IPOPT sees
+        the problem (nlp.presolve); the solution and every multiplier are reported for the whole model."""
         t0 = time.perf_counter()
         install_rules()
         self.model = model
@@ -248,8 +253,14 @@ class CompiledNLP:
         self.sign = -1.0 if self.objective.sense == maximize else 1.0
         self._structure()
         self.n, self.m = len(self.variables), len(self.constraints)
-        self.times = {"compile_s": time.perf_counter() - t0, "differentiate_s": time.perf_counter() - t_forms,
-                      "forms": len(self.forms)}
+        t_compact = time.perf_counter()
+        self.compact = LinearElimination(self) if compact else None
+        if self.compact is not None and not len(self.compact.rows):
+            self.compact = None
+        self.times = {"compile_s": time.perf_counter() - t0, "differentiate_s": t_compact - t_forms,
+                      "presolve_s": time.perf_counter() - t_compact, "forms": len(self.forms),
+                      "ipopt_variables": self.compact.n if self.compact else self.n,
+                      "ipopt_constraints": self.compact.m if self.compact else self.m}
         self._warm = None
         self._deriv_key, self._deriv_values = None, {}
 
@@ -367,18 +378,29 @@ class CompiledNLP:
                     timer["callbacks_s"] += time.perf_counter() - t
             return wrapper
 
+        x0 = self.current_point()
+        red = self._reduction(x0)
+        if red is None:
+            calls = (self._obj, self._grad, self._cons, self._jac, self._hess)
+            jac_structure, hess_structure = (self.jac_rows, self.jac_cols), (self.hess_rows, self.hess_cols)
+            cols, rows = slice(None), slice(None)
+        else:
+            calls = (red.objective, red.gradient, red.constraints, red.jacobian, red.hessian)
+            jac_structure, hess_structure = (red.jac_rows, red.jac_cols), (red.hess_rows, red.hess_cols)
+            cols, rows = red.kept, red.kept_rows
+
         class _Problem:
-            objective = staticmethod(timed(outer._obj))
-            gradient = staticmethod(timed(outer._grad))
-            constraints = staticmethod(timed(outer._cons))
-            jacobian = staticmethod(timed(outer._jac))
-            hessian = staticmethod(timed(outer._hess))
+            objective = staticmethod(timed(calls[0]))
+            gradient = staticmethod(timed(calls[1]))
+            constraints = staticmethod(timed(calls[2]))
+            jacobian = staticmethod(timed(calls[3]))
+            hessian = staticmethod(timed(calls[4]))
 
             def jacobianstructure(self):
-                return outer.jac_rows, outer.jac_cols
+                return jac_structure
 
             def hessianstructure(self):
-                return outer.hess_rows, outer.hess_cols
+                return hess_structure
 
             def intermediate(self, alg_mod, iter_count, obj_value, inf_pr, *args):
                 iterations[0] = iter_count
@@ -386,45 +408,66 @@ class CompiledNLP:
                     outer.on_iteration(int(iter_count), outer.sign * float(obj_value), float(inf_pr))
                 return True
 
-        problem = cyipopt.Problem(n=self.n, m=self.m, problem_obj=_Problem(), lb=self.x_lb, ub=self.x_ub,
-                                  cl=self.g_lb, cu=self.g_ub)
+        problem = cyipopt.Problem(n=len(self.x_lb[cols]), m=len(self.g_lb[rows]), problem_obj=_Problem(),
+                                  lb=self.x_lb[cols], ub=self.x_ub[cols], cl=self.g_lb[rows], cu=self.g_ub[rows])
         opts = {"print_level": 0, "sb": "yes", "tol": 1e-8, "max_iter": 3000}
         if os.environ.get("TUBEWRIGHT_IPOPT_LOG"):  # for developers: IPOPT's own iteration log on stdout
             opts.update(print_level=5, sb="no")
         if scaling is not None:
             obj_s, x_s, g_s = scaling
-            problem.set_problem_scaling(obj_scaling=obj_s, x_scaling=np.asarray(x_s, float),
-                                        g_scaling=np.asarray(g_s, float))
+            problem.set_problem_scaling(obj_scaling=obj_s, x_scaling=np.asarray(x_s, float)[cols],
+                                        g_scaling=np.asarray(g_s, float)[rows])
             opts["nlp_scaling_method"] = "user-scaling"
         kwargs = {}
         if warm_start and self._warm is not None:
             opts.update({"warm_start_init_point": "yes", "warm_start_bound_push": 1e-9,
                          "warm_start_mult_bound_push": 1e-9, "mu_init": 1e-6})
-            kwargs = {"lagrange": self._warm[0], "zl": self._warm[1], "zu": self._warm[2]}
+            kwargs = {"lagrange": self._warm[0][rows], "zl": self._warm[1][cols], "zu": self._warm[2][cols]}
         opts.update(options or {})
         for key, val in opts.items():
             problem.add_option(key, val)
-        x0 = self.current_point()
         try:
-            x, info = problem.solve(x0, **kwargs)
+            y, info = problem.solve(x0[cols], **kwargs)
         finally:
             problem.close()
+        if red is None:
+            x, mult_g = np.asarray(y), np.asarray(info["mult_g"])
+            zl, zu = np.asarray(info["mult_x_L"]), np.asarray(info["mult_x_U"])
+        else:  # the whole model's point and multipliers (eliminated variables have no bounds)
+            x = red.full(np.asarray(y))
+            mult_g, zl, zu = np.zeros(self.m), np.zeros(self.n), np.zeros(self.n)
+            mult_g[red.kept_rows] = info["mult_g"]
+            zl[red.kept], zu[red.kept] = info["mult_x_L"], info["mult_x_U"]
+            with np.errstate(all="ignore"):
+                mult_g[red.rows] = red.defining_multipliers(x, mult_g[red.kept_rows])
         total = time.perf_counter() - t0
         for v, xv in zip(self.variables, x):
             v.set_value(float(xv), skip_validation=True)
-        g = info["g"]
+        with np.errstate(all="ignore"):
+            g = self._cons(x)
         viol = float(np.max(np.concatenate([[0.0], self.g_lb - g, g - self.g_ub]))) if self.m else 0.0
         status = int(info["status"])
-        self._warm = (info["mult_g"], info["mult_x_L"], info["mult_x_U"])
+        self._warm = (mult_g, zl, zu)
         msg = info["status_msg"]
         return SolveOutcome(
             status=status, status_name=IPOPT_STATUS.get(status, "unknown"),
             message=msg.decode() if isinstance(msg, bytes) else str(msg), success=status in (0, 1),
             iterations=iterations[0], objective=self.sign * float(info["obj_val"]), constraint_violation=viol,
-            x=np.asarray(x), multipliers=np.asarray(info["mult_g"]),
-            bound_multipliers_lower=np.asarray(info["mult_x_L"]), bound_multipliers_upper=np.asarray(info["mult_x_U"]),
+            x=x, multipliers=mult_g, bound_multipliers_lower=zl, bound_multipliers_upper=zu,
             times={"compile_s": self.times["compile_s"], "callbacks_s": timer["callbacks_s"],
                    "ipopt_s": total - timer["callbacks_s"], "solve_s": total})
+
+    def _reduction(self, x0):
+        """The compact problem when it still applies to the current bounds (its defining rows are still
+        equalities, its eliminated variables still free), with its values read at x0; else None."""
+        red = self.compact
+        if red is None:
+            return None
+        if (np.any(self.g_lb[red.rows] != self.g_ub[red.rows]) or np.any(self.x_lb[red.eliminated] > -INFINITY)
+                or np.any(self.x_ub[red.eliminated] < INFINITY)):
+            return None
+        red.refresh(x0, self.g_lb)
+        return red
 
     def multiplier(self, constraint) -> float:
         """IPOPT's multiplier of one constraint after a solve (Lagrangian f + lambda^T g)."""

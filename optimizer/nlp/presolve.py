@@ -1,0 +1,237 @@
+"""The compact NLP: variables that a linear equality defines explicitly are eliminated before IPOPT sees the
+problem.
+
+A collocation model keeps every derivative as its own variable, defined by a linear collocation equation
+(dX(t_j) = sum_k a_jk X(t_k) / h). Such a variable is an affine function of the others, so the NLP IPOPT
+solves can drop it together with its defining equation: x = T y + t, with y the kept variables, and
+
+    objective f(T y + t),  constraints g_K(T y + t) (the rows that were not used),
+    Jacobian J_K T,  Lagrangian Hessian T' H T (the used rows are linear: they add nothing to H).
+
+Chosen at compilation (structure only): an equality row whose Hessian is zero (a linear form) defines one
+of its variables when that variable has no bounds, a constant non-zero coefficient, has not been defined
+already and appears in no row chosen before; among the candidates the one in the fewest rows is taken.
+Rows chosen later may contain variables defined earlier, so the defining system is lower triangular in the
+order of choice (solved by substitution, at most ``MAX_DEPTH`` levels deep).
+
+Values (coefficients, right-hand sides) are read at every refresh, so changed inputs re-solve without
+recompiling. The multipliers of the used rows are recovered from stationarity in the eliminated variables
+(a triangular solve), so every constraint keeps an exact multiplier."""
+
+from __future__ import annotations
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.linalg import spsolve_triangular
+
+MAX_DEPTH = 8
+
+
+class LinearElimination:
+    """The affine map x = T y + t of a CompiledNLP and the reduced derivative structures."""
+
+    def __init__(self, nlp):
+        n, m = nlp.n, nlp.m
+        self.nlp = nlp
+        linear_rows = {}  # row -> (form, member position)
+        for f in nlp.forms:
+            if f.pairs:
+                continue
+            for pos, row in enumerate(f.members):
+                if nlp.constraints[row].equality:
+                    linear_rows[row] = (f, pos)
+        bounded = np.array([v.lb is not None or v.ub is not None for v in nlp.variables], dtype=bool)
+        appearances = np.bincount(nlp.jac_cols, minlength=n)
+        depth = np.zeros(n, dtype=np.int64)  # 0: kept; k: defined at substitution level k
+        in_chosen_rows = np.zeros(n, dtype=bool)
+        rows, picks, picks_local = [], [], []
+        for row in sorted(linear_rows):
+            f, pos = linear_rows[row]
+            cols = f.var_index[pos]
+            best = None
+            for local, col in enumerate(cols):
+                coef = f.constant_gradient[local]
+                if coef is None or coef == 0.0 or bounded[col] or depth[col] or in_chosen_rows[col]:
+                    continue
+                if best is None or appearances[col] < appearances[cols[best]]:
+                    best = local
+            if best is None:
+                continue
+            level = 1 + int(depth[cols].max())
+            if level > MAX_DEPTH:
+                continue
+            depth[cols[best]] = level
+            in_chosen_rows[cols] = True
+            rows.append(row)
+            picks.append(int(cols[best]))
+            picks_local.append(best)
+        self.rows = np.asarray(rows, dtype=np.int64)  # the defining rows, in order of choice
+        self.eliminated = np.asarray(picks, dtype=np.int64)  # the variable each defines
+        self._linear_rows = linear_rows
+        self.levels = int(depth.max()) if len(picks) else 0
+        self.kept = np.flatnonzero(depth == 0)
+        self.kept_rows = np.setdiff1d(np.arange(m), self.rows)
+        self.n, self.m = len(self.kept), len(self.kept_rows)
+        self._column = np.full(n, -1, dtype=np.int64)
+        self._column[self.kept] = np.arange(self.n)
+        self._row_of = np.full(m, -1, dtype=np.int64)
+        self._row_of[self.kept_rows] = np.arange(self.m)
+        # defining rows' variables as (choice, column) pairs: the structure of W in x_E = W x + w0
+        w_i, w_k = [], []
+        for i, row in enumerate(rows):
+            f, pos = linear_rows[row]
+            cols = f.var_index[pos]
+            w_i.append(np.full(len(cols), i))
+            w_k.append(cols)
+        self._w_i = np.concatenate(w_i) if w_i else np.zeros(0, dtype=np.int64)
+        self._w_k = np.concatenate(w_k) if w_k else np.zeros(0, dtype=np.int64)
+        own = self._w_k == self.eliminated[self._w_i] if len(rows) else np.zeros(0, dtype=bool)
+        self._own, self._other = np.flatnonzero(own), np.flatnonzero(~own)
+        # structures from a map with positive weights (no cancellation: every possible entry is present)
+        t_struct = self._map(np.ones(len(self._other)), np.ones(len(self._own)))
+        self.jac_rows, self.jac_cols, self._jac_keys = self._jacobian_structure(t_struct)
+        self.hess_rows, self.hess_cols, self._hess_keys = self._hessian_structure(t_struct)
+        self._coef_key = None
+
+    # --- the map x = T y + t -----------------------------------------------------------------------------
+    def _map(self, other_coef, own_coef) -> sp.csr_matrix:
+        """T (n x n_kept) from the coefficients of the defining rows (other variables, own variable)."""
+        n_full = self.nlp.n
+        kept = sp.csr_matrix((np.ones(self.n), (self.kept, np.arange(self.n))), shape=(n_full, self.n))
+        if not len(self.rows):
+            return kept
+        w = sp.csr_matrix((-other_coef / own_coef[self._w_i[self._other]],
+                           (self._w_i[self._other], self._w_k[self._other])), shape=(len(self.rows), n_full))
+        inject = sp.csr_matrix((np.ones(len(self.rows)), (self.eliminated, np.arange(len(self.rows)))),
+                               shape=(n_full, len(self.rows)))
+        t_map = kept
+        for _ in range(self.levels):  # lower triangular: exact after as many passes as levels
+            t_map = (kept + inject @ (w @ t_map)).tocsr()
+        t_map.sort_indices()
+        return t_map
+
+    def refresh(self, x_any: np.ndarray, g_lb: np.ndarray):
+        """Read the coefficients and right-hand sides of the defining rows (inputs may have changed)."""
+        nlp = self.nlp
+        coef = np.empty(len(self._w_k))
+        rhs = np.empty(len(self.rows))
+        by_form: dict = {}
+        for i, row in enumerate(self.rows):
+            f, pos = self._linear_rows[row]
+            by_form.setdefault(id(f), (f, []))[1].append((i, pos))
+        starts = np.concatenate([[0], np.cumsum(np.bincount(self._w_i, minlength=len(self.rows)))])
+        for f, items in by_form.values():
+            args = nlp._args(f, x_any)
+            grads = f.derivatives(*args)[: f.var_index.shape[1]]
+            values = np.broadcast_to(np.asarray(f.fn(*args)[0], dtype=float), (len(f.members),))
+            idx = np.array([i for i, _ in items])
+            pos = np.array([p for _, p in items])
+            nloc = f.var_index.shape[1]
+            local = np.stack([np.broadcast_to(np.asarray(g, dtype=float), (len(f.members),))[pos] for g in grads])
+            for k in range(nloc):
+                coef[starts[idx] + k] = local[k]
+            # body = a.x + c0; the row asks body = g_lb, so a.x = g_lb - c0 with c0 = body(x) - a.x
+            ax = np.einsum("kj,jk->j", local, x_any[f.var_index[pos]])
+            rhs[idx] = g_lb[self.rows[idx]] - (values[pos] - ax)
+        self._coef = coef
+        own = coef[self._own]
+        key = coef.tobytes()
+        if key != self._coef_key:
+            self.T = self._map(coef[self._other], own)
+            self.TT = self.T.T.tocsr()
+            self._jac_map = self._jacobian_map()
+            self._hess_map = self._hessian_map()
+            self._coef_key = key
+        # the constant part: x = T y + t with t from the right-hand sides (same substitution, y = 0)
+        t = np.zeros(nlp.n)
+        for _ in range(max(self.levels, 1)):
+            t_new = np.zeros(nlp.n)
+            other_sum = np.bincount(self._w_i[self._other], weights=coef[self._other] * t[self._w_k[self._other]],
+                                    minlength=len(self.rows))
+            t_new[self.eliminated] = (rhs - other_sum) / own
+            t = t_new
+        self.t = t
+
+    def full(self, y: np.ndarray) -> np.ndarray:
+        return self.T @ y + self.t
+
+    # --- structures and value maps ----------------------------------------------------------------------
+    def _expand_jacobian(self, t_map):
+        nlp = self.nlp
+        keep = self._row_of[nlp.jac_rows] >= 0
+        q = np.flatnonzero(keep)
+        k = nlp.jac_cols[q]
+        counts = np.diff(t_map.indptr)[k]
+        q_rep = np.repeat(q, counts)
+        starts = np.repeat(t_map.indptr[k], counts)
+        offset = np.arange(len(q_rep)) - np.repeat(np.cumsum(counts) - counts, counts)
+        entry = starts + offset
+        rows = self._row_of[nlp.jac_rows[q_rep]]
+        return q_rep, rows, t_map.indices[entry], t_map.data[entry]
+
+    def _jacobian_structure(self, t_struct):
+        _, rows, cols, _ = self._expand_jacobian(t_struct)
+        keys = np.unique(rows * self.n + cols)
+        return keys // self.n, keys % self.n, keys
+
+    def _jacobian_map(self):
+        q, rows, cols, weights = self._expand_jacobian(self.T)
+        target = np.searchsorted(self._jac_keys, rows * self.n + cols)
+        return sp.csr_matrix((weights, (target, q)), shape=(len(self._jac_keys), len(self.nlp.jac_rows)))
+
+    def _expand_hessian(self, t_map):
+        nlp = self.nlp
+        hk, hl = nlp.hess_rows, nlp.hess_cols
+        ck, cl = np.diff(t_map.indptr)[hk], np.diff(t_map.indptr)[hl]
+        counts = ck * cl
+        q = np.repeat(np.arange(len(hk)), counts)
+        within = np.arange(len(q)) - np.repeat(np.cumsum(counts) - counts, counts)
+        ia = t_map.indptr[hk][q] + within // cl[q]
+        ib = t_map.indptr[hl][q] + within % cl[q]
+        a, b = t_map.indices[ia], t_map.indices[ib]
+        w = t_map.data[ia] * t_map.data[ib]
+        diagonal_full = hk[q] == hl[q]
+        # T' S T for S = v (e_k e_l' + e_l e_k'): reduced (a, b) gets v (T_ka T_lb + T_la T_kb); enumerating
+        # (a, b) over T_k x T_l and folding onto the lower triangle counts the diagonal once (x 2 needed) and,
+        # for a diagonal S = v e_k e_k', counts off-diagonal pairs twice (x 1/2 needed)
+        w = np.where(~diagonal_full & (a == b), 2.0 * w, w)
+        w = np.where(diagonal_full & (a != b), 0.5 * w, w)
+        return q, np.maximum(a, b), np.minimum(a, b), w
+
+    def _hessian_structure(self, t_struct):
+        _, hi, lo, _ = self._expand_hessian(t_struct)
+        keys = np.unique(hi * self.n + lo)
+        return keys // self.n, keys % self.n, keys
+
+    def _hessian_map(self):
+        q, hi, lo, w = self._expand_hessian(self.T)
+        target = np.searchsorted(self._hess_keys, hi * self.n + lo)
+        return sp.csr_matrix((w, (target, q)), shape=(len(self._hess_keys), len(self.nlp.hess_rows)))
+
+    # --- reduced callbacks ------------------------------------------------------------------------------
+    def objective(self, y):
+        return self.nlp._obj(self.full(y))
+
+    def gradient(self, y):
+        return self.TT @ self.nlp._grad(self.full(y))
+
+    def constraints(self, y):
+        return self.nlp._cons(self.full(y))[self.kept_rows]
+
+    def jacobian(self, y):
+        return self._jac_map @ self.nlp._jac(self.full(y))
+
+    def hessian(self, y, lagrange, obj_factor):
+        full_lambda = np.zeros(self.nlp.m)
+        full_lambda[self.kept_rows] = lagrange
+        return self._hess_map @ self.nlp._hess(self.full(y), full_lambda, obj_factor)
+
+    # --- multipliers of the defining rows ---------------------------------------------------------------
+    def defining_multipliers(self, x: np.ndarray, kept_lambda: np.ndarray) -> np.ndarray:
+        """Multipliers of the rows used to eliminate, from stationarity of the full Lagrangian in the
+        eliminated variables (they have no bounds): A_RE' lambda_R = -(grad_E f + J_KE' lambda_K)."""
+        nlp = self.nlp
+        jac = sp.csr_matrix((nlp._jac(x), (nlp.jac_rows, nlp.jac_cols)), shape=(nlp.m, nlp.n))
+        rhs = -(nlp._grad(x)[self.eliminated] + jac[self.kept_rows][:, self.eliminated].T @ kept_lambda)
+        a_re = jac[self.rows][:, self.eliminated].tocsr()  # lower triangular in the order of choice
+        return spsolve_triangular(a_re.T.tocsr(), rhs, lower=False)

@@ -56,7 +56,11 @@ class _Printer:
         self._keep: list = []  # holds printed nodes so that their ids stay unique while memoised
 
     def leaf(self, node) -> str:
-        if node.is_variable_type():
+        kind = _LEAF_KINDS.get(node.__class__)
+        if kind is None:
+            kind = _LEAF_KINDS[node.__class__] = ("var" if node.is_variable_type() else
+                                                  "param" if node.is_parameter_type() else "other")
+        if kind == "var":
             if node.fixed:
                 return self._input(node)
             slot = self._var_slot.get(id(node))
@@ -64,7 +68,7 @@ class _Printer:
                 slot = self._var_slot[id(node)] = len(self.vars)
                 self.vars.append(node)
             return f"x{slot}"
-        if node.is_parameter_type() and not node.is_constant():  # a mutable Param
+        if kind == "param" and not node.is_constant():  # a mutable Param
             return self._input(node)
         return repr(float(value(node)))
 
@@ -83,42 +87,56 @@ class _Printer:
         return "\n".join(self._lines + [f"return [{', '.join(outs)}]"])
 
     def atom(self, node) -> str:
-        if node.__class__ in EXPR.native_numeric_types:
+        cls = node.__class__
+        if cls in EXPR.native_numeric_types:
             return repr(float(node))
-        if not node.is_expression_type():
+        kind = _NODE_KINDS.get(cls)
+        if kind is None:
+            kind = _NODE_KINDS[cls] = ("leaf" if not node.is_expression_type() else
+                                       "named" if node.is_named_expression_type() else "operation")
+        if kind == "leaf":
             return self.leaf(node)
-        if node.is_named_expression_type():
+        if kind == "named":
             return self.atom(node.expr)
         name = self._memo.get(id(node))
         if name is not None:
             return name
         args = [self.atom(a) for a in node.args]
         name = f"t{len(self._lines)}"
-        self._lines.append(f"{name} = {_operation(node, args)}")
+        fmt = _FORMATS.get(cls) or _FORMATS.setdefault(cls, _format_of(node))
+        self._lines.append(f"{name} = {fmt(node, args)}")
         self._memo[id(node)] = name
         self._keep.append(node)
         return name
 
 
-def _operation(node, args) -> str:
+# Printing dispatches on the node's class (the class decides the kind of a Pyomo node), cached on first sight:
+# the tree walk is most of the compile time of a large model.
+_NODE_KINDS: dict = {}
+_LEAF_KINDS: dict = {}
+_FORMATS: dict = {}
+
+
+def _format_of(node):
+    """The printing function of a Pyomo operation node's class."""
     if isinstance(node, EXPR.Expr_ifExpression):
-        return f"np.where({args[0]}, {args[1]}, {args[2]})"
+        return lambda n, a: f"np.where({a[0]}, {a[1]}, {a[2]})"
     if isinstance(node, EXPR.InequalityExpression):
-        return f"{args[0]} {'<' if node.strict else '<='} {args[1]}"
+        return lambda n, a: f"{a[0]} {'<' if n.strict else '<='} {a[1]}"
     if isinstance(node, (EXPR.SumExpression, EXPR.LinearExpression)):
-        return " + ".join(args)
+        return lambda n, a: " + ".join(a)
     if isinstance(node, (EXPR.ProductExpression, EXPR.MonomialTermExpression)):
-        return f"{args[0]} * {args[1]}"
+        return lambda n, a: f"{a[0]} * {a[1]}"
     if isinstance(node, EXPR.DivisionExpression):
-        return f"{args[0]} / {args[1]}"
+        return lambda n, a: f"{a[0]} / {a[1]}"
     if isinstance(node, EXPR.PowExpression):
-        return f"{args[0]} ** {args[1]}"
+        return lambda n, a: f"{a[0]} ** {a[1]}"
     if isinstance(node, EXPR.NegationExpression):
-        return f"-{args[0]}"
+        return lambda n, a: f"-{a[0]}"
     if isinstance(node, EXPR.AbsExpression):
-        return f"np.abs({args[0]})"
+        return lambda n, a: f"np.abs({a[0]})"
     if isinstance(node, EXPR.UnaryFunctionExpression):
-        return f"np.{node.getname()}({args[0]})"
+        return lambda n, a: f"np.{n.getname()}({a[0]})"
     raise TypeError(f"the bridge cannot print expressions of type {type(node).__name__}")
 
 

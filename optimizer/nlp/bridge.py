@@ -281,6 +281,7 @@ class CompiledNLP:
                       "ipopt_constraints": self.compact.m if self.compact else self.m}
         self._warm = None
         self._deriv_key, self._deriv_values = None, {}
+        self._bound_exprs = None
 
     def _structure(self):
         jr, jc = [], []
@@ -363,10 +364,33 @@ class CompiledNLP:
         """Read inputs, variable bounds and constraint bounds from the model."""
         self._p = np.array([value(p) for p in self.inputs], dtype=float)
         self._deriv_key, self._deriv_values = None, {}  # inputs changed: forget cached derivatives
-        self.x_lb = np.array([-INFINITY if v.lb is None else v.lb for v in self.variables], dtype=float)
-        self.x_ub = np.array([INFINITY if v.ub is None else v.ub for v in self.variables], dtype=float)
-        self.g_lb = np.array([-INFINITY if c.lower is None else value(c.lower) for c in self.constraints], dtype=float)
-        self.g_ub = np.array([INFINITY if c.upper is None else value(c.upper) for c in self.constraints], dtype=float)
+        bounds = np.array([v.bounds for v in self.variables], dtype=float).reshape(-1, 2)  # None -> nan
+        self.x_lb = np.where(np.isnan(bounds[:, 0]), -INFINITY, bounds[:, 0])
+        self.x_ub = np.where(np.isnan(bounds[:, 1]), INFINITY, bounds[:, 1])
+        if self._bound_exprs is None:
+            self._constraint_bounds()
+        self.g_lb, self.g_ub = self._g_lb_const.copy(), self._g_ub_const.copy()
+        for bounds, rows, exprs in ((self.g_lb, *self._bound_exprs[0]), (self.g_ub, *self._bound_exprs[1])):
+            bounds[rows] = [value(e) for e in exprs]
+
+    def _constraint_bounds(self):
+        """Constraint bounds that are numbers are read once; those with inputs (mutable Params, fixed Vars)
+        at every refresh. A constraint's expression cannot change without a new CompiledNLP anyway."""
+        lb, ub = np.empty(self.m), np.empty(self.m)
+        live = ([], []), ([], [])
+        for row, c in enumerate(self.constraints):
+            for side, (out, (rows, exprs), missing) in enumerate(((lb, live[0], -INFINITY), (ub, live[1], INFINITY))):
+                e = c.lower if side == 0 else c.upper
+                if e is None:
+                    out[row] = missing
+                elif e.__class__ in EXPR.native_numeric_types or e.is_constant():
+                    out[row] = value(e)
+                else:
+                    out[row] = np.nan
+                    rows.append(row)
+                    exprs.append(e)
+        self._g_lb_const, self._g_ub_const = lb, ub
+        self._bound_exprs = tuple((np.asarray(rows, dtype=np.int64), exprs) for rows, exprs in live)
 
     on_iteration = None  # optional f(iteration, objective, primal infeasibility), called by IPOPT every iteration
 

@@ -33,9 +33,11 @@ def _design_component(model, name, spec, value):
     return comp
 
 
-def parametrised_case(model, case, spec):
+def parametrised_case(model, case, spec, kinetics=None):
     """The case with every design quantity, the wall thickness, the kinetic parameters and the U multiplier
-    replaced by Pyomo components of ``model``."""
+    replaced by Pyomo components of ``model``. ``kinetics``: {reaction index: {"k_ref": component,
+    "activation_energy": component}} to use instead of the model's own parameters (a fit shares them
+    between the models of its runs)."""
     d = {}
     for name in DESIGN_KEYS:
         value = case_value(case, name)
@@ -61,16 +63,19 @@ def parametrised_case(model, case, spec):
         coolant = replace(coolant, temperature=model.coolant_saturation, pressure=d["coolant_pressure"])
     if "coolant_flow" in d:
         coolant = replace(coolant, mass_flow=d["coolant_flow"])
-    reactions = tuple(replace(rx, k_ref=model.k_ref[j], activation_energy=model.e_act[j])
+    shared = kinetics or {}
+    reactions = tuple(replace(rx, k_ref=shared.get(j, {}).get("k_ref", model.k_ref[j]),
+                              activation_energy=shared.get(j, {}).get("activation_energy", model.e_act[j]))
                       for j, rx in enumerate(case.reactions))
     heat = replace(case.heat_transfer, multiplier=model.u_multiplier)
     return replace(case, tube=tube, feed=feed, coolant=coolant, reactions=reactions, heat_transfer=heat)
 
 
-def build_tube_model(case, spec, nfe: int = 40, ncp: int = 3):
-    """The discretised Pyomo model (without objective or limits). Returns (model, parametrised case)."""
-    m = pyo.ConcreteModel(name="tube")
-    pcase = parametrised_case(m, case, spec)
+def build_tube_model(case, spec, nfe: int = 40, ncp: int = 3, block=None, kinetics=None):
+    """The discretised Pyomo model (without objective or limits), built into ``block`` if given (a fit
+    builds one block per run), else into a new model. Returns (model, parametrised case)."""
+    m = pyo.ConcreteModel(name="tube") if block is None else block
+    pcase = parametrised_case(m, case, spec, kinetics)
     names = case.names
     m.S = pyo.Set(initialize=names, ordered=True)
     m.xi = dae.ContinuousSet(bounds=(0.0, 1.0))
@@ -143,3 +148,29 @@ def state_scaling(m, case, result) -> dict:
              for s in case.names}
     floor = {"T": 1.0, "P": 1.0, "Tc": 1.0, "Q": 1.0, "tau": 1e-6}
     return {"F": f_ref, **{s: max(float(np.max(np.abs(cols[layout.column(s)]))), floor[s]) for s in TAIL}}
+
+
+def tube_scale_factors(m, case, scales) -> tuple[dict, dict]:
+    """IPOPT scale factors of one tube model: {id(variable): factor} for the states and their derivatives,
+    {id(constraint): factor} for the balances, the collocation equations and the inlet conditions; factors
+    are 1 / typical magnitude (``scales`` from ``state_scaling``)."""
+    var, con = {}, {}
+    for (sp, x), v in m.F.items():
+        var[id(v)] = var[id(m.dF[sp, x])] = 1.0 / scales["F"][sp]
+    for state in TAIL:
+        for x in m.xi:
+            var[id(getattr(m, state)[x])] = var[id(getattr(m, f"d{state}")[x])] = 1.0 / scales[state]
+    for (sp, _), c in m.ode_F.items():
+        con[id(c)] = 1.0 / scales["F"][sp]
+    for (state, _), c in m.ode.items():
+        con[id(c)] = 1.0 / scales[state]
+    for state in ("F", *TAIL):
+        for idx, c in getattr(m, f"d{state}_disc_eq").items():
+            con[id(c)] = 1.0 / (scales["F"][idx[0]] if state == "F" else scales[state])
+    feed = case.feed.molar_flows
+    for sp, c in m.inlet_F.items():
+        con[id(c)] = 1.0 / max(feed[case.index(sp)], 1e-3 * sum(feed))
+    for c, state in ((m.inlet_T, "T"), (m.inlet_P, "P"), (m.coolant_in, "Tc"), (m.inlet_Q, "Q"),
+                     (m.inlet_tau, "tau")):
+        con[id(c)] = 1.0 / scales[state]
+    return var, con

@@ -18,9 +18,13 @@ from tubewright.models.figures import POINTWISE, correlation_range_excesses, cri
 from tubewright.models.limits import LIMITS
 from tubewright.models.outcomes import Reason
 from tubewright.models.simulator import simulate
-from tubewright.models.state import TAIL
 from tubewright.models.summary import conversion, key_lost, product_figures
-from tubewright.optimizer.design.collocation import build_tube_model, initialise_from_simulation, state_scaling
+from tubewright.optimizer.design.collocation import (
+    build_tube_model,
+    initialise_from_simulation,
+    state_scaling,
+    tube_scale_factors,
+)
 from tubewright.optimizer.design.costs import cost_figures, shells_for
 from tubewright.optimizer.design.goals import GOALS
 from tubewright.optimizer.design.outcome import LimitRow
@@ -176,38 +180,14 @@ class DesignProblem:
 
     # --- solving ----------------------------------------------------------------------------------------
     def scaling(self):
-        m, s = self.model, self._scales
-        factors = {}
-        for (sp, x), v in m.F.items():
-            factors[id(v)] = 1.0 / s["F"][sp]
-            factors[id(m.dF[sp, x])] = 1.0 / s["F"][sp]
-        for state in TAIL:
-            for x in m.xi:
-                factors[id(getattr(m, state)[x])] = 1.0 / s[state]
-                factors[id(getattr(m, f"d{state}")[x])] = 1.0 / s[state]
+        m = self.model
+        factors, con_factors = tube_scale_factors(m, self.case, self._scales)
         for name, comp in m.design.items():
             if name in self.spec.free:
                 factors[id(comp)] = 1.0 / max(abs(comp.value), 1e-12)
         x_s = np.array([factors.get(id(v), 1.0) for v in self.nlp.variables])
-        g_s = np.ones(self.nlp.m)
+        g_s = np.array([con_factors.get(id(c), 1.0) for c in self.nlp.constraints])
         row = {id(c): i for i, c in enumerate(self.nlp.constraints)}
-        for (sp, _), c in m.ode_F.items():
-            g_s[row[id(c)]] = 1.0 / s["F"][sp]
-        for (state, _), c in m.ode.items():
-            if id(c) in row:
-                g_s[row[id(c)]] = 1.0 / s[state]
-        for state in ("F", *TAIL):
-            disc = getattr(m, f"d{state}_disc_eq")
-            for idx, c in disc.items():
-                ref = s["F"][idx[0]] if state == "F" else s[state]
-                g_s[row[id(c)]] = 1.0 / ref
-        feed = self.case.feed.molar_flows
-        for sp, c in m.inlet_F.items():
-            g_s[row[id(c)]] = 1.0 / max(feed[self.case.index(sp)], 1e-3 * sum(feed))
-        for c, ref in ((m.inlet_T, s["T"]), (m.inlet_P, s["P"]), (m.coolant_in, s["Tc"]), (m.inlet_Q, s["Q"]),
-                       (m.inlet_tau, s["tau"])):
-            if id(c) in row:
-                g_s[row[id(c)]] = 1.0 / ref
         for name, comp in self.limit_components.items():
             bound = abs(self.spec.limits[name]) or 1.0
             for c in (comp.values() if comp.is_indexed() else [comp]):

@@ -58,6 +58,9 @@ class Reason(_Word):
     WORKER_LOST = "worker_lost"  # the worker process or Dask worker of a task died
     INTERRUPTED = "interrupted"  # stopped by Ctrl-C or SIGINT
     DISK_FULL = "disk_full"  # no space left while writing results
+    FITTED = "fitted"  # a kinetics fit converged and its statistics were computed
+    TOO_FEW_MEASUREMENTS = "too_few_measurements"  # a fit with no more usable measurements than parameters
+    RUN_NOT_SIMULATED = "run_not_simulated"  # a laboratory run cannot be simulated at the fitted parameters
 
 
 # The statuses after which a study task is not run again unless asked to (--retry-failed).

@@ -65,6 +65,11 @@ def write_optimum_case(path: Path, case, design: dict, overrides: dict, title: s
     return path
 
 
+def toml_text(tables: dict) -> str:
+    """Nested dicts of TOML values (numbers, strings, booleans, lists, inline dicts) as TOML text."""
+    return "\n".join(_tables(tables, [])).lstrip("\n") + "\n"
+
+
 def _tables(tables: dict, prefix: list) -> list:
     lines, subtables = [], []
     plain = {k: v for k, v in tables.items() if not isinstance(v, dict)}

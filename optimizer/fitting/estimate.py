@@ -1,0 +1,273 @@
+"""Weighted least squares of kinetic parameters over all laboratory runs at once, solved by IPOPT through
+the bridge: one collocation block per run (the tube model of optimizer.design.collocation, built from the
+same balances as the simulator), all blocks sharing the free kinetic parameters; every block starts from a
+simulation of its run at the starting parameters.
+
+Arrhenius laws are fitted about one reference temperature T_fit inside the data (optimizer.fitting.spec):
+the free parameters are k(T_fit) and E_a, and the case's own k_ref (at its T_ref) is the expression
+k(T_fit) exp(-E_a/R (1/T_ref - 1/T_fit)). The statistics (optimizer.fitting.statistics) use the Jacobian of
+the weighted residuals by central differences of adaptive-integrator simulations at the estimate."""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+from tubewright.models.backend import NUMPY, pyomo_backend
+from tubewright.models.outcomes import Reason, Status
+from tubewright.models.reactions import arrhenius
+from tubewright.models.summary import conversion
+from tubewright.optimizer.fitting.data import read_runs
+from tubewright.optimizer.fitting.spec import read_fit
+from tubewright.optimizer.fitting.statistics import (
+    arrhenius_reference_temperature,
+    gauss_newton_statistics,
+    lack_of_fit,
+)
+
+JACOBIAN_STEP = 1e-4  # relative step of the central differences of the residual Jacobian
+JACOBIAN_RTOL = 1e-10  # integrator tolerance of those simulations (the step's effect is ~1e-4 relative)
+
+
+@dataclass
+class FitOutcome:
+    status: Status  # OK or FAILED
+    reason: Reason
+    message: str
+    reference_temperature: float = math.nan
+    parameters: list = field(default_factory=list)  # names
+    estimates: dict = field(default_factory=dict)  # name -> value (k at T_fit, E_a)
+    case_values: dict = field(default_factory=dict)  # reaction -> {"k_ref", "activation_energy", "t_ref"}
+    statistics: object = None  # FitStatistics
+    lack_of_fit: dict | None = None
+    residuals: list = field(default_factory=list)  # per observation: row, quantity, measured, fitted, sigma
+    excluded: list = field(default_factory=list)  # runs left out, with why
+    solver: dict = field(default_factory=dict)
+    warnings: list = field(default_factory=list)
+
+    def as_dict(self) -> dict:
+        return {"status": self.status, "reason": self.reason, "message": self.message,
+                "reference_temperature_K": self.reference_temperature, "estimates": self.estimates,
+                "case_values": self.case_values,
+                "statistics": self.statistics.as_dict() if self.statistics is not None else None,
+                "lack_of_fit": self.lack_of_fit, "observations": self.residuals, "excluded_runs": self.excluded,
+                "solver": self.solver, "warnings": self.warnings}
+
+
+def _kinetics_at(case, spec, t_fit, values, backend):
+    """The case's reactions with the free parameters at ``values`` (fitted coordinates), as numbers or
+    Pyomo expressions: {reaction index: {"k_ref": k at the case's T_ref, "activation_energy": E_a}}."""
+    out = {}
+    for p, v in zip(spec.parameters, values):
+        out.setdefault(p.index, {})[p.kind] = v
+    kinetics = {}
+    for j, entry in out.items():
+        rx = case.reactions[j]
+        e_act = entry.get("activation_energy", rx.activation_energy)
+        k_fit = entry.get("k_ref", arrhenius(NUMPY, rx.k_ref, rx.activation_energy, rx.t_ref, t_fit))
+        kinetics[j] = {"k_ref": arrhenius(backend, k_fit, e_act, t_fit, rx.t_ref), "activation_energy": e_act}
+    return kinetics
+
+
+def _with_kinetics(case, kinetics):
+    reactions = list(case.reactions)
+    for j, entry in kinetics.items():
+        reactions[j] = replace(reactions[j], **entry)
+    return replace(case, reactions=tuple(reactions))
+
+
+def start_values(case, spec, t_fit) -> np.ndarray:
+    values = []
+    for p in spec.parameters:
+        rx = case.reactions[p.index]
+        values.append(rx.activation_energy if p.kind == "activation_energy"
+                      else arrhenius(NUMPY, rx.k_ref, rx.activation_energy, rx.t_ref, t_fit))
+    return np.asarray(values, dtype=float)
+
+
+def predicted(case, name: str, f_in, f_out, T_out, n_tubes):
+    """A measured quantity from the inlet and outlet flows per tube and the outlet temperature (any
+    backend: numbers or Pyomo expressions)."""
+    kind, _, species = name.partition(".")
+    if kind == "conversion":
+        return conversion(case, f_in, f_out)
+    if kind == "outlet_temperature":
+        return T_out
+    k = case.index(species)
+    if kind == "outlet_flow":
+        return n_tubes * f_out[k]
+    return f_out[k] / sum(f_out)  # outlet_mole_fraction
+
+
+def sigma_of(spec, name: str, measured: float) -> float:
+    how, value = spec.errors[name.partition(".")[0]]
+    return value if how == "absolute" else value * max(abs(measured), 1e-300)
+
+
+def simulate_predictions(run_case, names):
+    """The measured quantities of one run from the adaptive integrator, or None where it stops early."""
+    from tubewright.models.simulator import simulate
+
+    sim = simulate(replace(run_case, numerics=replace(run_case.numerics, rtol=JACOBIAN_RTOL)), checks=False)
+    if not sim.ok:
+        return None, sim
+    cols, n = sim.columns, run_case.tube.count
+    f_in = [cols[f"F_{s}_mol_s"][0] / n for s in run_case.names]
+    f_out = [cols[f"F_{s}_mol_s"][-1] / n for s in run_case.names]
+    return [float(predicted(run_case, q, f_in, f_out, cols["T_K"][-1], n)) for q in names], sim
+
+
+def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) -> FitOutcome:
+    """Fit the free kinetic parameters of ``case_path``'s [fit] to the runs of ``data_path``."""
+    import pyomo.environ as pyo
+    from tubewright.models import load_case
+    from tubewright.models.simulator import simulate
+    from tubewright.optimizer.design.collocation import (
+        build_tube_model,
+        initialise_from_simulation,
+        state_scaling,
+        tube_scale_factors,
+    )
+    from tubewright.optimizer.design.spec import DesignSpec
+    from tubewright.optimizer.nlp.bridge import CompiledNLP
+
+    t0 = time.perf_counter()
+    base = load_case(case_path)
+    spec = read_fit(base)
+    runs = read_runs(data_path, case_path)
+    for run in runs:
+        for name in run.measured:
+            if name.partition(".")[0] not in spec.errors:
+                from tubewright.models.errors import CaseError
+
+                raise CaseError(str(case_path), f"fit.errors.{name.partition('.')[0]}",
+                                f"missing: the data ({data_path}) measure {name}; state its error (absolute, or "
+                                'relative as "2 %")')
+    t_fit = spec.reference_temperature or arrhenius_reference_temperature([r.case.feed.temperature for r in runs])
+    theta0 = start_values(base, spec, t_fit)
+    lower = np.array([p.lower * s if p.kind == "k_ref" else p.lower for p, s in zip(spec.parameters, theta0)])
+    upper = np.array([p.upper * s if p.kind == "k_ref" else p.upper for p, s in zip(spec.parameters, theta0)])
+    names = [p.name for p in spec.parameters]
+    out = FitOutcome(Status.FAILED, Reason.SOLVER_FAILED, "", t_fit, names)
+
+    # the runs that the model can simulate at the start; the others are listed, not fitted
+    usable = []
+    for run in runs:
+        start_case = _with_kinetics(run.case, _kinetics_at(run.case, spec, t_fit, theta0, NUMPY))
+        sim = simulate(start_case, checks=False)
+        if not sim.ok:
+            out.excluded.append({"row": run.row, "reason": f"cannot be simulated at the starting parameters: "
+                                 f"{sim.reason}"})
+            continue
+        usable.append((run, sim))
+    n_obs = sum(len(r.measured) for r, _ in usable)
+    if n_obs <= len(names):
+        out.reason = Reason.TOO_FEW_MEASUREMENTS
+        out.message = (f"{n_obs} usable measurements for {len(names)} parameters: nothing to fit "
+                       f"({len(out.excluded)} runs excluded)")
+        return out
+
+    # IPOPT works on ln k (rate constants span decades; k = exp(ln k) stays positive) and on E_a
+    is_k = np.array([p.kind == "k_ref" for p in spec.parameters])
+    internal0 = np.where(is_k, np.log(theta0), theta0)
+    low_i, up_i = np.where(is_k, np.log(lower), lower), np.where(is_k, np.log(upper), upper)
+    m = pyo.ConcreteModel(name="fit")
+    m.theta = pyo.Var(range(len(names)), bounds=lambda m, i: (low_i[i], up_i[i]), initialize=lambda m, i: internal0[i])
+    values = [pyo.exp(m.theta[k]) if is_k[k] else m.theta[k] for k in range(len(names))]
+    m.run = pyo.Block(range(len(usable)))
+    observations, terms, x_scale, g_scale = [], [], {}, {}
+    for i, (run, sim) in enumerate(usable):
+        b = m.run[i]
+        kinetics = _kinetics_at(run.case, spec, t_fit, values, pyomo_backend())
+        nfe_i = int(nfe or run.case.numerics.finite_elements)
+        ncp_i = int(ncp or run.case.numerics.collocation_points)
+        _, pcase = build_tube_model(run.case, DesignSpec(), nfe_i, ncp_i, block=b, kinetics=kinetics)
+        initialise_from_simulation(b, run.case, sim)
+        var_s, con_s = tube_scale_factors(b, run.case, state_scaling(b, run.case, sim))
+        x_scale.update(var_s)
+        g_scale.update(con_s)
+        f_in = [b.F[s, 0.0] for s in run.case.names]
+        f_out = [b.F[s, 1.0] for s in run.case.names]
+        for name, y in run.measured.items():
+            sigma = sigma_of(spec, name, y)
+            expr = predicted(run.case, name, f_in, f_out, b.T[1.0], pcase.tube.count)
+            terms.append(((expr - y) / sigma) ** 2)
+            observations.append((run, name, y, sigma))
+    m.objective = pyo.Objective(expr=0.5 * sum(terms))
+    nlp = CompiledNLP(m)
+    for k, v in enumerate(m.theta.values()):
+        x_scale[id(v)] = 1.0 / max(abs(internal0[k]), 1.0)
+    scaling = (1.0 / max(pyo.value(m.objective), 1.0), np.array([x_scale.get(id(v), 1.0) for v in nlp.variables]),
+               np.array([g_scale.get(id(c), 1.0) for c in nlp.constraints]))
+    num = base.numerics
+    opts = {"max_iter": 500, "tol": 1e-9, "mumps_pivtol": 1e-4, "mumps_pivot_order": num.mumps_pivot_order,
+            "mumps_scaling": num.mumps_scaling, "mumps_permuting_scaling": num.mumps_permuting_scaling}
+    solved = nlp.solve(options=opts, scaling=scaling)
+    theta = np.array([pyo.value(v) for v in values])
+    out.solver = {**solved.as_dict(), "variables": nlp.n, "ipopt_variables": nlp.times["ipopt_variables"],
+                  "forms": nlp.times["forms"], "runs": len(usable)}
+    if not solved.success:
+        out.message = f"IPOPT did not converge: {solved.status_name} ({solved.message})"
+        return out
+    at_bound = [n for n, v, lo, hi in zip(names, theta, lower, upper) if min(v - lo, hi - v) <= 1e-6 * abs(v)]
+    if at_bound:
+        out.warnings.append(f"{', '.join(at_bound)} at a bound of [fit.parameters]: the intervals do not hold there; "
+                            "widen the bounds or check the data")
+
+    residuals, jac, sim_failed = _residuals_and_jacobian(usable, observations, spec, t_fit, theta)
+    if sim_failed:
+        out.message = f"the adaptive integrator could not simulate run {sim_failed} at or near the estimate"
+        out.reason = Reason.RUN_NOT_SIMULATED
+        return out
+    stats = gauss_newton_statistics(names, theta, residuals, jac, error_model=spec.error_model)
+    groups = [f"{sorted(run.conditions.items())}|{name}" for run, name, _, _ in observations]
+    out.lack_of_fit = lack_of_fit(residuals, groups, len(names))
+    out.statistics = stats
+    out.warnings.extend(stats.warnings)
+    if out.lack_of_fit is not None and out.lack_of_fit["p_value"] < 0.01:
+        out.warnings.append(f"lack of fit against the replicates (F = {out.lack_of_fit['F']:.3g}, "
+                            f"p = {out.lack_of_fit['p_value']:.2g}): the model misses systematic features of the data")
+    out.estimates = dict(zip(names, map(float, theta)))
+    kin = _kinetics_at(base, spec, t_fit, theta, NUMPY)
+    out.case_values = {base.reactions[j].name: {"k_ref": float(e["k_ref"]),
+                                                "activation_energy": float(e["activation_energy"]),
+                                                "t_ref": float(base.reactions[j].t_ref)} for j, e in kin.items()}
+    scale = math.sqrt(stats.residual_variance) if spec.error_model == "estimated" else 1.0
+    out.residuals = [{"row": run.row, "quantity": name, "measured": y, "sigma": sigma * scale,
+                      "fitted": y + r * sigma} for (run, name, y, sigma), r in zip(observations, residuals)]
+    out.status, out.reason = Status.OK, Reason.FITTED
+    out.message = f"{len(names)} parameters from {n_obs} measurements of {len(usable)} runs"
+    out.solver["seconds"] = time.perf_counter() - t0
+    return out
+
+
+def _residuals_and_jacobian(usable, observations, spec, t_fit, theta):
+    """Weighted residuals at ``theta`` and their Jacobian by central differences, both from simulations."""
+    def residuals_at(values):
+        r = []
+        for run, _ in usable:
+            names = list(run.measured)
+            case = _with_kinetics(run.case, _kinetics_at(run.case, spec, t_fit, values, NUMPY))
+            pred, _ = simulate_predictions(case, names)
+            if pred is None:
+                return None, run.row
+            r.extend((p - run.measured[q]) / sigma_of(spec, q, run.measured[q]) for p, q in zip(pred, names))
+        return np.array(r), None
+
+    r0, failed = residuals_at(theta)
+    if failed is not None:
+        return None, None, failed
+    jac = np.empty((len(r0), len(theta)))
+    for k in range(len(theta)):
+        h = JACOBIAN_STEP * max(abs(theta[k]), 1e-300)
+        up, down = theta.copy(), theta.copy()
+        up[k] += h
+        down[k] -= h
+        r_up, failed = residuals_at(up)
+        r_down, failed_down = residuals_at(down)
+        if failed is not None or failed_down is not None:
+            return None, None, failed or failed_down
+        jac[:, k] = (r_up - r_down) / (2 * h)
+    return r0, jac, None

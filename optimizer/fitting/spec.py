@@ -1,0 +1,130 @@
+"""Reading ``[fit]`` of a case: which kinetic parameters are free, the error model of the measurements and
+the reference temperature of the Arrhenius laws.
+
+    [fit]
+    error_model = "stated"            # or "estimated": the errors below are then relative weights, and a
+                                      # common variance factor is estimated from the residuals
+    reference_temperature = "600 K"   # optional; default 1/mean(1/T_feed) over the runs
+    [fit.parameters.REACTION]
+    k_ref = { within = 100 }          # free within start/100 .. start*100 (start: the case's value)
+    activation_energy = { min = "40 kJ/mol", max = "200 kJ/mol" }   # or true: 0.2x .. 5x the start
+    [fit.errors]                      # one per measured quantity of the data
+    conversion = 0.01                 # absolute (dimensionless), or
+    outlet_temperature = "1.5 K"      # absolute with a unit (a temperature difference), or
+    outlet_flow = "3 %"               # relative to the measured value
+
+Fitted are k at the reference temperature (not k_ref at the case's own T_ref) and E_a: about the runs' own
+mean reciprocal temperature the two are nearly uncorrelated (optimizer.fitting.statistics)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from tubewright.models.casefile import Table
+from tubewright.models.errors import CaseError, suggest
+from tubewright.models.units import quantity
+from tubewright.optimizer.fitting.data import MEASURED
+
+KINDS = ("k_ref", "activation_energy")
+DEFAULT_WITHIN = 100.0
+ERROR_DIMENSIONS = {"outlet_temperature": "temperature_difference", "outlet_flow": "molar_flow"}
+
+
+@dataclass(frozen=True)
+class FitParameter:
+    reaction: str
+    index: int  # of the reaction in the case
+    kind: str  # "k_ref" (k at the reference temperature) or "activation_energy"
+    lower: float
+    upper: float
+
+    @property
+    def name(self) -> str:
+        return f"{self.reaction}.{self.kind}"
+
+
+@dataclass(frozen=True)
+class FitSpec:
+    parameters: tuple
+    errors: dict  # measured kind -> ("absolute", SI sigma) or ("relative", fraction)
+    error_model: str
+    reference_temperature: float | None  # None: from the runs
+
+
+def read_fit(case) -> FitSpec:
+    source = case.source
+    if "fit" not in case.raw:
+        raise CaseError(source, "fit", "missing: the case needs a [fit] section naming the free parameters")
+    t = Table(case.raw["fit"], source, "fit", {"error_model", "reference_temperature", "parameters", "errors"})
+    error_model = t.choice("error_model", ("stated", "estimated"), default="stated")
+    t_ref = t.quantity("reference_temperature", "temperature", required=False, minimum=100.0, maximum=5000.0)
+    names = [rx.name for rx in case.reactions]
+    params = []
+    ptab = t.sub("parameters")
+    for rname, entry in ptab.data.items():
+        if rname not in names:
+            raise CaseError(source, ptab.key(rname), f'no reaction "{rname}"{suggest(rname, names)}; reactions: '
+                            f"{', '.join(names)}")
+        rt = Table(entry, source, ptab.key(rname), set(KINDS))
+        j = names.index(rname)
+        rx = case.reactions[j]
+        for kind in KINDS:
+            if not rt.has(kind):
+                continue
+            params.append(_parameter(rt, kind, rname, j, rx))
+        rt.finish()
+    if not params:
+        raise CaseError(source, "fit.parameters", "names no free parameter (k_ref or activation_energy of a reaction)")
+    errors = {}
+    et = t.sub("errors")
+    for kind, value in et.data.items():
+        if kind not in MEASURED:
+            raise CaseError(source, et.key(kind), f"unknown measured quantity{suggest(kind, MEASURED)}; allowed: "
+                            f"{', '.join(MEASURED)}")
+        errors[kind] = _error(value, kind, source, et.key(kind))
+    t.finish()
+    return FitSpec(tuple(params), errors, error_model, t_ref)
+
+
+def _parameter(rt: Table, kind: str, rname: str, j: int, rx) -> FitParameter:
+    spec = rt.raw(kind)
+    key = rt.key(kind)
+    if spec is True:
+        spec = {}
+    if not isinstance(spec, dict):
+        raise CaseError(rt.source, key, "must be true or a table ({ within = 100 } for k_ref, { min = ..., "
+                        "max = ... } for activation_energy)")
+    if kind == "k_ref":
+        sub = Table(spec, rt.source, key, {"within"})
+        within = sub.number("within", default=DEFAULT_WITHIN, low=1.0 + 1e-9, high=1e12)
+        sub.finish()
+        return FitParameter(rname, j, kind, 1.0 / within, within)  # factors of the start value
+    sub = Table(spec, rt.source, key, {"min", "max"})
+    start = rx.activation_energy
+    lo = sub.quantity("min", "molar_energy", default=0.2 * start, positive=False, minimum=0.0)
+    hi = sub.quantity("max", "molar_energy", default=5.0 * start)
+    sub.finish()
+    if not lo < hi:
+        raise CaseError(rt.source, key, f"min ({lo:g} J/mol) must be below max ({hi:g} J/mol)")
+    return FitParameter(rname, j, kind, lo, hi)
+
+
+def _error(value, kind: str, source: str, key: str):
+    if isinstance(value, str) and value.strip().endswith("%"):
+        try:
+            fraction = float(value.strip()[:-1]) / 100.0
+        except ValueError:
+            raise CaseError(source, key, f'"{value}" is not a percentage such as "2 %"') from None
+        if not 0.0 < fraction < 1.0:
+            raise CaseError(source, key, f"a relative error must be between 0 and 100 %, got {value!r}")
+        return ("relative", fraction)
+    dim = ERROR_DIMENSIONS.get(kind)
+    if dim is None:
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not 0.0 < float(value) < 1.0:
+            raise CaseError(source, key, f"a dimensionless absolute error between 0 and 1, or a percentage, got "
+                            f"{value!r}")
+        return ("absolute", float(value))
+    sigma = quantity(value, dim, source, key)
+    if not sigma > 0:
+        raise CaseError(source, key, f"must be greater than zero, got {value!r}")
+    return ("absolute", sigma)

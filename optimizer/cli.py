@@ -415,6 +415,34 @@ def cmd_run(args) -> int:
     return EXIT_OK if summary["not_done"] == 0 else EXIT_NOT_OK
 
 
+def cmd_fit(args) -> int:
+    from tubewright.optimizer.output.fitreport import fit_lines
+
+    res = verbs.fit(args.case, args.data)
+    files = {}
+    if args.out:
+        from tubewright.optimizer.output.fitreport import plot_fit, write_fitted_case
+
+        out = Path(args.out)
+        out.mkdir(parents=True, exist_ok=True)
+        if res.statistics is not None:
+            files["fitted_case_toml"] = str(write_fitted_case(out / "fitted.toml", load_case(args.case), res))
+            files["fit_png"] = str(plot_fit(res, out / "fit.png"))
+        files["fit_json"] = str(out / "fit.json")
+        answer = finite({"case": str(args.case), "data": str(args.data), **res.as_dict(), "files": files,
+                         "caution": CAUTION})
+        Path(files["fit_json"]).write_text(json.dumps(answer, indent=2) + "\n")
+    if args.json:
+        _emit_json(finite({"case": str(args.case), "data": str(args.data), **res.as_dict(), "files": files,
+                           "caution": CAUTION}))
+    else:
+        print("\n".join(fit_lines(res)))
+        for label, path in files.items():
+            print(f"  wrote {label}: {path}")
+        print(f"\nCAUTION: {CAUTION}")
+    return EXIT_OK if res.status == Status.OK else EXIT_NOT_OK
+
+
 def cmd_status(args) -> int:
     from tubewright.optimizer.study.report import status
 
@@ -484,6 +512,13 @@ def build_parser() -> argparse.ArgumentParser:
     scr.add_argument("--out", metavar="DIR", help="write samples, outputs, indices (CSV, Parquet) and plots here")
     scr.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a case key (repeatable)")
     scr.set_defaults(func=cmd_screen)
+    fit = sub.add_parser("fit", help="fit the [fit] kinetic parameters of a case to laboratory runs")
+    fit.add_argument("case", help="case file (TOML) of the laboratory reactor, with a [fit] section")
+    fit.add_argument("--data", required=True, metavar="FILE",
+                     help='runs (CSV or Parquet): columns "KEY [UNIT]" of conditions and measured.* quantities')
+    fit.add_argument("--json", action="store_true", help="print the result as one JSON object")
+    fit.add_argument("--out", metavar="DIR", help="write fit.json, fit.png and fitted.toml here")
+    fit.set_defaults(func=cmd_fit)
     run = sub.add_parser("run", help="run a study file unattended (resumes where it stopped)")
     run.add_argument("study", help="study file (TOML)")
     run.add_argument("--out", metavar="DIR", help="study folder (default: the study file's name + .results)")

@@ -27,6 +27,13 @@ def simulate(case):
     return _simulate_with_checks(case, checks=True)
 
 
+def fit(case_path, data_path):
+    """Kinetic parameters from laboratory runs: an optimizer.fitting.estimate.FitOutcome."""
+    from tubewright.optimizer.fitting.estimate import fit as estimate
+
+    return estimate(case_path, data_path)
+
+
 def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0, pareto: int | None = None,
              progress=None, on_optimum=None):
     """The cheapest (or best) layout of a case: an OptimizationResult whose ``extras`` hold, as asked, the

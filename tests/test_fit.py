@@ -102,3 +102,39 @@ def test_intervals_cover_the_true_parameters_over_seeds(tmp_path):
         covered += (lo <= truth) & (truth <= hi)
     rate = covered / seeds
     assert np.all((rate >= 0.90) & (rate <= 0.99)), rate
+
+
+def test_cli_fit_writes_a_case_that_reproduces_the_fit(tmp_path, capsys):
+    import json
+
+    from tubewright.models import load_case
+    from tubewright.models.simulator import simulate
+    from tubewright.optimizer.cli import main
+
+    case, data, _ = write_lab(tmp_path)
+    out_dir = tmp_path / "out"
+    assert main(["fit", str(case), "--data", str(data), "--out", str(out_dir)]) == 0
+    printed = capsys.readouterr().out
+    assert "95 % interval" in printed and "CAUTION" in printed
+    answer = json.loads((out_dir / "fit.json").read_text())
+    assert answer["status"] == "ok" and (out_dir / "fit.png").stat().st_size > 0
+    first = answer["observations"][0]
+    fitted = load_case(out_dir / "fitted.toml", {"feed.temperature": f"{float(TEMPS[0])!r} K"})
+    x = simulate(fitted, checks=False).summary["conversion"]
+    assert x == pytest.approx(first["fitted"], abs=1e-7)  # the written case is the fitted model
+
+
+def test_cli_fit_bad_data_exit_code_and_json(tmp_path, capsys):
+    from tubewright.optimizer.cli import main
+
+    case, data, _ = write_lab(tmp_path)
+    data.write_text(data.read_text().replace("measured.conversion", "measured.conversoin"))
+    assert main(["fit", str(case), "--data", str(data)]) == 2
+    err = capsys.readouterr().err
+    assert "measured.conversoin" in err and "row 1" in err and str(data) in err
+    case, data, _ = write_lab(tmp_path)
+    assert main(["fit", str(case), "--data", str(data), "--json"]) == 0
+    import json
+
+    answer = json.loads(capsys.readouterr().out)  # exactly one JSON document on stdout
+    assert answer["statistics"]["error_model"] == "stated" and "caution" in answer

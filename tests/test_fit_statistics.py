@@ -136,3 +136,15 @@ def test_lack_of_fit_from_replicates():
         assert out["dof_pure_error"] == 18 and out["dof_lack_of_fit"] == 4
         assert (out["p_value"] < 1e-6) if curved else (out["p_value"] > 0.01)
     assert lack_of_fit(np.ones(5), np.arange(5), 2) is None  # no replicates: no test
+
+
+def test_parameters_of_very_different_magnitude_keep_finite_errors():
+    # Misra1a with b2 expressed in a unit 1e12 times larger (value ~5.5e-16): the same fit, so the same
+    # relative standard errors as certified; a kinetic fit has k ~ 1e-9 beside E_a ~ 1e5 in SI
+    x, y = np.array(MISRA1A_X), np.array(MISRA1A_Y)
+    b, r, J = _fit_approach(x, y, 1.0, np.array([500.0, 1e-4]))
+    scale = 1e-12
+    st = gauss_newton_statistics(["b1", "c2"], np.array([b[0], b[1] * scale]), r, J / np.array([1.0, scale]))
+    cert = MISRA1A_CERTIFIED
+    assert st.standard_errors == pytest.approx([cert["sd"][0], cert["sd"][1] * scale], rel=1e-6)
+    assert not st.identifiability["weak_directions"]

@@ -77,13 +77,16 @@ def gauss_newton_statistics(names, estimates, residuals, jacobian, error_model: 
     ssr = float(r @ r)
     s2 = ssr / dof if dof > 0 else float("nan")
     ident = identifiability(names, theta, J)
-    # (J'J)^-1 through the singular values of J; directions that are not identifiable get an infinite variance
-    _, sv, vt = np.linalg.svd(J, full_matrices=False)
+    # (J'J)^-1 = D (S'S)^-1 D with S = J D scaled by the parameter values (parameters of very different
+    # magnitudes, as k and E_a, would otherwise look rank-deficient), through the singular values of S;
+    # directions that are not identifiable get an infinite variance
+    d = np.where(np.abs(theta) > 0, np.abs(theta), 1.0)
+    _, sv, vt = np.linalg.svd(J * d, full_matrices=False)
     inv_sv2 = np.where(sv > RANK_TOLERANCE * max(sv.max(initial=0.0), 1e-300), 1.0 / np.maximum(sv, 1e-300) ** 2,
                        np.inf)
     with np.errstate(invalid="ignore"):
-        unscaled = (vt.T * inv_sv2) @ vt if np.all(np.isfinite(inv_sv2)) else _infinite_where_weak(vt, inv_sv2)
-    cov = unscaled * (s2 if error_model == "estimated" else 1.0)
+        scaled = (vt.T * inv_sv2) @ vt if np.all(np.isfinite(inv_sv2)) else _infinite_where_weak(vt, inv_sv2)
+    cov = d[:, None] * scaled * d[None, :] * (s2 if error_model == "estimated" else 1.0)
     se = np.sqrt(np.diag(cov))
     q = stats.t.ppf(0.5 + level / 2, dof) if error_model == "estimated" else stats.norm.ppf(0.5 + level / 2)
     intervals = np.column_stack([theta - q * se, theta + q * se])

@@ -59,7 +59,7 @@ def write_optimum_case(path: Path, case, design: dict, overrides: dict, title: s
     tables = optimum_tables(case, design, overrides)
     lines = ["# The optimum found by tubewright optimize: the base case by include, the design fixed.",
              "# Screening estimate only: verify with detailed models, hazard studies and licensed engineers.",
-             f"include = {_value(str(Path(case.source).resolve()))}", f"title = {_value(title)}"]
+             f"include = {toml_value(str(Path(case.source).resolve()))}", f"title = {toml_value(title)}"]
     lines += _tables(tables, [])
     path.write_text("\n".join(lines) + "\n", encoding="utf-8")
     return path
@@ -75,7 +75,7 @@ def _tables(tables: dict, prefix: list) -> list:
     plain = {k: v for k, v in tables.items() if not isinstance(v, dict)}
     if prefix and plain:
         lines.append(f"\n[{'.'.join(_key(p) for p in prefix)}]")
-    lines += [f"{_key(k)} = {_value(v)}" for k, v in plain.items()]
+    lines += [f"{_key(k)} = {toml_value(v)}" for k, v in plain.items()]
     for k, v in tables.items():
         if isinstance(v, dict):
             subtables += _tables(v, prefix + [k])
@@ -86,7 +86,7 @@ def _key(k: str) -> str:
     return k if k.replace("_", "").replace("-", "").isalnum() else json.dumps(k)
 
 
-def _value(v) -> str:
+def toml_value(v) -> str:
     if isinstance(v, bool):
         return "true" if v else "false"
     if isinstance(v, int):
@@ -98,7 +98,7 @@ def _value(v) -> str:
     if isinstance(v, str):
         return json.dumps(v)  # a TOML basic string is a JSON string for these characters
     if isinstance(v, (list, tuple)):
-        return "[" + ", ".join(_value(x) for x in v) + "]"
+        return "[" + ", ".join(toml_value(x) for x in v) + "]"
     if isinstance(v, dict):
-        return "{ " + ", ".join(f"{_key(k)} = {_value(x)}" for k, x in v.items()) + " }"
+        return "{ " + ", ".join(f"{_key(k)} = {toml_value(x)}" for k, x in v.items()) + " }"
     raise TypeError(f"no TOML form for {type(v).__name__}")

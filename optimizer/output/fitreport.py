@@ -1,0 +1,131 @@
+"""The kinetics fit for people and files: the terminal table, the parity and residual plot, and the fitted
+case (the fitting case by include, the fitted k_ref and E_a on top)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from tubewright.optimizer.output.canvas import new_figure
+from tubewright.optimizer.output.casewriter import toml_text, toml_value
+
+
+def _shown(name: str, value: float) -> str:
+    if name.endswith("activation_energy"):
+        return f"{value / 1000:.5g} kJ/mol"
+    return f"{value:.5g}"
+
+
+def fit_lines(out) -> list[str]:
+    """The estimates with intervals, the correlation matrix, the fit statistics, warnings and excluded runs."""
+    lines = [f"Kinetics fit: {out.status} ({out.reason}): {out.message}"]
+    if out.excluded:
+        lines.append(f"  runs left out ({len(out.excluded)}):")
+        lines += [f"    row {e['row']}: {e['reason']}" for e in out.excluded]
+    st = out.statistics
+    if st is None:
+        return lines
+    t_fit = out.reference_temperature
+    lines.append(f"  reference temperature of the Arrhenius laws: {t_fit:.2f} K ({t_fit - 273.15:.2f} degC)")
+    width = max(len(n) for n in st.names) + 14
+    level = f"{100 * st.level:g} % interval"
+    lines.append(f"  {'parameter':<{width}}{'estimate':>16}{'std. error':>16}   {level}")
+    for name, est, se, (lo, hi) in zip(st.names, st.estimates, st.standard_errors, st.intervals):
+        label = f"{name} (k at {t_fit:.1f} K)" if name.endswith("k_ref") else name
+        lines.append(f"  {label:<{width}}{_shown(name, est):>16}{_shown(name, se):>16}   "
+                     f"[{_shown(name, lo)}, {_shown(name, hi)}]")
+    lines.append("  correlation:")
+    for name, row in zip(st.names, st.correlation):
+        lines.append(f"    {name:<{width - 2}}" + "".join(f"{c:>9.3f}" for c in row))
+    lines.append(f"  {st.observations} measurements, {st.dof} degrees of freedom, weighted sum of squares "
+                 f"{st.sum_of_squares:.4g}, residual variance {st.residual_variance:.4g} ({st.error_model} errors"
+                 f"{': 1 expected' if st.error_model == 'stated' else ''})")
+    if st.variance_test is not None:
+        vt = st.variance_test
+        lines.append(f"  chi-square test of the stated errors: p = {vt['p_value_too_large']:.3g} (too large), "
+                     f"{vt['p_value_too_small']:.3g} (too small)")
+    if out.lack_of_fit is not None:
+        lf = out.lack_of_fit
+        lines.append(f"  lack of fit against the replicates: F = {lf['F']:.3g} with ({lf['dof_lack_of_fit']}, "
+                     f"{lf['dof_pure_error']}) degrees of freedom, p = {lf['p_value']:.3g}")
+    lines.append(f"  identifiability: condition number of the scaled sensitivities "
+                 f"{st.identifiability['condition_number']:.3g}")
+    lines.append("  in the case's own terms: " + "; ".join(
+        f"{r}: k_ref = {v['k_ref']:.6g} at {v['t_ref']:.2f} K, E_a = {v['activation_energy'] / 1000:.6g} kJ/mol"
+        for r, v in out.case_values.items()))
+    for w in out.warnings:
+        lines.append(f"  WARNING: {w}")
+    return lines
+
+
+def plot_fit(out, path: Path) -> Path:
+    """Parity (fitted against measured, per quantity) and the weighted residuals per run."""
+    fig = new_figure((10, 4.2))
+    parity, resid = fig.add_subplot(1, 2, 1), fig.add_subplot(1, 2, 2)
+    quantities = sorted({o["quantity"] for o in out.residuals})
+    for q in quantities:
+        rows = [o for o in out.residuals if o["quantity"] == q]
+        measured = [o["measured"] for o in rows]
+        fitted = [o["fitted"] for o in rows]
+        parity.plot(measured, fitted, "o", label=q)
+        resid.plot([o["row"] for o in rows], [(f - m) / o["sigma"] for f, m, o in zip(fitted, measured, rows)], "o",
+                   label=q)
+    every = [o["measured"] for o in out.residuals] + [o["fitted"] for o in out.residuals]
+    if every:
+        lo, hi = min(every), max(every)
+        parity.plot([lo, hi], [lo, hi], "-", color="0.5", linewidth=1)
+    parity.set_xlabel("measured (SI)")
+    parity.set_ylabel("fitted (SI)")
+    parity.set_title("parity")
+    parity.legend(fontsize=8)
+    for level in (-2, 0, 2):
+        resid.axhline(level, color="0.6", linewidth=1, linestyle="-" if level == 0 else "--")
+    resid.set_xlabel("run (row of the data file)")
+    resid.set_ylabel("(fitted - measured) / sigma")
+    resid.set_title("weighted residuals (dashed: +-2)")
+    fig.suptitle("Kinetics fit - screening estimate only; verify before use", fontsize=9)
+    fig.tight_layout()
+    fig.savefig(path, dpi=110)
+    return Path(path)
+
+
+def write_fitted_case(path: Path, case, out) -> Path:
+    """The fitting case by include with the fitted kinetic parameters on top (the case's own T_ref)."""
+    reactions = {name: {"k_ref": f"{v['k_ref']!r} {_k_unit(case, name)}",
+                        "activation_energy": f"{v['activation_energy']!r} J/mol"}
+                 for name, v in out.case_values.items()}
+    st = out.statistics
+    lines = ["# Kinetics fitted by tubewright fit: the fitting case by include, the fitted values on top.",
+             "# Screening estimate only: verify with detailed models, hazard studies and licensed engineers.",
+             "# To design with them, copy the [chemistry.reactions.*] values below into the design case.",
+             f"# Fitted about {float(out.reference_temperature)!r} K; estimates, standard errors and correlation:"]
+    for name, est, se in zip(st.names, st.estimates, st.standard_errors):
+        lines.append(f"#   {name} = {float(est)!r} (standard error {float(se)!r})")
+    for row in st.correlation:
+        lines.append("#   " + " ".join(f"{c: .4f}" for c in row))
+    lines += [f"include = {toml_value(str(Path(case.source).resolve()))}",
+              f"title = {toml_value('Fitted: ' + (case.title or Path(case.source).stem))}", ""]
+    text = "\n".join(lines) + "\n" + toml_text({"chemistry": {"reactions": reactions}})
+    Path(path).write_text(text, encoding="utf-8")
+    return Path(path)
+
+
+def _k_unit(case, reaction: str) -> str:
+    """The SI unit of k_ref written as a case file reads it: rate / driving^n, as plain powers ("m^3/mol/s")."""
+    rx = next(r for r in case.reactions if r.name == reaction)
+    n = sum(rx.orders.values())
+    powers = {"mol": 1.0, "m": -3.0, "kg": 0.0, "s": -1.0, "Pa": 0.0}  # mol/m^3/s
+    if rx.basis != "volume":
+        powers.update(m=0.0, kg=-1.0)  # mol/kg/s
+    if rx.driving == "concentration":
+        powers["mol"] -= n
+        powers["m"] += 3.0 * n
+    else:
+        powers["Pa"] -= n
+    up = [(u, p) for u, p in powers.items() if p > 1e-12]
+    down = [(u, -p) for u, p in powers.items() if p < -1e-12]
+
+    def power(u, p):
+        return u if abs(p - 1.0) < 1e-12 else f"{u}^{p:g}"
+
+    numerator = "*".join(power(u, p) for u, p in up) or "1"
+    return numerator + "".join(f"/{power(u, p)}" for u, p in down)

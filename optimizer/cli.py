@@ -418,6 +418,9 @@ def cmd_run(args) -> int:
 def cmd_fit(args) -> int:
     from tubewright.optimizer.output.fitreport import fit_lines
 
+    if args.design and not args.out:
+        raise option_error("--design", "needs --out DIR (the design case is written there)")
+
     res = verbs.fit(args.case, args.data)
     files = {}
     if args.out:
@@ -428,6 +431,12 @@ def cmd_fit(args) -> int:
         if res.statistics is not None:
             files["fitted_case_toml"] = str(write_fitted_case(out / "fitted.toml", load_case(args.case), res))
             files["fit_png"] = str(plot_fit(res, out / "fit.png"))
+            if args.design:
+                from tubewright.optimizer.output.fitreport import write_design_case
+
+                written = write_design_case(out / "design-fitted.toml", load_case(args.design), res)
+                load_case(written)  # what was written must read back as a case
+                files["design_case_toml"] = str(written)
         files["fit_json"] = str(out / "fit.json")
         answer = finite({"case": str(args.case), "data": str(args.data), **res.as_dict(), "files": files,
                          "caution": CAUTION})
@@ -518,6 +527,8 @@ def build_parser() -> argparse.ArgumentParser:
                      help='runs (CSV or Parquet): columns "KEY [UNIT]" of conditions and measured.* quantities')
     fit.add_argument("--json", action="store_true", help="print the result as one JSON object")
     fit.add_argument("--out", metavar="DIR", help="write fit.json, fit.png and fitted.toml here")
+    fit.add_argument("--design", metavar="CASE", help="with --out: also write design-fitted.toml, this design case "
+                     "with the fitted kinetics and their correlated uncertainty as [uncertain] (for screen)")
     fit.set_defaults(func=cmd_fit)
     run = sub.add_parser("run", help="run a study file unattended (resumes where it stopped)")
     run.add_argument("study", help="study file (TOML)")

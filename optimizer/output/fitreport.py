@@ -109,6 +109,45 @@ def write_fitted_case(path: Path, case, out) -> Path:
     return Path(path)
 
 
+def write_design_case(path: Path, design, out) -> Path:
+    """A design case by include with the fitted kinetics on top and their uncertainty as a correlated
+    [uncertain] set (multivariate normal of k(T_fit) and E_a, optimizer.screening.uncertain), so that
+    ``screen`` and ``optimize`` use what the data say. The design case must have the fitted reactions."""
+    from tubewright.models.backend import NUMPY
+    from tubewright.models.errors import CaseError
+    from tubewright.models.reactions import arrhenius
+
+    names = {rx.name for rx in design.reactions}
+    missing = sorted(set(out.case_values) - names)
+    if missing:
+        raise CaseError(design.source, "chemistry.reactions", f"has no reaction {', '.join(missing)} (fitted in the "
+                        "laboratory case): the design case for --design needs the same reactions")
+    st = out.statistics
+    reactions = {}
+    for name, v in out.case_values.items():
+        rx = next(r for r in design.reactions if r.name == name)
+        # the design case's own T_ref: k_ref there follows from k(T_fit) and E_a
+        k_fit = out.estimates.get(f"{name}.k_ref")
+        k_ref = v["k_ref"] if k_fit is None else arrhenius(NUMPY, k_fit, v["activation_energy"],
+                                                             out.reference_temperature, rx.t_ref)
+        reactions[name] = {"k_ref": f"{float(k_ref)!r} {_k_unit(design, name)}",
+                           "activation_energy": f"{float(v['activation_energy'])!r} J/mol"}
+    paths = [f"chemistry.reactions.{n.rsplit('.', 1)[0]}.{n.rsplit('.', 1)[1]}" for n in st.names]
+    block = {"distribution": "multivariate_normal", "parameters": paths,
+             "mean": [float(x) for x in st.estimates], "covariance": [[float(c) for c in row] for row in st.covariance]}
+    if any(p.endswith(".k_ref") for p in paths):
+        block["reference_temperature"] = f"{float(out.reference_temperature)!r} K"
+    lines = ["# The design case by include with the kinetics fitted by tubewright fit on top, and their",
+             "# uncertainty (multivariate normal of the fitted parameters, correlations included) in [uncertain].",
+             "# Screening estimate only: verify with detailed models, hazard studies and licensed engineers.",
+             f"include = {toml_value(str(Path(design.source).resolve()))}",
+             f"title = {toml_value('Fitted kinetics: ' + (design.title or Path(design.source).stem))}", ""]
+    text = "\n".join(lines) + "\n" + toml_text({"chemistry": {"reactions": reactions},
+                                                 "uncertain": {"fitted_kinetics": block}})
+    Path(path).write_text(text, encoding="utf-8")
+    return Path(path)
+
+
 def _k_unit(case, reaction: str) -> str:
     """The SI unit of k_ref written as a case file reads it: rate / driving^n, as plain powers ("m^3/mol/s")."""
     rx = next(r for r in case.reactions if r.name == reaction)

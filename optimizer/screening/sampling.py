@@ -30,5 +30,15 @@ def sample(problem: dict, method: str, n: int, seed: int) -> np.ndarray:
 
 
 def to_parameters(items, unit_x: np.ndarray) -> dict:
-    """Unit samples -> {path: SI values} (one column per uncertain item)."""
-    return {u.path: u.to_case_value(u.from_unit(unit_x[:, j])) for j, u in enumerate(items)}
+    """Unit samples -> {path: SI values} (one column per uncertain item; the factors of a correlated set
+    are mapped together)."""
+    out, sets = {}, {}
+    for j, u in enumerate(items):
+        if u.joint is None:
+            out[u.path] = u.to_case_value(u.from_unit(unit_x[:, j]))
+        else:
+            sets.setdefault(u.joint.name, (u.joint, []))[1].append(j)
+    for joint, columns in sets.values():
+        z = np.column_stack([items[j].from_unit(unit_x[:, j]) for j in columns])
+        out.update(joint.case_values(z))
+    return out

@@ -8,6 +8,21 @@ problem plus the mapping back to case parameters (models.parameters paths).
     median = 1.0                     # the arguments of the distribution, see ARGUMENTS
     sigma = 0.15
     group = "kinetics"               # optional: screen a group as one factor
+
+Correlated inputs (a fitted parameter set, written by ``tubewright fit --design``):
+
+    [uncertain.NAME]
+    distribution = "multivariate_normal"
+    parameters = ["chemistry.reactions.r1.k_ref", "chemistry.reactions.r1.activation_energy"]
+    mean = [0.0098, 50800.0]         # SI
+    covariance = [[1.5e-8, -0.046], [-0.046, 1.13e6]]
+    reference_temperature = "349.5 K"   # optional: the k_ref entries are k at this temperature
+
+Method: sampling in decorrelated coordinates. The set becomes one independent standard-normal factor per
+parameter (NAME[1], NAME[2], ...), theta = mean + L z with L the Cholesky factor of the covariance, and the
+factors form one group named NAME, so Morris and Sobol rank the correlated set as a whole: individual
+indices of dependent inputs are not defined without further choices, the group's are. A k_ref entry given at
+a reference temperature is carried to the case's own T_ref through the sampled E_a of the same reaction.
 """
 
 from __future__ import annotations
@@ -30,6 +45,31 @@ ARGUMENTS = {
 
 
 @dataclass(frozen=True)
+class CorrelatedSet:
+    """A multivariate normal over several case parameters (see the module's docstring)."""
+
+    name: str
+    paths: tuple
+    mean: np.ndarray
+    cholesky: np.ndarray
+    reference_temperature: float | None
+
+    rereference: tuple = ()  # (k_ref path, the case's T_ref, E_a path in the set or the case's E_a)
+
+    def case_values(self, z: np.ndarray) -> dict:
+        """Standard-normal coordinates z (samples x parameters) -> {path: SI values}."""
+        from tubewright.models.backend import NUMPY
+        from tubewright.models.reactions import arrhenius
+
+        theta = self.mean + np.asarray(z, dtype=float) @ self.cholesky.T
+        values = {p: theta[:, k] for k, p in enumerate(self.paths)}
+        for path, t_ref, e_act in self.rereference:
+            e = values[e_act] if isinstance(e_act, str) else e_act
+            values[path] = arrhenius(NUMPY, values[path], e, self.reference_temperature, t_ref)
+        return values
+
+
+@dataclass(frozen=True)
 class Uncertain:
     name: str
     path: str
@@ -38,6 +78,7 @@ class Uncertain:
     relative: bool
     group: str | None
     base: float
+    joint: CorrelatedSet | None = None  # a factor of a correlated set: its values come from the whole set
 
     def from_unit(self, u):
         """Inverse cumulative distribution: unit-hypercube coordinates ``u`` -> sampled values (multipliers when
@@ -72,6 +113,9 @@ def read_uncertain(case) -> list[Uncertain]:
     top = Table(raw, source, "uncertain")
     for name, spec in raw.items():
         top.used.add(name)
+        if isinstance(spec, dict) and spec.get("distribution") == "multivariate_normal":
+            out.extend(_correlated(case, name, spec))
+            continue
         t = Table(spec, source, f"uncertain.{name}",
                   {"parameter", "distribution", "relative", "group", *{a for v in ARGUMENTS.values() for a in v}})
         path = t.text("parameter")
@@ -105,6 +149,51 @@ def read_uncertain(case) -> list[Uncertain]:
     if len({u.path for u in out}) != len(out):
         raise CaseError(source, "uncertain", "two entries name the same parameter")
     return out
+
+
+def _correlated(case, name, spec) -> list[Uncertain]:
+    source = case.source
+    t = Table(spec, source, f"uncertain.{name}",
+              {"distribution", "parameters", "mean", "covariance", "reference_temperature"})
+    t.raw("distribution")
+    paths = t.raw("parameters", required=True)
+    if not isinstance(paths, list) or not paths or not all(isinstance(p, str) for p in paths):
+        raise CaseError(source, t.key("parameters"), "must be a list of parameter paths")
+    if len(set(paths)) != len(paths):
+        raise CaseError(source, t.key("parameters"), "names a parameter twice")
+    for p in paths:
+        si_unit(case, p, source, t.key("parameters"))
+    n = len(paths)
+    mean, cov = t.raw("mean", required=True), t.raw("covariance", required=True)
+    try:
+        mean = np.array(mean, dtype=float).reshape(n)
+        cov = np.array(cov, dtype=float).reshape(n, n)
+    except (TypeError, ValueError):
+        raise CaseError(source, t.key("covariance"), f"mean must be {n} numbers and covariance {n} x {n} "
+                        "numbers (SI)") from None
+    if not (np.all(np.isfinite(mean)) and np.all(np.isfinite(cov))):
+        raise CaseError(source, t.key("covariance"), "mean and covariance must be finite numbers")
+    if not np.allclose(cov, cov.T, rtol=1e-9, atol=0.0):
+        raise CaseError(source, t.key("covariance"), "must be symmetric")
+    try:
+        chol = np.linalg.cholesky(cov)
+    except np.linalg.LinAlgError:
+        raise CaseError(source, t.key("covariance"), "must be positive definite (a parameter that the data do "
+                        "not determine has no finite variance: fix it instead)") from None
+    t_ref = t.quantity("reference_temperature", "temperature", required=False, minimum=100.0, maximum=5000.0)
+    if t_ref is not None and not any(p.endswith(".k_ref") for p in paths):
+        raise CaseError(source, t.key("reference_temperature"), "applies to k_ref entries; the set has none")
+    t.finish()
+    rereference = []
+    if t_ref is not None:
+        for p in paths:
+            if p.endswith(".k_ref"):
+                rx = next(r for r in case.reactions if r.name == p.split(".")[2])
+                e_path = p[: -len("k_ref")] + "activation_energy"
+                rereference.append((p, rx.t_ref, e_path if e_path in paths else rx.activation_energy))
+    joint = CorrelatedSet(name, tuple(paths), mean, chol, t_ref, tuple(rereference))
+    return [Uncertain(f"{name}[{k + 1}]", p, "normal", {"mean": 0.0, "std": 1.0}, False, name,
+                      float(base_value(case, p)), joint) for k, p in enumerate(paths)]
 
 
 def _check_arguments(dist, a, source, key):

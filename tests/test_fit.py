@@ -138,3 +138,31 @@ def test_cli_fit_bad_data_exit_code_and_json(tmp_path, capsys):
 
     answer = json.loads(capsys.readouterr().out)  # exactly one JSON document on stdout
     assert answer["statistics"]["error_model"] == "stated" and "caution" in answer
+
+
+def test_estimated_error_model_scales_the_covariance_by_the_residual_variance(tmp_path):
+    # Gauss-Newton: Cov = s^2 (J'J)^-1 with the errors estimated, (J'J)^-1 with them stated (same weights)
+    case, data, _ = write_lab(tmp_path)
+    stated = fit(case, data).statistics
+    case, data, _ = write_lab(tmp_path, fit_section={"parameters": {"r1": {"k_ref": True, "activation_energy": True}},
+                                                     "errors": {"conversion": SIGMA}, "error_model": "estimated"})
+    estimated = fit(case, data).statistics
+    assert estimated.covariance == pytest.approx(stated.covariance * stated.residual_variance, rel=1e-6)
+    assert estimated.variance_test is None and stated.variance_test is not None
+
+
+@pytest.mark.parametrize("section,key", [
+    ({"parameters": {"r9": {"k_ref": True}}, "errors": {"conversion": SIGMA}}, "fit.parameters.r9"),
+    ({"parameters": {"r1": {"k_ref": True}}, "errors": {"outlet_flow": "2 %"}}, "fit.errors.conversion"),
+    ({"parameters": {"r1": {"k_ref": True}}, "errors": {"conversion": "150 %"}}, "fit.errors.conversion"),
+    ({"parameters": {"r1": {"k_ref": {"within": 0.5}}}, "errors": {"conversion": SIGMA}}, "within"),
+    ({"parameters": {"r1": {"orders": True}}, "errors": {"conversion": SIGMA}}, "fit.parameters.r1.orders"),
+    ({"parameters": {}, "errors": {"conversion": SIGMA}}, "fit.parameters"),
+])
+def test_bad_fit_sections_are_refused_with_their_key(tmp_path, section, key):
+    from tubewright.models import CaseError
+
+    case, data, _ = write_lab(tmp_path, fit_section=section)
+    with pytest.raises(CaseError) as info:
+        fit(case, data)
+    assert key in str(info.value)

@@ -16,6 +16,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 from tubewright.models.backend import NUMPY, pyomo_backend
+from tubewright.models.errors import CaseError
 from tubewright.models.outcomes import Reason, Status
 from tubewright.models.reactions import arrhenius
 from tubewright.models.summary import conversion
@@ -140,8 +141,6 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     for run in runs:
         for name in run.measured:
             if name.partition(".")[0] not in spec.errors:
-                from tubewright.models.errors import CaseError
-
                 raise CaseError(str(case_path), f"fit.errors.{name.partition('.')[0]}",
                                 f"missing: the data ({data_path}) measure {name}; state its error (absolute, or "
                                 'relative as "2 %")')

@@ -166,3 +166,16 @@ def test_bad_fit_sections_are_refused_with_their_key(tmp_path, section, key):
     with pytest.raises(CaseError) as info:
         fit(case, data)
     assert key in str(info.value)
+
+
+def test_multistart_keeps_the_best_optimum_and_reports_every_start(tmp_path):
+    section = {"parameters": {"r1": {"k_ref": True, "activation_energy": True}}, "errors": {"conversion": SIGMA},
+               "starts": 3, "seed": 1}
+    case, data, _ = write_lab(tmp_path, fit_section=section)
+    many = fit(case, data)
+    case, data, _ = write_lab(tmp_path)
+    one = fit(case, data)
+    starts = many.solver["starts"]
+    assert starts["asked"] == 3 and starts["ran"] == 3 and starts["converged"] >= 2
+    assert many.statistics.sum_of_squares <= one.statistics.sum_of_squares * (1 + 1e-6)
+    assert list(many.estimates.values()) == pytest.approx(list(one.estimates.values()), rel=1e-5)  # one minimum

@@ -57,7 +57,7 @@ class FitOutcome:
                 "solver": self.solver, "warnings": self.warnings}
 
 
-def _kinetics_at(case, spec, t_fit, values, backend):
+def kinetics_at(case, spec, t_fit, values, backend):
     """The case's reactions with the free parameters at ``values`` (fitted coordinates), as numbers or
     Pyomo expressions: {reaction index: {"k_ref": k at the case's T_ref, "activation_energy": E_a}}."""
     out = {}
@@ -72,7 +72,7 @@ def _kinetics_at(case, spec, t_fit, values, backend):
     return kinetics
 
 
-def _with_kinetics(case, kinetics):
+def with_kinetics(case, kinetics):
     reactions = list(case.reactions)
     for j, entry in kinetics.items():
         reactions[j] = replace(reactions[j], **entry)
@@ -154,7 +154,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     # the runs that the model can simulate at the start; the others are listed, not fitted
     usable = []
     for run in runs:
-        start_case = _with_kinetics(run.case, _kinetics_at(run.case, spec, t_fit, theta0, NUMPY))
+        start_case = with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, theta0, NUMPY))
         sim = simulate(start_case, checks=False)
         if not sim.ok:
             out.excluded.append({"row": run.row, "reason": f"cannot be simulated at the starting parameters: "
@@ -170,8 +170,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
 
     # IPOPT works on ln k (rate constants span decades; k = exp(ln k) stays positive) and on E_a
     is_k = np.array([p.kind == "k_ref" for p in spec.parameters])
-    internal0 = np.where(is_k, np.log(theta0), theta0)
-    low_i, up_i = np.where(is_k, np.log(lower), lower), np.where(is_k, np.log(upper), upper)
+    internal0, low_i, up_i = (on_rate_constants(a, is_k, np.log) for a in (theta0, lower, upper))
     m = pyo.ConcreteModel(name="fit")
     m.theta = pyo.Var(range(len(names)), bounds=lambda m, i: (low_i[i], up_i[i]), initialize=lambda m, i: internal0[i])
     values = [pyo.exp(m.theta[k]) if is_k[k] else m.theta[k] for k in range(len(names))]
@@ -179,7 +178,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     observations, terms, x_scale, g_scale = [], [], {}, {}
     for i, (run, sim) in enumerate(usable):
         b = m.run[i]
-        kinetics = _kinetics_at(run.case, spec, t_fit, values, pyomo_backend())
+        kinetics = kinetics_at(run.case, spec, t_fit, values, pyomo_backend())
         nfe_i = int(nfe or run.case.numerics.finite_elements)
         ncp_i = int(ncp or run.case.numerics.collocation_points)
         _, pcase = build_tube_model(run.case, DesignSpec(), nfe_i, ncp_i, block=b, kinetics=kinetics)
@@ -204,9 +203,11 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     opts = {"max_iter": 500, "tol": 1e-9, "mumps_pivtol": 1e-4, "mumps_pivot_order": num.mumps_pivot_order,
             "mumps_scaling": num.mumps_scaling, "mumps_permuting_scaling": num.mumps_permuting_scaling}
     solved = nlp.solve(options=opts, scaling=scaling)
+    if spec.starts > 1:
+        solved = _more_starts(m, nlp, usable, spec, t_fit, (low_i, up_i, is_k), solved, opts, scaling, out)
     theta = np.array([pyo.value(v) for v in values])
     out.solver = {**solved.as_dict(), "variables": nlp.n, "ipopt_variables": nlp.times["ipopt_variables"],
-                  "forms": nlp.times["forms"], "runs": len(usable)}
+                  "forms": nlp.times["forms"], "runs": len(usable), **out.solver}
     if not solved.success:
         out.message = f"IPOPT did not converge: {solved.status_name} ({solved.message})"
         return out
@@ -229,7 +230,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
         out.warnings.append(f"lack of fit against the replicates (F = {out.lack_of_fit['F']:.3g}, "
                             f"p = {out.lack_of_fit['p_value']:.2g}): the model misses systematic features of the data")
     out.estimates = dict(zip(names, map(float, theta)))
-    kin = _kinetics_at(base, spec, t_fit, theta, NUMPY)
+    kin = kinetics_at(base, spec, t_fit, theta, NUMPY)
     out.case_values = {base.reactions[j].name: {"k_ref": float(e["k_ref"]),
                                                 "activation_energy": float(e["activation_energy"]),
                                                 "t_ref": float(base.reactions[j].t_ref)} for j, e in kin.items()}
@@ -242,13 +243,69 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     return out
 
 
+def on_rate_constants(values, is_k, fn):
+    """``fn`` (ln or exp) applied to the rate-constant entries only (E_a stays as it is)."""
+    out = np.array(values, dtype=float)
+    out[is_k] = fn(out[is_k])
+    return out
+
+
+MAX_DRAWS_PER_START = 20  # random starts whose runs cannot all be simulated are drawn again, up to this many
+
+
+def _more_starts(m, nlp, usable, spec, t_fit, box, first, opts, scaling, out):
+    """Solve again from ``spec.starts - 1`` random points (seeded; ln k and E_a uniform within the bounds),
+    each run's block initialised from its simulation there; keep the best converged optimum."""
+    from tubewright.models.simulator import simulate
+    from tubewright.optimizer.design.collocation import initialise_from_simulation
+
+    low, up, is_k = box
+    rng = np.random.default_rng(spec.seed)
+    best, best_x = first, [v.value for v in nlp.variables]
+    objectives = [first.objective if first.success else None]
+    drawn = 0
+    while len(objectives) < spec.starts and drawn < MAX_DRAWS_PER_START * spec.starts:
+        drawn += 1
+        internal = low + rng.random(len(low)) * (up - low)
+        kinetics_values = on_rate_constants(internal, is_k, np.exp)
+        sims = []
+        for run, _ in usable:
+            sim = simulate(with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, kinetics_values, NUMPY)),
+                           checks=False)
+            if not sim.ok:
+                break
+            sims.append(sim)
+        if len(sims) < len(usable):
+            continue  # a run cannot be simulated from this start: draw another
+        for k, v in enumerate(m.theta.values()):
+            v.set_value(float(internal[k]))
+        for i, ((run, _), sim) in enumerate(zip(usable, sims)):
+            initialise_from_simulation(m.run[i], run.case, sim)
+        solved = nlp.solve(options=opts, scaling=scaling)
+        objectives.append(solved.objective if solved.success else None)
+        if solved.success and (not best.success or solved.objective < best.objective):
+            best, best_x = solved, [v.value for v in nlp.variables]
+    for v, x in zip(nlp.variables, best_x):
+        v.set_value(x, skip_validation=True)
+    found = [o for o in objectives if o is not None]
+    out.solver["starts"] = {"asked": spec.starts, "ran": len(objectives), "converged": len(found),
+                            "drawn": drawn + 1, "objectives": objectives, "seed": spec.seed}
+    if len(objectives) < spec.starts:
+        out.warnings.append(f"multi-start: {len(objectives)} of {spec.starts} starts ran; the other random points "
+                            "could not be simulated for every run")
+    if found and max(found) - min(found) > 1e-6 * max(1.0, abs(min(found))):
+        out.warnings.append(f"multi-start: the starts reached different optima (objective {min(found):.6g} to "
+                            f"{max(found):.6g}); the best is kept")
+    return best
+
+
 def _residuals_and_jacobian(usable, observations, spec, t_fit, theta):
     """Weighted residuals at ``theta`` and their Jacobian by central differences, both from simulations."""
     def residuals_at(values):
         r = []
         for run, _ in usable:
             names = list(run.measured)
-            case = _with_kinetics(run.case, _kinetics_at(run.case, spec, t_fit, values, NUMPY))
+            case = with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, values, NUMPY))
             pred, _ = simulate_predictions(case, names)
             if pred is None:
                 return None, run.row

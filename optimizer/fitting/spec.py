@@ -5,6 +5,8 @@ the reference temperature of the Arrhenius laws.
     error_model = "stated"            # or "estimated": the errors below are then relative weights, and a
                                       # common variance factor is estimated from the residuals
     reference_temperature = "600 K"   # optional; default 1/mean(1/T_feed) over the runs
+    starts = 4                        # optional multi-start: also from 3 random points within the bounds
+    seed = 0                          #   (k log-uniform, E_a uniform), the best optimum kept
     [fit.parameters.REACTION]
     k_ref = { within = 100 }          # free within start/100 .. start*100 (start: the case's value)
     activation_energy = { min = "40 kJ/mol", max = "200 kJ/mol" }   # or true: 0.2x .. 5x the start
@@ -49,13 +51,16 @@ class FitSpec:
     errors: dict  # measured kind -> ("absolute", SI sigma) or ("relative", fraction)
     error_model: str
     reference_temperature: float | None  # None: from the runs
+    starts: int = 1
+    seed: int = 0
 
 
 def read_fit(case) -> FitSpec:
     source = case.source
     if "fit" not in case.raw:
         raise CaseError(source, "fit", "missing: the case needs a [fit] section naming the free parameters")
-    t = Table(case.raw["fit"], source, "fit", {"error_model", "reference_temperature", "parameters", "errors"})
+    t = Table(case.raw["fit"], source, "fit",
+              {"error_model", "reference_temperature", "parameters", "errors", "starts", "seed"})
     error_model = t.choice("error_model", ("stated", "estimated"), default="stated")
     t_ref = t.quantity("reference_temperature", "temperature", required=False, minimum=100.0, maximum=5000.0)
     names = [rx.name for rx in case.reactions]
@@ -82,8 +87,10 @@ def read_fit(case) -> FitSpec:
             raise CaseError(source, et.key(kind), f"unknown measured quantity{suggest(kind, MEASURED)}; allowed: "
                             f"{', '.join(MEASURED)}")
         errors[kind] = _error(value, kind, source, et.key(kind))
+    starts = t.number("starts", default=1, low=1, high=100, integer=True)
+    seed = t.number("seed", default=0, low=0, high=2**31 - 1, integer=True)
     t.finish()
-    return FitSpec(tuple(params), errors, error_model, t_ref)
+    return FitSpec(tuple(params), errors, error_model, t_ref, starts, seed)
 
 
 def _parameter(rt: Table, kind: str, rname: str, j: int, rx) -> FitParameter:

@@ -63,20 +63,20 @@ def least_squares_fit(runs_path: Path):
     is_k = np.array([p.kind == "k_ref" for p in spec.parameters])
 
     def residuals(internal):
-        values = np.where(is_k, np.exp(internal), internal)
+        values = estimate.on_rate_constants(internal, is_k, np.exp)
         out = []
         for run in runs:
             names = list(run.measured)
-            case = estimate._with_kinetics(run.case, estimate._kinetics_at(run.case, spec, t_fit, values, np))
+            case = estimate.with_kinetics(run.case, estimate.kinetics_at(run.case, spec, t_fit, values, np))
             pred, _ = estimate.simulate_predictions(case, names)
             if pred is None:
                 return np.full(sum(len(r.measured) for r in runs), 1e3)
             out += [(p - run.measured[q]) / estimate.sigma_of(spec, q, run.measured[q]) for p, q in zip(pred, names)]
         return np.array(out)
 
-    start = np.where(is_k, np.log(theta0), theta0)
+    start = estimate.on_rate_constants(theta0, is_k, np.log)
     sol = least_squares(residuals, start, x_scale=np.where(is_k, 1.0, np.abs(theta0)), xtol=1e-10, ftol=1e-10)
-    return np.where(is_k, np.exp(sol.x), sol.x), sol.nfev
+    return estimate.on_rate_constants(sol.x, is_k, np.exp), sol.nfev
 
 
 def main():

@@ -26,10 +26,24 @@ _TERM = re.compile(r"^\s*(?:(\d+(?:\.\d*)?|\.\d+)\s*(?=[A-Za-z_(\[])|(\d+(?:\.\d
 
 def rate_units(basis: str, driving: str, order: float) -> str:
     """The SI unit (pint string) of k_ref for a rate per ``basis`` ("volume" or "catalyst_mass") driven by
-    ``driving`` ("concentration" or "partial_pressure") with total forward order ``order``."""
-    rate = "mol/m^3/s" if basis == "volume" else "mol/kg/s"
-    drive = "mol/m^3" if driving == "concentration" else "Pa"
-    return f"({rate}) / ({drive})**{order!r}" if order else rate
+    ``driving`` ("concentration" or "partial_pressure") with total forward order ``order``: rate / drive^order
+    written as plain powers of mol, m, kg, s and Pa ("m^3/mol/s", "mol/kg/s/Pa^1.3"), the form a case file
+    accepts, so that it can be shown as an example and written back."""
+    powers = {"mol": 1.0, "m": -3.0 if basis == "volume" else 0.0, "kg": 0.0 if basis == "volume" else -1.0,
+              "s": -1.0, "Pa": 0.0}
+    if driving == "concentration":
+        powers["mol"] -= order
+        powers["m"] += 3.0 * order
+    else:
+        powers["Pa"] -= order
+
+    def power(unit, p):
+        return unit if p == 1.0 else f"{unit}^{int(p)}" if float(p).is_integer() else f"{unit}^{p!r}"
+
+    up = [power(u, p) for u, p in powers.items() if p > 0]
+    down = [power(u, -p) for u, p in powers.items() if p < 0]
+    return ("*".join(up) or "1") + "".join(f"/{d}" for d in down)
+
 
 def parse_equation(text: str) -> tuple[dict[str, float], bool]:
     """``"A + 3 B -> 2 C"`` -> ({"A": -1, "B": -3, "C": 2}, reversible=False); ``<=>`` marks reversible.

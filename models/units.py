@@ -150,14 +150,26 @@ def _to_si(text, unit: str, source: str, key: str, difference: bool = False) -> 
     else:
         q = parse(text, source, key, difference)
         target = ureg.Quantity(1.0, unit) if unit else ureg.Quantity(1.0)
-        if q.dimensionality != target.dimensionality:
+        if q.dimensionality == target.dimensionality:
+            value = float(q.to(unit).magnitude) if unit else float(q.to("").magnitude)
+        elif _same_dimension(q.dimensionality, target.dimensionality):  # fractional exponents, rounding apart
+            value = float(q.to_base_units().magnitude / target.to_base_units().magnitude)
+        else:
             have = str(q.dimensionality) if not q.dimensionless else "dimensionless"
             want = str(target.dimensionality) if unit else "dimensionless"
             raise CaseError(source, key, f'"{text}" has dimension {have}; allowed: {want} (for example "1 {unit}")')
-        value = float(q.to(unit).magnitude) if unit else float(q.to("").magnitude)
     if not math.isfinite(value) or abs(value) > LARGEST:
         raise CaseError(source, key, f"{text!r} is not a finite number of reasonable size (at most {LARGEST:g} in SI)")
     return value
+
+
+EXPONENT_TOLERANCE = 1e-9  # fractional exponents (reaction orders) computed two ways differ in the last bits
+
+
+def _same_dimension(a, b) -> bool:
+    """Equal dimensions up to rounding of fractional exponents."""
+    da, db = dict(a), dict(b)
+    return all(abs(da.get(k, 0.0) - db.get(k, 0.0)) <= EXPONENT_TOLERANCE for k in set(da) | set(db))
 
 
 def quantity(text, dimension: str, source: str, key: str) -> float:

@@ -179,3 +179,53 @@ def test_multistart_keeps_the_best_optimum_and_reports_every_start(tmp_path):
     assert starts["asked"] == 3 and starts["ran"] == 3 and starts["converged"] >= 2
     assert many.statistics.sum_of_squares <= one.statistics.sum_of_squares * (1 + 1e-6)
     assert list(many.estimates.values()) == pytest.approx(list(one.estimates.values()), rel=1e-5)  # one minimum
+
+
+def nth_order_conversion(k, n, tau, c0):
+    """Plug flow, constant density, rate k c^n: X = 1 - (1 + (n - 1) k tau c0^(n-1))^(1/(1-n)) (Levenspiel
+    1999, Chemical Reaction Engineering, ch. 5)."""
+    return 1.0 - (1.0 + (n - 1.0) * k * tau * c0 ** (n - 1.0)) ** (1.0 / (1.0 - n))
+
+
+def test_a_reaction_order_is_fitted_with_the_kinetics(tmp_path):
+    # true: order 1.6 in A, k(350 K) = 0.003 (m^3/mol)^0.6/s, E_a = 50 kJ/mol; runs at 4 temperatures and
+    # 2 feed flows of A (the order shows only where the concentration varies)
+    true_k, true_n = 0.003, 1.6
+    volume = math.pi / 4 * 0.02**2 * 2.0
+    rows = ["feed.temperature [K],feed.molar_flows.A [mol/s],measured.conversion"]
+    rng = np.random.default_rng(11)
+    conditions = [(t, fa) for t in (330.0, 343.0, 356.0, 370.0) for fa in (0.01, 0.004)]
+    observed = []
+    for t, fa in conditions:
+        q = (0.1 * fa + 0.018 * 0.5) / 1000.0  # m^3/s of the liquid feed (A and the solvent S)
+        k = true_k * math.exp(-TRUE_E / R * (1 / t - 1 / T_REF))
+        x = nth_order_conversion(k, true_n, volume / q, fa / q) + rng.normal(0, SIGMA)
+        observed.append((t, fa, q, x))
+        rows.append(f"{t!r},{fa!r},{x!r}")
+    section = {"parameters": {"r1": {"k_ref": True, "activation_energy": True, "orders": {"A": {"min": 0.5,
+                                                                                               "max": 3.0}}}},
+               "errors": {"conversion": SIGMA}}
+    case, data, _ = write_lab(tmp_path, fit_section=section)
+    data.write_text("\n".join(rows) + "\n")
+    out = fit(case, data)
+    assert out.status == Status.OK, out.message
+    t_fit = out.reference_temperature
+
+    def residuals(p):
+        return np.array([(nth_order_conversion(p[0] * math.exp(-p[1] / R * (1 / t - 1 / t_fit)), p[2], volume / q,
+                                               fa / q) - x) / SIGMA for t, fa, q, x in observed])
+
+    ref = least_squares(residuals, [0.003, 5e4, 1.5], x_scale=[1e-3, 5e4, 1.0], xtol=1e-14, ftol=1e-14).x
+    theta = np.array(list(out.estimates.values()))
+    assert list(out.estimates) == ["r1.k_ref", "r1.activation_energy", "r1.orders.A"]
+    assert theta == pytest.approx(ref, rel=2e-4)
+    lo, hi = out.statistics.intervals[2]
+    assert lo < true_n < hi
+    out_dir = tmp_path / "o"
+    from tubewright.optimizer.cli import main
+
+    assert main(["fit", str(case), "--data", str(data), "--out", str(out_dir)]) == 0
+    from tubewright.models import load_case
+
+    fitted = load_case(out_dir / "fitted.toml")
+    assert fitted.reactions[0].orders["A"] == pytest.approx(theta[2])

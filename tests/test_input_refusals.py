@@ -270,3 +270,23 @@ def test_study_top_level_keys_are_checked(tmp_path, top, key):
     with pytest.raises(CaseError) as info:
         load_study(path)
     assert info.value.key == key
+
+
+@pytest.mark.parametrize("basis", ["volume", "catalyst_mass"])
+@pytest.mark.parametrize("driving", ["concentration", "partial_pressure"])
+@pytest.mark.parametrize("order", [0.0, 1.0, 1.3, 2.0, 1.5743725255127203, 1.0 / 3.0, 2.75])
+def test_the_unit_of_k_ref_for_any_order_reads_back(basis, driving, order):
+    # the unit an error message shows as an example (and a fit writes) is accepted for that order, although
+    # fractional exponents computed two ways differ in their last bits
+    from tubewright.models.reactions import rate_units
+
+    unit = rate_units(basis, driving, order)
+    assert to_si(f"2.5 {unit}", unit, "case.toml", "k_ref") == pytest.approx(2.5, rel=1e-12)
+    assert "(" not in unit and "**" not in unit
+
+
+def test_a_k_ref_unit_of_another_order_is_still_refused():
+    from tubewright.models.reactions import rate_units
+
+    with pytest.raises(CaseError, match="dimension"):
+        to_si("2 m^3/mol/s", rate_units("volume", "concentration", 2.0 + 1e-6), "case.toml", "k_ref")

@@ -36,8 +36,8 @@ def _design_component(model, name, spec, value):
 def parametrised_case(model, case, spec, kinetics=None):
     """The case with every design quantity, the wall thickness, the kinetic parameters and the U multiplier
     replaced by Pyomo components of ``model``. ``kinetics``: {reaction index: {"k_ref": component,
-    "activation_energy": component}} to use instead of the model's own parameters (a fit shares them
-    between the models of its runs)."""
+    "activation_energy": component, "orders": {species: component or number}}} to use instead of the
+    model's own parameters (a fit shares them between the models of its runs)."""
     d = {}
     for name in DESIGN_KEYS:
         value = case_value(case, name)
@@ -65,7 +65,8 @@ def parametrised_case(model, case, spec, kinetics=None):
         coolant = replace(coolant, mass_flow=d["coolant_flow"])
     shared = kinetics or {}
     reactions = tuple(replace(rx, k_ref=shared.get(j, {}).get("k_ref", model.k_ref[j]),
-                              activation_energy=shared.get(j, {}).get("activation_energy", model.e_act[j]))
+                              activation_energy=shared.get(j, {}).get("activation_energy", model.e_act[j]),
+                              orders=shared.get(j, {}).get("orders", rx.orders))
                       for j, rx in enumerate(case.reactions))
     heat = replace(case.heat_transfer, multiplier=model.u_multiplier)
     return replace(case, tube=tube, feed=feed, coolant=coolant, reactions=reactions, heat_transfer=heat)

@@ -59,7 +59,8 @@ class FitOutcome:
 
 def kinetics_at(case, spec, t_fit, values, backend):
     """The case's reactions with the free parameters at ``values`` (fitted coordinates), as numbers or
-    Pyomo expressions: {reaction index: {"k_ref": k at the case's T_ref, "activation_energy": E_a}}."""
+    Pyomo expressions: {reaction index: {"k_ref": k at the case's T_ref, "activation_energy": E_a,
+    "orders": {...}}} for the reactions with a free parameter."""
     out = {}
     for p, v in zip(spec.parameters, values):
         out.setdefault(p.index, {})[p.kind] = v
@@ -68,7 +69,9 @@ def kinetics_at(case, spec, t_fit, values, backend):
         rx = case.reactions[j]
         e_act = entry.get("activation_energy", rx.activation_energy)
         k_fit = entry.get("k_ref", arrhenius(NUMPY, rx.k_ref, rx.activation_energy, rx.t_ref, t_fit))
-        kinetics[j] = {"k_ref": arrhenius(backend, k_fit, e_act, t_fit, rx.t_ref), "activation_energy": e_act}
+        orders = {s: entry.get(f"orders.{s}", o) for s, o in rx.orders.items()}
+        kinetics[j] = {"k_ref": arrhenius(backend, k_fit, e_act, t_fit, rx.t_ref), "activation_energy": e_act,
+                       "orders": orders}
     return kinetics
 
 
@@ -83,8 +86,12 @@ def start_values(case, spec, t_fit) -> np.ndarray:
     values = []
     for p in spec.parameters:
         rx = case.reactions[p.index]
-        values.append(rx.activation_energy if p.kind == "activation_energy"
-                      else arrhenius(NUMPY, rx.k_ref, rx.activation_energy, rx.t_ref, t_fit))
+        if p.kind == "activation_energy":
+            values.append(rx.activation_energy)
+        elif p.kind.startswith("orders."):
+            values.append(rx.orders[p.kind.split(".", 1)[1]])
+        else:
+            values.append(arrhenius(NUMPY, rx.k_ref, rx.activation_energy, rx.t_ref, t_fit))
     return np.asarray(values, dtype=float)
 
 
@@ -233,7 +240,9 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     kin = kinetics_at(base, spec, t_fit, theta, NUMPY)
     out.case_values = {base.reactions[j].name: {"k_ref": float(e["k_ref"]),
                                                 "activation_energy": float(e["activation_energy"]),
-                                                "t_ref": float(base.reactions[j].t_ref)} for j, e in kin.items()}
+                                                "t_ref": float(base.reactions[j].t_ref),
+                                                "orders": {s: float(o) for s, o in e["orders"].items()}}
+                       for j, e in kin.items()}
     scale = math.sqrt(stats.residual_variance) if spec.error_model == "estimated" else 1.0
     out.residuals = [{"row": run.row, "quantity": name, "measured": y, "sigma": sigma * scale,
                       "fitted": y + r * sigma} for (run, name, y, sigma), r in zip(observations, residuals)]

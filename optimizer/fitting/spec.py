@@ -10,6 +10,7 @@ the reference temperature of the Arrhenius laws.
     [fit.parameters.REACTION]
     k_ref = { within = 100 }          # free within start/100 .. start*100 (start: the case's value)
     activation_energy = { min = "40 kJ/mol", max = "200 kJ/mol" }   # or true: 0.2x .. 5x the start
+    orders = { A = { min = 0.5, max = 2 } }                          # or A = true: start -+ 1 (>= 0)
     [fit.errors]                      # one per measured quantity of the data
     conversion = 0.01                 # absolute (dimensionless), or
     outlet_temperature = "1.5 K"      # absolute with a unit (a temperature difference), or
@@ -27,7 +28,7 @@ from tubewright.models.errors import CaseError, suggest
 from tubewright.models.units import quantity
 from tubewright.optimizer.fitting.data import MEASURED
 
-KINDS = ("k_ref", "activation_energy")
+KINDS = ("k_ref", "activation_energy", "orders")
 DEFAULT_WITHIN = 100.0
 ERROR_DIMENSIONS = {"outlet_temperature": "temperature_difference", "outlet_flow": "molar_flow"}
 
@@ -36,7 +37,7 @@ ERROR_DIMENSIONS = {"outlet_temperature": "temperature_difference", "outlet_flow
 class FitParameter:
     reaction: str
     index: int  # of the reaction in the case
-    kind: str  # "k_ref" (k at the reference temperature) or "activation_energy"
+    kind: str  # "k_ref" (k at the reference temperature), "activation_energy" or "orders.SPECIES"
     lower: float
     upper: float
 
@@ -76,7 +77,10 @@ def read_fit(case) -> FitSpec:
         for kind in KINDS:
             if not rt.has(kind):
                 continue
-            params.append(_parameter(rt, kind, rname, j, rx))
+            if kind == "orders":
+                params.extend(_orders(rt, rname, j, rx))
+            else:
+                params.append(_parameter(rt, kind, rname, j, rx))
         rt.finish()
     if not params:
         raise CaseError(source, "fit.parameters", "names no free parameter (k_ref or activation_energy of a reaction)")
@@ -114,6 +118,29 @@ def _parameter(rt: Table, kind: str, rname: str, j: int, rx) -> FitParameter:
     if not lo < hi:
         raise CaseError(rt.source, key, f"min ({lo:g} J/mol) must be below max ({hi:g} J/mol)")
     return FitParameter(rname, j, kind, lo, hi)
+
+
+def _orders(rt: Table, rname: str, j: int, rx) -> list[FitParameter]:
+    ot = rt.sub("orders")
+    out = []
+    for species, spec in ot.data.items():
+        key = ot.key(species)
+        if species not in rx.orders:
+            raise CaseError(rt.source, key, f"the reaction has no order for {species}; orders: "
+                            f"{', '.join(rx.orders) or 'none'} (give it one in the case, e.g. 1, to free it)")
+        start = rx.orders[species]
+        if spec is True:
+            spec = {}
+        if not isinstance(spec, dict):
+            raise CaseError(rt.source, key, "must be true or a table { min = ..., max = ... }")
+        sub = Table(spec, rt.source, key, {"min", "max"})
+        lo = sub.number("min", default=max(0.0, start - 1.0), low=0.0, high=10.0)
+        hi = sub.number("max", default=start + 1.0, low=0.0, high=10.0)
+        sub.finish()
+        if not lo < hi:
+            raise CaseError(rt.source, key, f"min ({lo:g}) must be below max ({hi:g})")
+        out.append(FitParameter(rname, j, f"orders.{species}", lo, hi))
+    return out
 
 
 def _error(value, kind: str, source: str, key: str):

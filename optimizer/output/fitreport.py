@@ -90,9 +90,7 @@ def plot_fit(out, path: Path) -> Path:
 
 def write_fitted_case(path: Path, case, out) -> Path:
     """The fitting case by include with the fitted kinetic parameters on top (the case's own T_ref)."""
-    reactions = {name: {"k_ref": f"{v['k_ref']!r} {_k_unit(case, name)}",
-                        "activation_energy": f"{v['activation_energy']!r} J/mol"}
-                 for name, v in out.case_values.items()}
+    reactions = {name: _reaction_table(case, name, v["k_ref"], v) for name, v in out.case_values.items()}
     st = out.statistics
     lines = ["# Kinetics fitted by tubewright fit: the fitting case by include, the fitted values on top.",
              "# Screening estimate only: verify with detailed models, hazard studies and licensed engineers.",
@@ -130,8 +128,7 @@ def write_design_case(path: Path, design, out) -> Path:
         k_fit = out.estimates.get(f"{name}.k_ref")
         k_ref = v["k_ref"] if k_fit is None else arrhenius(NUMPY, k_fit, v["activation_energy"],
                                                              out.reference_temperature, rx.t_ref)
-        reactions[name] = {"k_ref": f"{float(k_ref)!r} {_k_unit(design, name)}",
-                           "activation_energy": f"{float(v['activation_energy'])!r} J/mol"}
+        reactions[name] = _reaction_table(design, name, k_ref, v)
     paths = [f"chemistry.reactions.{n.rsplit('.', 1)[0]}.{n.rsplit('.', 1)[1]}" for n in st.names]
     block = {"distribution": "multivariate_normal", "parameters": paths,
              "mean": [float(x) for x in st.estimates], "covariance": [[float(c) for c in row] for row in st.covariance]}
@@ -148,23 +145,19 @@ def write_design_case(path: Path, design, out) -> Path:
     return Path(path)
 
 
-def _k_unit(case, reaction: str) -> str:
-    """The SI unit of k_ref written as a case file reads it: rate / driving^n, as plain powers ("m^3/mol/s")."""
-    rx = next(r for r in case.reactions if r.name == reaction)
-    n = sum(rx.orders.values())
-    powers = {"mol": 1.0, "m": -3.0, "kg": 0.0, "s": -1.0, "Pa": 0.0}  # mol/m^3/s
-    if rx.basis != "volume":
-        powers.update(m=0.0, kg=-1.0)  # mol/kg/s
-    if rx.driving == "concentration":
-        powers["mol"] -= n
-        powers["m"] += 3.0 * n
-    else:
-        powers["Pa"] -= n
-    up = [(u, p) for u, p in powers.items() if p > 1e-12]
-    down = [(u, -p) for u, p in powers.items() if p < -1e-12]
+def _reaction_table(case, name: str, k_ref: float, fitted: dict) -> dict:
+    """k_ref (in the unit of the fitted orders), E_a and the orders of one fitted reaction, as case values."""
+    rx = next(r for r in case.reactions if r.name == name)
+    orders = {**rx.orders, **fitted.get("orders", {})}
+    table = {"k_ref": f"{float(k_ref)!r} {_k_unit(rx, sum(orders.values()))}",
+             "activation_energy": f"{float(fitted['activation_energy'])!r} J/mol"}
+    if orders != dict(rx.orders):
+        table["orders"] = {s: float(o) for s, o in orders.items()}
+    return table
 
-    def power(u, p):
-        return u if abs(p - 1.0) < 1e-12 else f"{u}^{p:g}"
 
-    numerator = "*".join(power(u, p) for u, p in up) or "1"
-    return numerator + "".join(f"/{power(u, p)}" for u, p in down)
+def _k_unit(rx, n: float) -> str:
+    """The SI unit of k_ref for the fitted total order, as a case file reads it."""
+    from tubewright.models.reactions import rate_units
+
+    return rate_units(rx.basis, rx.driving, n)

@@ -72,6 +72,29 @@ def rates(m, case, T, local: Local) -> list:
     return out
 
 
+def rate_basis(case, species: str) -> str:
+    """The basis of the formation rate of ``species``: "catalyst_mass" (mol/(kg s)) or "volume"
+    (mol/(m^3 s)), the basis shared by the reactions that form or consume it; ValueError when they differ
+    or none does."""
+    bases = {rx.basis for rx in case.reactions if rx.nu.get(species)}
+    if len(bases) != 1:
+        raise ValueError(f"no reaction forms or consumes {species}" if not bases else
+                         f"the reactions of {species} have different bases ({', '.join(sorted(bases))})")
+    return bases.pop()
+
+
+def formation_rate(m, case, species: str, F, T, P):
+    """Net formation rate of ``species`` at the state (F, T, P): sum_j nu_ij r_j per catalyst mass
+    [mol/(kg s)] or per volume [mol/(m^3 s)] as ``rate_basis`` says; what a differential (low-conversion)
+    laboratory reactor measures at its feed conditions."""
+    total = 0.0
+    for rx, rj in zip(case.reactions, rates(m, case, T, local_properties(m, case, F, T, P))):
+        nu = rx.nu.get(species)
+        if nu:
+            total = total + nu * rj
+    return total / case.bed.density if rate_basis(case, species) == "catalyst_mass" else total
+
+
 def overall_u(m, case, local: Local):
     """U [W/(m^2 K)] on the inner area: given, or from the inside correlation, the wall and the coolant side."""
     ht = case.heat_transfer

@@ -229,3 +229,37 @@ def test_a_reaction_order_is_fitted_with_the_kinetics(tmp_path):
 
     fitted = load_case(out_dir / "fitted.toml")
     assert fitted.reactions[0].orders["A"] == pytest.approx(theta[2])
+
+
+def test_differential_runs_fit_the_rate_law_without_a_tube(tmp_path):
+    # measured formation rates of A at the feed conditions: r_A = -k(T) c_A^n (power law with Arrhenius,
+    # analytic); compared with least_squares on the analytic rates. Rates in mol/(L h) in the file:
+    # converted to SI on reading.
+    true_n = 1.4
+    rng = np.random.default_rng(3)
+    section = {"parameters": {"r1": {"k_ref": True, "activation_energy": True, "orders": {"A": True}}},
+               "errors": {"rate": "3 %", "conversion": SIGMA}}
+    case, data, _ = write_lab(tmp_path, fit_section=section)
+    true_k = 0.01  # (m^3/mol)^0.4/s at 350 K
+    observed = []
+    for t in (330.0, 340.0, 350.0, 360.0, 370.0):
+        for fa in (0.01, 0.003):
+            q = (0.1 * fa + 0.018 * 0.5) / 1000.0
+            rate = -true_k * math.exp(-TRUE_E / R * (1 / t - 1 / T_REF)) * (fa / q) ** true_n  # mol/m^3/s
+            observed.append((t, fa, q, rate * (1.0 + rng.normal(0, 0.03))))
+    rows = ["feed.temperature [K],feed.molar_flows.A [mol/s],measured.rate.A [mol/L/h]"]
+    rows += [f"{t!r},{fa!r},{r * 3.6!r}" for t, fa, q, r in observed]  # 1 mol/(m^3 s) = 3.6 mol/(L h)
+    data.write_text("\n".join(rows) + "\n")
+    out = fit(case, data)
+    assert out.status == Status.OK, out.message
+    assert out.solver["ipopt_variables"] == 3  # no tube block: the three parameters only
+    t_fit = out.reference_temperature
+
+    def residuals(p):
+        return np.array([(-p[0] * math.exp(-p[1] / R * (1 / t - 1 / t_fit)) * (fa / q) ** p[2] - r) / (0.03 * abs(r))
+                         for t, fa, q, r in observed])
+
+    ref = least_squares(residuals, [0.01, 5e4, 1.0], x_scale=[1e-2, 5e4, 1.0], xtol=1e-14, ftol=1e-14).x
+    assert np.array(list(out.estimates.values())) == pytest.approx(ref, rel=1e-6)
+    lo, hi = out.statistics.intervals[2]
+    assert lo < true_n < hi

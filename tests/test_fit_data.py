@@ -28,6 +28,12 @@ def test_runs_are_read_in_si_with_their_cases(tmp_path):
     assert runs[1].measured["outlet_flow.C3H4O"] == pytest.approx(2.0)
 
 
+def test_formation_rates_are_read_in_the_basis_of_their_reactions(tmp_path):
+    # the demo's reactions are per catalyst mass: a rate in mmol/(g h) is read as mol/(kg s)
+    path = write(tmp_path, "feed.temperature [K],measured.rate.C3H6 [mmol/g/h]\n590,-3.6\n")
+    assert read_runs(path, CASE)[0].measured["rate.C3H6"] == pytest.approx(-1e-3)
+
+
 def test_parquet_files_are_read(tmp_path):
     import pandas as pd
 
@@ -47,6 +53,8 @@ def test_parquet_files_are_read(tmp_path):
     ("feed.temperature [K],measured.selectivity\n590,0.9\n", "measured.selectivity", "unknown measured"),
     ("feed.temperature [K],measured.conversion [K]\n590,0.9\n", "measured.conversion", "dimensionless"),
     ("feed.temperature [kg],measured.conversion\n590,0.4\n", "feed.temperature", ""),
+    ("feed.temperature [K],measured.rate.C3H6 [mol/m^3/s]\n590,-0.1\n", "measured.rate.C3H6", "dimension"),
+    ("feed.temperature [K],measured.rate.N2 [mol/kg/s]\n590,0.0\n", "measured.rate.N2", "no reaction"),
 ])
 def test_bad_data_names_file_row_and_column(tmp_path, text, column, message):
     path = write(tmp_path, text)

@@ -8,6 +8,8 @@ quantity under ``measured.``:
     measured.outlet_temperature [K]
     measured.outlet_flow.SPECIES [mol/s]
     measured.outlet_mole_fraction.SPECIES  (unit "-" or none)
+    measured.rate.SPECIES [mol/kg/s]     (a differential run: the net formation rate at the feed conditions,
+                                          per catalyst mass or per volume as the species' reactions are)
 
 A quantity with a dimension needs its unit in the header; temperatures in the header are absolute (a lone
 degC means a temperature, not a difference). Every run is validated as a case (the base case with the
@@ -28,7 +30,9 @@ MEASURED = {  # name -> (pint unit of its SI value, needs a species)
     "outlet_temperature": ("K", False),
     "outlet_flow": ("mol/s", True),
     "outlet_mole_fraction": ("", True),
+    "rate": (None, True),  # mol/kg/s or mol/m^3/s: the basis of the species' reactions (balances.rate_basis)
 }
+RATE_UNITS = {"catalyst_mass": "mol/kg/s", "volume": "mol/m^3/s"}
 _HEADER = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_.\-]*)\s*(?:\[([^\]]*)\])?\s*$")
 DIMENSIONLESS = ("", "-", "1")
 
@@ -58,13 +62,14 @@ def parse_header(name: str, source: str) -> Column:
     return Column(match.group(1), (match.group(2) or "").strip())
 
 
-def _measured_si(column: Column, value: float, source: str, species) -> tuple[str, float]:
+def _measured_si(column: Column, value: float, source: str, case) -> tuple[str, float]:
     parts = column.key.split(".")
     kind = parts[1] if len(parts) > 1 else ""
     if kind not in MEASURED:
         raise CaseError(source, column.key, f'unknown measured quantity "{kind}"{suggest(kind, MEASURED)}; '
                         f"allowed: {', '.join('measured.' + k for k in MEASURED)}")
     unit, needs_species = MEASURED[kind]
+    species = list(case.names)
     if needs_species:
         if len(parts) != 3 or parts[2] not in species:
             given = parts[2] if len(parts) > 2 else ""
@@ -73,6 +78,13 @@ def _measured_si(column: Column, value: float, source: str, species) -> tuple[st
     elif len(parts) != 2:
         raise CaseError(source, column.key, f'"measured.{kind}" takes no species')
     name = ".".join(parts[1:])
+    if unit is None:  # a formation rate: its unit follows the basis of the species' reactions
+        from tubewright.models.balances import rate_basis
+
+        try:
+            unit = RATE_UNITS[rate_basis(case, parts[2])]
+        except ValueError as err:
+            raise CaseError(source, column.key, f"cannot be predicted: {err}") from None
     if unit == "":
         if column.unit not in DIMENSIONLESS:
             raise CaseError(source, column.key, f'is dimensionless: no unit, or "-"; got "{column.unit}"')
@@ -121,12 +133,11 @@ def read_runs(data_path, case_path) -> list[Run]:
         raise CaseError(source, "", "has no measured column (measured.conversion, measured.outlet_temperature, "
                         "measured.outlet_flow.SPECIES or measured.outlet_mole_fraction.SPECIES)")
     base = load_case(case_path)
-    species = list(base.names)
     runs, problems = [], []
     for number, values in enumerate(rows, start=1):
         where = f"{source}, row {number}"
         try:
-            runs.append(_run(number, values, columns, where, case_path, species))
+            runs.append(_run(number, values, columns, where, case_path, base))
         except CaseError as err:
             problems.append(err)
     if problems:
@@ -137,7 +148,7 @@ def read_runs(data_path, case_path) -> list[Run]:
     return runs
 
 
-def _run(number, values, columns, where, case_path, species) -> Run:
+def _run(number, values, columns, where, case_path, base) -> Run:
     from tubewright.models.casefile import load_case
 
     overrides, measured = {}, {}
@@ -151,7 +162,7 @@ def _run(number, values, columns, where, case_path, species) -> Run:
         if not math.isfinite(number_value):
             raise CaseError(where, column.key, f"{value} is not a finite number")
         if column.is_measured:
-            name, si = _measured_si(column, number_value, where, species)
+            name, si = _measured_si(column, number_value, where, base)
             measured[name] = si
         else:
             overrides[column.key] = f"{number_value!r} {column.unit}" if column.unit else number_value

@@ -109,22 +109,39 @@ def predicted(case, name: str, f_in, f_out, T_out, n_tubes):
     return f_out[k] / sum(f_out)  # outlet_mole_fraction
 
 
+def is_rate(name: str) -> bool:
+    """A formation rate of a differential run: predicted at the feed conditions, no tube integrated."""
+    return name.startswith("rate.")
+
+
+def predicted_rate(m, case, name: str):
+    """The measured formation rate ``rate.SPECIES`` at the run's feed conditions (any backend)."""
+    from tubewright.models.balances import formation_rate
+
+    feed = case.feed
+    return formation_rate(m, case, name.partition(".")[2], list(feed.molar_flows), feed.temperature, feed.pressure)
+
+
 def sigma_of(spec, name: str, measured: float) -> float:
     how, value = spec.errors[name.partition(".")[0]]
     return value if how == "absolute" else value * max(abs(measured), 1e-300)
 
 
 def simulate_predictions(run_case, names):
-    """The measured quantities of one run from the adaptive integrator, or None where it stops early."""
+    """The measured quantities of one run: outlet quantities from the adaptive integrator (None where it
+    stops early), formation rates at the feed conditions."""
     from tubewright.models.simulator import simulate
 
+    if all(is_rate(q) for q in names):
+        return [float(predicted_rate(NUMPY, run_case, q)) for q in names], None
     sim = simulate(replace(run_case, numerics=replace(run_case.numerics, rtol=JACOBIAN_RTOL)), checks=False)
     if not sim.ok:
         return None, sim
     cols, n = sim.columns, run_case.tube.count
     f_in = [cols[f"F_{s}_mol_s"][0] / n for s in run_case.names]
     f_out = [cols[f"F_{s}_mol_s"][-1] / n for s in run_case.names]
-    return [float(predicted(run_case, q, f_in, f_out, cols["T_K"][-1], n)) for q in names], sim
+    return [float(predicted_rate(NUMPY, run_case, q) if is_rate(q) else
+                  predicted(run_case, q, f_in, f_out, cols["T_K"][-1], n)) for q in names], sim
 
 
 def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) -> FitOutcome:
@@ -162,6 +179,13 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     usable = []
     for run in runs:
         start_case = with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, theta0, NUMPY))
+        if all(is_rate(q) for q in run.measured):  # a differential run: no tube to integrate
+            rates = [predicted_rate(NUMPY, start_case, q) for q in run.measured]
+            if not np.all(np.isfinite(rates)):
+                out.excluded.append({"row": run.row, "reason": "its rates are not finite at the starting parameters"})
+                continue
+            usable.append((run, None))
+            continue
         sim = simulate(start_case, checks=False)
         if not sim.ok:
             out.excluded.append({"row": run.row, "reason": f"cannot be simulated at the starting parameters: "
@@ -186,18 +210,22 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     for i, (run, sim) in enumerate(usable):
         b = m.run[i]
         kinetics = kinetics_at(run.case, spec, t_fit, values, pyomo_backend())
-        nfe_i = int(nfe or run.case.numerics.finite_elements)
-        ncp_i = int(ncp or run.case.numerics.collocation_points)
-        _, pcase = build_tube_model(run.case, DesignSpec(), nfe_i, ncp_i, block=b, kinetics=kinetics)
-        initialise_from_simulation(b, run.case, sim)
-        var_s, con_s = tube_scale_factors(b, run.case, state_scaling(b, run.case, sim))
-        x_scale.update(var_s)
-        g_scale.update(con_s)
-        f_in = [b.F[s, 0.0] for s in run.case.names]
-        f_out = [b.F[s, 1.0] for s in run.case.names]
+        if sim is not None:  # outlet quantities: the run's tube as a collocation block
+            nfe_i = int(nfe or run.case.numerics.finite_elements)
+            ncp_i = int(ncp or run.case.numerics.collocation_points)
+            _, pcase = build_tube_model(run.case, DesignSpec(), nfe_i, ncp_i, block=b, kinetics=kinetics)
+            initialise_from_simulation(b, run.case, sim)
+            var_s, con_s = tube_scale_factors(b, run.case, state_scaling(b, run.case, sim))
+            x_scale.update(var_s)
+            g_scale.update(con_s)
+            f_in = [b.F[s, 0.0] for s in run.case.names]
+            f_out = [b.F[s, 1.0] for s in run.case.names]
         for name, y in run.measured.items():
             sigma = sigma_of(spec, name, y)
-            expr = predicted(run.case, name, f_in, f_out, b.T[1.0], pcase.tube.count)
+            if is_rate(name):
+                expr = predicted_rate(pyomo_backend(), with_kinetics(run.case, kinetics), name)
+            else:
+                expr = predicted(run.case, name, f_in, f_out, b.T[1.0], pcase.tube.count)
             terms.append(((expr - y) / sigma) ** 2)
             observations.append((run, name, y, sigma))
     m.objective = pyo.Objective(expr=0.5 * sum(terms))
@@ -278,7 +306,10 @@ def _more_starts(m, nlp, usable, spec, t_fit, box, first, opts, scaling, out):
         internal = low + rng.random(len(low)) * (up - low)
         kinetics_values = on_rate_constants(internal, is_k, np.exp)
         sims = []
-        for run, _ in usable:
+        for run, first_sim in usable:
+            if first_sim is None:  # a differential run: nothing to integrate
+                sims.append(None)
+                continue
             sim = simulate(with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, kinetics_values, NUMPY)),
                            checks=False)
             if not sim.ok:
@@ -289,7 +320,8 @@ def _more_starts(m, nlp, usable, spec, t_fit, box, first, opts, scaling, out):
         for k, v in enumerate(m.theta.values()):
             v.set_value(float(internal[k]))
         for i, ((run, _), sim) in enumerate(zip(usable, sims)):
-            initialise_from_simulation(m.run[i], run.case, sim)
+            if sim is not None:
+                initialise_from_simulation(m.run[i], run.case, sim)
         solved = nlp.solve(options=opts, scaling=scaling)
         objectives.append(solved.objective if solved.success else None)
         if solved.success and (not best.success or solved.objective < best.objective):

@@ -15,6 +15,7 @@ the reference temperature of the Arrhenius laws.
     conversion = 0.01                 # absolute (dimensionless), or
     outlet_temperature = "1.5 K"      # absolute with a unit (a temperature difference), or
     outlet_flow = "3 %"               # relative to the measured value
+    rate = "5 %"                      # formation rates of differential runs (or absolute, "2e-6 mol/kg/s")
 
 Fitted are k at the reference temperature (not k_ref at the case's own T_ref) and E_a: about the runs' own
 mean reciprocal temperature the two are nearly uncorrelated (optimizer.fitting.statistics)."""
@@ -152,6 +153,19 @@ def _error(value, kind: str, source: str, key: str):
         if not 0.0 < fraction < 1.0:
             raise CaseError(source, key, f"a relative error must be between 0 and 100 %, got {value!r}")
         return ("relative", fraction)
+    if kind == "rate":
+        from tubewright.models.units import to_si
+        from tubewright.optimizer.fitting.data import RATE_UNITS
+
+        for unit in RATE_UNITS.values():
+            try:
+                sigma = to_si(value, unit, source, key)
+            except CaseError:
+                continue
+            if sigma > 0:
+                return ("absolute", sigma)
+        raise CaseError(source, key, f"a rate error is a percentage or a positive rate in "
+                        f"{' or '.join(RATE_UNITS.values())}, got {value!r}")
     dim = ERROR_DIMENSIONS.get(kind)
     if dim is None:
         if isinstance(value, bool) or not isinstance(value, (int, float)) or not 0.0 < float(value) < 1.0:

@@ -58,30 +58,29 @@ def fit_lines(out) -> list[str]:
 
 
 def plot_fit(out, path: Path) -> Path:
-    """Parity (fitted against measured, per quantity) and the weighted residuals per run."""
-    fig = new_figure((10, 4.2))
-    parity, resid = fig.add_subplot(1, 2, 1), fig.add_subplot(1, 2, 2)
+    """One parity panel (fitted against measured) per measured quantity, and the weighted residuals per run."""
     quantities = sorted({o["quantity"] for o in out.residuals})
-    for q in quantities:
+    fig = new_figure((4.2 * (len(quantities) + 1), 4.2))
+    resid = fig.add_subplot(1, len(quantities) + 1, len(quantities) + 1)
+    for k, q in enumerate(quantities):
         rows = [o for o in out.residuals if o["quantity"] == q]
         measured = [o["measured"] for o in rows]
         fitted = [o["fitted"] for o in rows]
-        parity.plot(measured, fitted, "o", label=q)
-        resid.plot([o["row"] for o in rows], [(f - m) / o["sigma"] for f, m, o in zip(fitted, measured, rows)], "o",
-                   label=q)
-    every = [o["measured"] for o in out.residuals] + [o["fitted"] for o in out.residuals]
-    if every:
-        lo, hi = min(every), max(every)
+        parity = fig.add_subplot(1, len(quantities) + 1, k + 1)
+        parity.plot(measured, fitted, "o", color=f"C{k}")
+        lo, hi = min(measured + fitted), max(measured + fitted)
         parity.plot([lo, hi], [lo, hi], "-", color="0.5", linewidth=1)
-    parity.set_xlabel("measured (SI)")
-    parity.set_ylabel("fitted (SI)")
-    parity.set_title("parity")
-    parity.legend(fontsize=8)
+        parity.set_xlabel(f"measured {q} (SI)")
+        parity.set_ylabel(f"fitted {q} (SI)")
+        parity.set_title(f"parity: {q}", fontsize=9)
+        resid.plot([o["row"] for o in rows], [(f - m) / o["sigma"] for f, m, o in zip(fitted, measured, rows)], "o",
+                   color=f"C{k}", label=q)
     for level in (-2, 0, 2):
         resid.axhline(level, color="0.6", linewidth=1, linestyle="-" if level == 0 else "--")
     resid.set_xlabel("run (row of the data file)")
     resid.set_ylabel("(fitted - measured) / sigma")
-    resid.set_title("weighted residuals (dashed: +-2)")
+    resid.set_title("weighted residuals (dashed: +-2)", fontsize=9)
+    resid.legend(fontsize=8)
     fig.suptitle("Kinetics fit - screening estimate only; verify before use", fontsize=9)
     fig.tight_layout()
     fig.savefig(path, dpi=110)

@@ -7,6 +7,7 @@ The public API, imported lazily so that ``import tubewright`` stays fast::
     result = tw.simulate(case)                # -> tw.SimulationResult (status, reason, summary, profiles)
     design = tw.optimize(case)                # -> tw.OptimizationResult
     ranking = tw.screen(case, "morris", 20)   # -> tw.ScreeningResult
+    kinetics = tw.fit("lab.toml", "runs.csv") # -> tw.FitOutcome (estimates, statistics)
     tw.run_study("study.toml", "results/")    # -> summary dict of the run
 
 The folders ``models/`` (physics) and ``optimizer/`` (design, screening, studies, command line) install as
@@ -35,6 +36,8 @@ _PUBLIC = {
     "screen": ("tubewright.optimizer.verbs", "screen"),
     "ScreeningResult": ("tubewright.optimizer.screening.analysis", "ScreeningResult"),
     "pareto": ("tubewright.optimizer.verbs", "pareto"),
+    "fit": ("tubewright.optimizer.verbs", "fit"),
+    "FitOutcome": ("tubewright.optimizer.fitting.estimate", "FitOutcome"),
     "run_study": ("tubewright.optimizer.study.runner", "run_study"),
     "Status": ("tubewright.models.outcomes", "Status"),
 }

@@ -245,7 +245,8 @@ def cmd_optimize(args) -> int:
         sys.stdout.flush()
 
     res = verbs.optimize(case, ideal=args.ideal, starts=args.starts, seed=args.seed, pareto=args.pareto,
-                         progress=progress, on_optimum=show_optimum)
+                         progress=progress, on_optimum=show_optimum, scenarios=args.scenarios,
+                         verify_samples=args.verify_samples)
     progress.close()
     extras = res.extras
     files = {}
@@ -270,6 +271,10 @@ def cmd_optimize(args) -> int:
             from tubewright.optimizer.output.plots import plot_front
 
             files["pareto_png"] = str(plot_front(case, extras["pareto"], out / "pareto.png"))
+        if extras.get("robust", {}).get("verification"):
+            from tubewright.optimizer.output.plots import plot_robust
+
+            files["robust_png"] = str(plot_robust(case, extras["robust"], out / "robust.png"))
         files["result_json"] = str(out / "optimum.json")
         Path(files["result_json"]).write_text(json.dumps(_optimisation_answer(case, res, files), indent=2) + "\n")
     if args.json:
@@ -310,6 +315,42 @@ def extra_lines(res, extras) -> list[str]:
             lines.append(f"  {p['selectivity']:>12.5f}{p['annual_cost_per_year']:>16.6g}")
         for p in front["not_converged"]:
             lines.append(f"  not on the front (IPOPT {p['status']}): selectivity asked >= {p['epsilon']:.5f}")
+    if "robust" in extras:
+        lines += robust_lines(extras["robust"])
+    return lines
+
+
+def robust_lines(r: dict) -> list[str]:
+    """The robust design beside the nominal one, the scenarios that bind, the verification and the
+    scenario guarantee."""
+    lines = [f"\nrobust design over {r['scenarios']} scenarios of [uncertain] (seed {r['seed']}; goal: the nominal "
+             f"one; every limit in the nominal case and in each scenario): {r['status']} ({r['reason']})"]
+    if r.get("objective") is not None:
+        lines.append(f"  goal {_fmt(r['objective'])}" + (f", price of robustness {_fmt(r['price'])} "
+                                                         f"({r['price_percent']:.2f} %)" if "price" in r else ""))
+        lines.append("  design: " + ", ".join(f"{k} {_fmt(v)}" for k, v in r["design"].items()))
+    for s in r["scenario_limits"]:
+        binding = [f"{row['limit']} (multiplier {_fmt(row['multiplier'])})" for row in s["limits"] if row["binding"]]
+        if binding:
+            inputs = ", ".join(f"{p.split('.', 1)[1] if p.startswith('chemistry.') else p} = {v:.6g}"
+                               for p, v in s["parameters"].items())
+            lines.append(f"  scenario {s['scenario']} binds {', '.join(binding)}: {inputs}")
+    for label, v in r["verification"].items():
+        low, high = v["interval_95"]
+        line = (f"  {label} design on {v['samples']} fresh samples: passes every limit in "
+                f"{100 * v['probability']:.1f} % (95 % interval {100 * low:.1f}-{100 * high:.1f} %)")
+        if "max_temperature_K" in v:
+            q = v["max_temperature_K"]
+            line += f"; hot spot P5/P50/P95 {q['P5']:.1f}/{q['P50']:.1f}/{q['P95']:.1f} K"
+        if v["failed_samples"]:
+            line += f"; {v['failed_samples']} samples failed (counted as not passing)"
+        lines.append(line)
+    g = r["guarantee"]
+    if g.get("epsilon") is not None:
+        lines.append(f"  scenario guarantee: passes with probability at least {g['pass_probability_at_least']:.3f} "
+                     f"({g['scenarios']} scenarios, {g['decision_variables']} design variables, {g['note']})")
+    else:
+        lines.append(f"  scenario guarantee: {g['note']}")
     return lines
 
 
@@ -498,6 +539,10 @@ def build_parser() -> argparse.ArgumentParser:
     opt.add_argument("--starts", type=int, metavar="N", help="also solve from N random starting designs")
     opt.add_argument("--seed", type=int, default=0, help="seed of the random starts (default 0)")
     opt.add_argument("--pareto", type=int, metavar="N", help="also trace a cost-selectivity front of N points")
+    opt.add_argument("--scenarios", type=int, metavar="K", help="also a robust design: every limit in K scenarios "
+                     "drawn from [uncertain] (seeded by --seed), verified on fresh samples")
+    opt.add_argument("--verify-samples", type=int, metavar="M", help="fresh samples that verify the nominal and "
+                     "the robust design (default 1000)")
     opt.set_defaults(func=cmd_optimize)
     scr = sub.add_parser("screen", help="rank the [uncertain] quantities of a case (Morris or Sobol)")
     scr.add_argument("case", help="case file (TOML) with an [uncertain] section")

@@ -35,13 +35,15 @@ def fit(case_path, data_path):
 
 
 def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0, pareto: int | None = None,
-             progress=None, on_optimum=None):
+             progress=None, on_optimum=None, scenarios: int | None = None, verify_samples: int | None = None):
     """The cheapest (or best) layout of a case: an OptimizationResult whose ``extras`` hold, as asked, the
     ranking of standard tubes (``[design] standard_tubes = true``: the best tube is then optimised), the
     ideal bound with its gap (``ideal``), a multi-start (``starts``, ``seed``) and a cost-selectivity front
     (``pareto`` points). ``result.case`` is the case that was optimised (with the chosen standard tube).
     ``progress``: see output.progress.Phases; ``on_optimum(result)`` is called as soon as the main optimum
-    is known, before the alternatives are computed (the command line prints it then)."""
+    is known, before the alternatives are computed (the command line prints it then). ``scenarios``: also
+    a robust design over that many scenarios of [uncertain] (optimizer.design.robust), verified on
+    ``verify_samples`` fresh samples."""
     from tubewright.optimizer.design.alternatives import multistart, pareto_front, rank_standard_tubes
     from tubewright.optimizer.design.ideal import ideal_bound
     from tubewright.optimizer.design.optimise import optimise
@@ -49,6 +51,10 @@ def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0
 
     if starts is not None and starts < 1:
         raise option_error("--starts", f"must be at least 1, got {starts}")
+    if scenarios is not None and scenarios < 1:
+        raise option_error("--scenarios", f"must be at least 1, got {scenarios}")
+    if verify_samples is not None and verify_samples < 10:
+        raise option_error("--verify-samples", f"must be at least 10, got {verify_samples}")
     if pareto is not None and pareto < 2:
         raise option_error("--pareto", f"a front needs at least 2 points, got {pareto}")
     extras = {}
@@ -78,6 +84,11 @@ def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0
         extras["multistart"] = multistart(case, starts, seed, progress)
     if pareto:
         extras["pareto"] = pareto_front(case, pareto, progress)  # the same front as the pareto verb
+    if scenarios:
+        from tubewright.optimizer.design.robust import DEFAULT_VERIFY_SAMPLES, robust_design
+
+        extras["robust"] = robust_design(case, scenarios, seed, verify_samples or DEFAULT_VERIFY_SAMPLES,
+                                         nominal=res, progress=progress)
     res.extras.update(extras)
     res.case = case
     return res

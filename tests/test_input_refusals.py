@@ -213,6 +213,13 @@ def test_a_screening_over_the_time_budget_is_refused(capsys):
      "task[0].latin_hypercube.ranges.tube.length"),
     ('kind = "sweep"\ngrid = { "coolant.presure" = ["100 bar"] }\n', "task[0].grid"),
     ('kind = "simulate"\ncase = "."\n', "task[0].case"),
+    # a key of another kind is refused, not ignored
+    ('kind = "optimize"\npoints = 4\n', "task[0].points"),
+    ('kind = "pareto"\nstarts = 2\n', "task[0].starts"),
+    ('kind = "simulate"\nseed = 1\n', "task[0].seed"),
+    ('kind = "screen"\nscenarios = 4\n', "task[0].scenarios"),
+    ('kind = "robust"\nscenarios = 0\n', "task[0].scenarios"),
+    ('kind = "robust"\nverify_samples = 3\n', "task[0].verify_samples"),
 ])
 def test_study_options_are_checked_naming_the_key(tmp_path, task, key):
     from tubewright.optimizer.study.spec import load_study

@@ -33,17 +33,21 @@ def _design_component(model, name, spec, value):
     return comp
 
 
-def parametrised_case(model, case, spec, kinetics=None):
+def parametrised_case(model, case, spec, kinetics=None, shared=None):
     """The case with every design quantity, the wall thickness, the kinetic parameters and the U multiplier
     replaced by Pyomo components of ``model``. ``kinetics``: {reaction index: {"k_ref": component,
     "activation_energy": component, "orders": {species: component or number}}} to use instead of the
-    model's own parameters (a fit shares them between the models of its runs)."""
-    d = {}
-    for name in DESIGN_KEYS:
-        value = case_value(case, name)
-        if value is None:
-            continue  # e.g. no coolant flow in a boiling-water case
-        d[name] = _design_component(model, name, spec, value)
+    model's own parameters (a fit shares them between the models of its runs). ``shared``: a model whose
+    design components this one uses (the scenarios of a robust design share the design)."""
+    if shared is not None:
+        d = shared.design
+    else:
+        d = {}
+        for name in DESIGN_KEYS:
+            value = case_value(case, name)
+            if value is None:
+                continue  # e.g. no coolant flow in a boiling-water case
+            d[name] = _design_component(model, name, spec, value)
     model.design = d
     n_rx = len(case.reactions)
     model.k_ref = pyo.Param(range(n_rx), mutable=True, initialize={j: rx.k_ref for j, rx in enumerate(case.reactions)})
@@ -58,9 +62,11 @@ def parametrised_case(model, case, spec, kinetics=None):
     if "coolant_temperature" in d:
         coolant = replace(coolant, temperature=d["coolant_temperature"])
     if "coolant_pressure" in d and "coolant_pressure" in spec.free:  # boiling water: T from the steam pressure
-        model.coolant_saturation = pyo.Expression(expr=water_saturation_temperature(d["coolant_pressure"],
-                                                                                     pyomo_backend()))
-        coolant = replace(coolant, temperature=model.coolant_saturation, pressure=d["coolant_pressure"])
+        if shared is None:
+            model.coolant_saturation = pyo.Expression(expr=water_saturation_temperature(d["coolant_pressure"],
+                                                                                         pyomo_backend()))
+        saturation = (shared if shared is not None else model).coolant_saturation
+        coolant = replace(coolant, temperature=saturation, pressure=d["coolant_pressure"])
     if "coolant_flow" in d:
         coolant = replace(coolant, mass_flow=d["coolant_flow"])
     shared = kinetics or {}
@@ -72,11 +78,12 @@ def parametrised_case(model, case, spec, kinetics=None):
     return replace(case, tube=tube, feed=feed, coolant=coolant, reactions=reactions, heat_transfer=heat)
 
 
-def build_tube_model(case, spec, nfe: int = 40, ncp: int = 3, block=None, kinetics=None):
+def build_tube_model(case, spec, nfe: int = 40, ncp: int = 3, block=None, kinetics=None, shared=None):
     """The discretised Pyomo model (without objective or limits), built into ``block`` if given (a fit
-    builds one block per run), else into a new model. Returns (model, parametrised case)."""
+    builds one block per run, a robust design one per scenario), else into a new model. Returns (model,
+    parametrised case)."""
     m = pyo.ConcreteModel(name="tube") if block is None else block
-    pcase = parametrised_case(m, case, spec, kinetics)
+    pcase = parametrised_case(m, case, spec, kinetics, shared)
     names = case.names
     m.S = pyo.Set(initialize=names, ordered=True)
     m.xi = dae.ContinuousSet(bounds=(0.0, 1.0))

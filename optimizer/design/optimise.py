@@ -19,11 +19,12 @@ from tubewright.optimizer.design.problem import DesignProblem, design_case
 from tubewright.optimizer.design.spec import DESIGN_FIELDS
 
 
-def optimise(case, nfe=None, ncp=None, progress=None) -> OptimizationResult:
+def optimise(case, nfe=None, ncp=None, progress=None, scenarios=None) -> OptimizationResult:
     """The whole `optimize` verb: solve, round the tube count and re-solve, verify (refining the mesh once
-    if needed), and report."""
+    if needed), and report. ``scenarios`` ([{parameter path: value}]): every limit must also hold in each
+    (a robust design; the goal stays the nominal one); the result's extras then carry the scenario rows."""
     t0 = time.perf_counter()
-    problem = DesignProblem(case, nfe, ncp, progress=progress)
+    problem = DesignProblem(case, nfe, ncp, progress=progress, scenarios=scenarios)
     spec = problem.spec
     if not spec.has_freedom:
         sim = simulate(design_case(case, problem.start_values()))
@@ -68,7 +69,7 @@ def optimise(case, nfe=None, ncp=None, progress=None) -> OptimizationResult:
     if outcome.success and verification["max_relative_deviation"] > problem.verify_tolerance:
         notes.append(f"verification deviation {verification['max_relative_deviation']:.2e} above tolerance "
                      f"{problem.verify_tolerance:g}: mesh refined from {problem.nfe} to {2 * problem.nfe} elements")
-        finer = DesignProblem(case, 2 * problem.nfe, problem.ncp, progress=progress)
+        finer = DesignProblem(case, 2 * problem.nfe, problem.ncp, progress=progress, scenarios=scenarios)
         finer.build(values)
         if "tube_count" in spec.free and spec.round_tube_count:
             finer.model.design["tube_count"].setlb(values["tube_count"])
@@ -145,6 +146,8 @@ def optimise(case, nfe=None, ncp=None, progress=None) -> OptimizationResult:
     res = OptimizationResult(status, reason, spec.goal, outcome.objective, _design_fields(values), limits, costs,
                              verification, solver, timings, sim, notes, hint, code)
     res.extras["shells"] = {"count": shells, "area_per_shell_m2": area / shells, "area_m2": area}
+    if scenarios:
+        res.extras["scenario_limits"] = problem.scenario_limit_rows(outcome)
     return res
 
 

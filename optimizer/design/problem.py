@@ -53,7 +53,7 @@ class DesignProblem:
     fixed design values) change through ``set_parameter`` and re-solve without recompiling."""
 
     def __init__(self, case, nfe: int | None = None, ncp: int | None = None, goal: str | None = None,
-                 progress=None):
+                 progress=None, scenarios=None):
         self.case = case
         self.spec = read_design(case)
         if goal is not None:
@@ -66,6 +66,8 @@ class DesignProblem:
         self.nlp = None
         self.tightened = {}  # limit -> NLP bound moved inward so that the limit holds between the points
         self.progress = progress  # optional: progress(text) and progress.iteration(k, objective, infeasibility)
+        self.scenarios = list(scenarios or [])  # [{parameter path: SI value}]: every limit holds in each
+        self.scenario_blocks = []  # (block, scenario case, limit components, state scales)
 
     def say(self, text: str):
         if self.progress is not None:
@@ -94,7 +96,8 @@ class DesignProblem:
         initialise_from_simulation(m, start_case, sim)
         self.model, self.pcase = m, pcase
         m.figures = self._figures(m, pcase)
-        self._limits(m)
+        self.limit_components = self._limits(m)
+        self._scenario_blocks(m, start or self.start_values(), sim)
         if self.case.product:  # the epsilon constraint of Pareto fronts; -1e6 leaves it slack
             m.pareto_eps = pyo.Param(mutable=True, initialize=-1.0e6)
             m.pareto_cut = pyo.Constraint(expr=m.figures["product_selectivity"] >= m.pareto_eps)
@@ -110,7 +113,29 @@ class DesignProblem:
         self.build_s = time.perf_counter() - t0
         return self
 
-    def _figures(self, m, pcase) -> dict:
+    def _scenario_blocks(self, m, start: dict, nominal_sim):
+        """A robust design: one tube block per scenario (the case with the scenario's parameter values),
+        sharing the design components, with every limit on the nominal model's bounds. A scenario whose
+        starting design cannot be simulated starts from the nominal simulation."""
+        from tubewright.models.parameters import apply
+
+        self.scenario_blocks = []
+        if not self.scenarios:
+            return
+        m.scenario = pyo.Block(range(len(self.scenarios)))
+        for k, values in enumerate(self.scenarios):
+            case_k = apply(self.case, values)
+            b = m.scenario[k]
+            _, pcase_k = build_tube_model(case_k, self.spec, self.nfe, self.ncp, block=b, shared=m)
+            start_k = design_case(case_k, start)
+            sim_k = simulate(start_k, checks=False)
+            if not sim_k.ok:
+                start_k, sim_k = design_case(self.case, start), nominal_sim
+            initialise_from_simulation(b, start_k, sim_k)
+            b.figures = self._figures(b, pcase_k, nominal=False)
+            self.scenario_blocks.append((b, case_k, self._limits(b, m.limit_value), state_scaling(b, start_k, sim_k)))
+
+    def _figures(self, m, pcase, nominal: bool = True) -> dict:
         """The design figures as Pyomo expressions, under the names of the simulation summary (pointwise
         figures as {collocation point: expression}); limits and goals are written against these."""
         case = self.case
@@ -137,19 +162,23 @@ class DesignProblem:
         m.shells = pyo.Param(mutable=True, initialize=1)  # set by solve_nlp when the area passes one shell
         costs = cost_figures(pyomo_backend(), self.spec.costs, case, figures, coolant, m.shells)
         figures["annual_cost_per_year"] = costs["total"]
-        self.cost_expressions = costs
+        if nominal:
+            self.cost_expressions = costs
         return figures
 
-    def _limits(self, m):
+    def _limits(self, m, bounds=None) -> dict:
         """One constraint (or one per collocation point) per limit of [limits], from its row of
-        models.limits; bounds are mutable parameters, so a changed limit re-solves without recompiling."""
+        models.limits; bounds are mutable parameters (``bounds``, else new ones on ``m``), so a changed limit
+        re-solves without recompiling. Returns {limit: constraint component}."""
         lim = self.spec.limits
-        m.limit_value = pyo.Param(list(lim), mutable=True, initialize=lim)
-        self.limit_components = {}
+        if bounds is None:
+            m.limit_value = pyo.Param(list(lim), mutable=True, initialize=lim)
+            bounds = m.limit_value
+        components = {}
         for name in lim:
             row = LIMITS[name]
             q = m.figures[row.figure]
-            bound = m.limit_value[name]
+            bound = bounds[name]
 
             def keep(expr, row=row, bound=bound):
                 return expr <= bound if row.kind == "max" else expr >= bound
@@ -159,12 +188,14 @@ class DesignProblem:
             else:
                 comp = pyo.Constraint(expr=keep(q))
             m.add_component(f"limit_{name}", comp)
-            self.limit_components[name] = comp
+            components[name] = comp
+        return components
 
-    def limit_value(self, name) -> float:
-        """The current value of a limit's figure (its largest, or smallest, value over the points)."""
+    def limit_value(self, name, block=None) -> float:
+        """The current value of a limit's figure (its largest, or smallest, value over the points) in the
+        nominal model or a scenario ``block``."""
         row = LIMITS[name]
-        q = self.model.figures[row.figure]
+        q = (block if block is not None else self.model).figures[row.figure]
         if row.pointwise:
             values = [pyo.value(e) for e in q.values()]
             return max(values) if row.kind == "max" else min(values)
@@ -182,16 +213,21 @@ class DesignProblem:
     def scaling(self):
         m = self.model
         factors, con_factors = tube_scale_factors(m, self.case, self._scales)
+        for b, case_k, _, scales_k in self.scenario_blocks:
+            more_vars, more_cons = tube_scale_factors(b, case_k, scales_k)
+            factors.update(more_vars)
+            con_factors.update(more_cons)
         for name, comp in m.design.items():
             if name in self.spec.free:
                 factors[id(comp)] = 1.0 / max(abs(comp.value), 1e-12)
         x_s = np.array([factors.get(id(v), 1.0) for v in self.nlp.variables])
         g_s = np.array([con_factors.get(id(c), 1.0) for c in self.nlp.constraints])
         row = {id(c): i for i, c in enumerate(self.nlp.constraints)}
-        for name, comp in self.limit_components.items():
-            bound = abs(self.spec.limits[name]) or 1.0
-            for c in (comp.values() if comp.is_indexed() else [comp]):
-                g_s[row[id(c)]] = 1.0 / bound
+        for components in [self.limit_components, *(blk[2] for blk in self.scenario_blocks)]:
+            for name, comp in components.items():
+                bound = abs(self.spec.limits[name]) or 1.0
+                for c in (comp.values() if comp.is_indexed() else [comp]):
+                    g_s[row[id(c)]] = 1.0 / bound
         return self.obj_scale, x_s, g_s
 
     def linear_solver_options(self) -> dict:
@@ -283,6 +319,25 @@ class DesignProblem:
             multiplier = (float(sign * lam) if binding else 0.0) if outcome.success else None
             rows.append(LimitRow(name, value, bound, row.kind, bool(binding) and outcome.success, multiplier, row.unit))
         return rows
+
+    def scenario_limit_rows(self, outcome) -> list[dict]:
+        """Per scenario: each limit's value, whether it binds and its multiplier (as ``limit_rows``)."""
+        index = {id(c): i for i, c in enumerate(self.nlp.constraints)}
+        sign = -1.0 if GOALS[self.spec.goal].sense == "min" else 1.0
+        out = []
+        for k, (b, _, components, _) in enumerate(self.scenario_blocks):
+            rows = []
+            for name, comp in components.items():
+                cons = list(comp.values()) if comp.is_indexed() else [comp]
+                lam = sum(outcome.multipliers[index[id(c)]] for c in cons)
+                value = self.limit_value(name, b)
+                enforced = float(pyo.value(self.model.limit_value[name]))
+                binding = abs(value - enforced) <= 1e-5 * max(abs(enforced), 1e-12) + 1e-9 and abs(lam) > 1e-12
+                rows.append({"limit": name, "value": value, "bound": self.spec.limits[name],
+                             "binding": bool(binding) and outcome.success,
+                             "multiplier": (float(sign * lam) if binding else 0.0) if outcome.success else None})
+            out.append({"scenario": k + 1, "parameters": self.scenarios[k], "limits": rows})
+        return out
 
     def verify(self, values) -> tuple[dict, object]:
         """Re-simulate the design with the adaptive integrator and compare the states at the collocation

@@ -1,9 +1,11 @@
-"""Axial-profile plot of a simulation: temperatures (gas, coolant, limit), conversion, pressure."""
+"""Plots: the axial profiles of a simulation (temperatures, conversion, pressure), the cost-selectivity front
+and the hot-spot distributions of a robust design."""
 
 from __future__ import annotations
 
 from pathlib import Path
 
+import numpy as np
 from tubewright.optimizer.output.canvas import new_figure
 from tubewright.optimizer.output.text import plain
 
@@ -64,6 +66,38 @@ def plot_front(case, front: dict, path: Path) -> Path:
     missing = len(front.get("not_converged", []))
     ax.set_title(plain(case.title) + (f"\n({missing} point(s) did not converge: not drawn)" if missing else ""),
                  fontsize=8)
+    fig.text(0.01, 0.005, "Screening estimate only - verify before use.", fontsize=7, color="gray")
+    fig.tight_layout(rect=(0, 0.02, 1, 1))
+    path = Path(path)
+    fig.savefig(path, dpi=110)
+    return path
+
+
+def plot_robust(case, robust: dict, path: Path) -> Path:
+    """The hot spot over the fresh verification samples for the nominal and the robust design, against the
+    hot-spot limit (runaway samples sit at the temperature ceiling)."""
+    fig = new_figure((6.4, 4.2))
+    ax = fig.subplots()
+    samples = {label: np.asarray(v.get("hot_spot_samples_K", []), dtype=float)
+               for label, v in robust["verification"].items()}
+    every = np.concatenate([t[np.isfinite(t)] for t in samples.values()] + [np.zeros(0)])
+    edges = np.linspace(every.min(), every.max(), 41) if every.size and every.max() > every.min() else 40
+    for label, colour in (("nominal", "C0"), ("robust", "C1")):
+        v = robust["verification"].get(label)
+        t = samples.get(label, np.zeros(0))
+        t = t[np.isfinite(t)]
+        if not t.size:
+            continue
+        ax.hist(t, bins=edges, alpha=0.55, color=colour,
+                label=f"{label} design: passes every limit in {100 * v['probability']:.1f} % "
+                      f"(95 %: {100 * v['interval_95'][0]:.1f}-{100 * v['interval_95'][1]:.1f} %)")
+    limit = case.limits.get("max_temperature")
+    if limit is not None:
+        ax.axvline(limit, color="red", linestyle="--", label=f"hot-spot limit {limit:.1f} K")
+    ax.set_xlabel("hot-spot temperature [K] (runaway samples at the temperature ceiling)")
+    ax.set_ylabel(f"samples (of {robust['verification'].get('robust', {}).get('samples', '?')})")
+    ax.set_title(plain(case.title) + f"\nrobust design over {robust['scenarios']} scenarios", fontsize=8)
+    ax.legend(fontsize=7)
     fig.text(0.01, 0.005, "Screening estimate only - verify before use.", fontsize=7, color="gray")
     fig.tight_layout(rect=(0, 0.02, 1, 1))
     path = Path(path)

@@ -36,9 +36,14 @@ from tubewright import __version__
 
 MAX_SWEEP = 100_000  # points of one Latin hypercube
 MAX_TASKS = 100_000  # concrete tasks of one study, unless raised (--max-tasks)
-KINDS = ("simulate", "sweep", "optimize", "pareto", "screen")
-TASK_KEYS = {"name", "kind", "case", "set", "timeout", "grid", "latin_hypercube", "starts", "seed", "ideal",
-             "points", "method", "samples", "policy"}
+COMMON_KEYS = ("name", "kind", "case", "set", "timeout")
+KIND_KEYS = {  # the keys each kind reads besides COMMON_KEYS; any other key of a task is refused
+    "simulate": (), "sweep": ("grid", "latin_hypercube"), "optimize": ("starts", "seed", "ideal"),
+    "pareto": ("points",), "screen": ("method", "samples", "seed", "policy"),
+    "robust": ("scenarios", "seed", "verify_samples"),
+}
+KINDS = tuple(KIND_KEYS)
+TASK_KEYS = {*COMMON_KEYS, *(k for keys in KIND_KEYS.values() for k in keys)}
 
 
 @dataclass(frozen=True)
@@ -130,6 +135,11 @@ def load_study(path, max_tasks: int = None) -> Study:
         if kind not in KINDS:
             raise CaseError(src, f"{where}.kind", f'"{kind}" is not allowed{suggest(str(kind), KINDS)}; allowed: '
                             f"{', '.join(KINDS)}")
+        foreign = [k for k in t if k not in COMMON_KEYS and k not in KIND_KEYS[kind]]
+        if foreign:
+            reads = ", ".join(KIND_KEYS[kind]) or "none besides " + ", ".join(COMMON_KEYS)
+            raise CaseError(src, f"{where}.{foreign[0]}", f'does not apply to a task of kind "{kind}"; it reads: '
+                            f"{reads}")
         base_name = t.get("case", data.get("base"))
         if not base_name or not isinstance(base_name, str):
             raise CaseError(src, f"{where}.case", "missing: give the study a base case or the task a case")
@@ -239,6 +249,10 @@ def _options(t, kind, src, where) -> dict:
                 "ideal": ideal}
     if kind == "pareto":
         return {"points": _whole(t, "points", 5, src, where, low=2, high=1000)}
+    if kind == "robust":
+        return {"scenarios": _whole(t, "scenarios", 8, src, where, low=1, high=1000),
+                "seed": _whole(t, "seed", 0, src, where),
+                "verify_samples": _whole(t, "verify_samples", 1000, src, where, low=10, high=1_000_000)}
     if kind == "screen":
         method = t.get("method", "morris")
         if method not in METHODS:

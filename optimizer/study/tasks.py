@@ -74,6 +74,21 @@ def _run(spec) -> dict:
         done = res.status in (Status.OPTIMAL, Status.NOT_OPTIMISED)
         return {"status": Status.DONE if done else res.status, "reason_code": res.reason_code,
                 "reason": res.reason, "summary": res.as_dict(), "tables": tables}
+    if kind == "robust":
+        res = verbs.optimize(case, seed=opts["seed"], scenarios=opts["scenarios"],
+                             verify_samples=opts["verify_samples"])
+        robust = res.extras.get("robust", {})
+        ok = res.ok and robust.get("status") == Status.OPTIMAL
+        # the hot spots of the verification samples go to a table, not into the summary
+        hot = {label: v.pop("hot_spot_samples_K", []) for label, v in robust.get("verification", {}).items()}
+        price = robust.get("price_percent")
+        return {"status": Status.DONE if ok else Status.FAILED,
+                "reason_code": Reason.COMPLETED if ok else Reason.SOLVER_FAILED,
+                "reason": (f"robust design over {opts['scenarios']} scenarios"
+                           + (f", price of robustness {price:.3g} %" if price is not None else "")) if ok
+                else robust.get("reason", res.reason),
+                "summary": res.as_dict(),
+                "tables": {f"hot_spots_{label}": {"max_temperature_K": v} for label, v in hot.items()}}
     if kind == "pareto":
         front = verbs.pareto(case, opts["points"])
         pts = front["points"]

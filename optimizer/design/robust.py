@@ -1,0 +1,115 @@
+"""A design that holds under uncertainty: K scenarios drawn from [uncertain] (seeded, quasi-random: scrambled
+Sobol points mapped by each distribution, correlated sets included), one NLP in which the design is shared
+and every limit holds in the nominal case and in every scenario (optimizer.design.problem), the goal the
+nominal one. Then both designs, nominal and robust, are simulated on M fresh random samples with the
+batched integrator: the probability of passing every limit with its exact binomial interval, and
+P5/P50/P95 of the hot spot and of the production rate.
+
+The scenario approach (Campi and Garatti 2008, SIAM J. Optim. 19, 1211-1230, Theorem 1): for a convex
+program with d decision variables and K independent scenarios, the probability that the violation
+probability exceeds eps is at most sum_{i<d} C(K, i) eps^i (1 - eps)^(K - i). The reported guarantee is the
+eps at which that sum is BETA. The tube design is not convex and the scenarios are quasi-random, not
+independent: the bound is an indication beside the measured probability, not a proof."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from tubewright.models.errors import CaseError
+
+BETA = 0.01  # confidence parameter of the scenario guarantee (the guarantee holds with 1 - BETA)
+DEFAULT_VERIFY_SAMPLES = 1000
+
+
+def draw_scenarios(case, k: int, seed: int):
+    """K scenarios {parameter path: SI value} from the case's [uncertain] block (scrambled Sobol points)."""
+    from scipy.stats import qmc
+    from tubewright.optimizer.design.spec import DESIGN_KEYS
+    from tubewright.optimizer.screening.sampling import to_parameters
+    from tubewright.optimizer.screening.uncertain import read_uncertain
+
+    items = read_uncertain(case)
+    design_paths = {where for _, where in DESIGN_KEYS.values()}
+    for u in items:
+        if u.path in design_paths:
+            raise CaseError(case.source, f"uncertain.{u.joint.name if u.joint else u.name}",
+                            f'"{u.path}" is a design quantity: a robust design shares it between the scenarios, '
+                            "so it cannot vary by scenario; screen it instead")
+    # the first K points of a scrambled Sobol sequence (drawn as the next power of two, which Sobol wants)
+    sobol = qmc.Sobol(len(items), scramble=True, seed=np.random.default_rng([seed, 11]))
+    unit = sobol.random_base2(max(0, math.ceil(math.log2(k))))[:k]
+    unit = np.clip(unit, 1e-6, 1 - 1e-6)  # unbounded distributions: no infinite draws
+    values = to_parameters(items, unit)
+    return items, [{p: float(v[i]) for p, v in values.items()} for i in range(k)]
+
+
+def scenario_guarantee(k: int, d: int, beta: float = BETA) -> dict:
+    """The violation level eps of the scenario approach for K scenarios and d decision variables."""
+    from scipy.optimize import brentq
+    from scipy.stats import binom
+
+    if k < d:
+        return {"scenarios": k, "decision_variables": d, "beta": beta, "epsilon": None,
+                "note": "fewer scenarios than decision variables: no guarantee"}
+    eps = brentq(lambda e: binom.cdf(d - 1, k, e) - beta, 1e-12, 1 - 1e-12)
+    return {"scenarios": k, "decision_variables": d, "beta": beta, "epsilon": float(eps),
+            "pass_probability_at_least": float(1 - eps),
+            "note": f"with confidence {1 - beta:g} for a convex program and independent scenarios (Campi and "
+                    "Garatti 2008); indicative here"}
+
+
+def verify_design(case, items, values: dict, samples: int, seed: int) -> dict:
+    """The design ``values`` simulated on ``samples`` fresh random draws of [uncertain] (batched)."""
+    from tubewright.optimizer.design.problem import design_case
+    from tubewright.optimizer.screening.analysis import clopper_pearson
+    from tubewright.optimizer.screening.evaluation import evaluate
+
+    unit = np.random.default_rng([seed, 13]).random((samples, len(items)))
+    ev = evaluate(design_case(case, values), items, np.clip(unit, 1e-9, 1 - 1e-9))
+    passes = ev.outputs.get("passes_limits")
+    unknown = int(np.sum(~np.isfinite(passes))) if passes is not None else samples
+    passed = int(np.nansum(passes)) if passes is not None else 0  # a failed sample counts as not passing
+    low, high = clopper_pearson(passed, samples)
+    out = {"samples": samples, "passed": passed, "failed_samples": unknown, "probability": passed / samples,
+           "interval_95": [low, high]}
+    for name in ("max_temperature_K", "production_rate_mol_s"):
+        v = ev.censored.get(name)
+        if v is not None and np.any(np.isfinite(v)):
+            out[name] = dict(zip(("P5", "P50", "P95"), map(float, np.nanpercentile(v, [5, 50, 95]))))
+    hot = ev.censored.get("max_temperature_K")
+    out["hot_spot_samples_K"] = [] if hot is None else [round(float(t), 3) for t in hot]  # for the plot
+    return out
+
+
+def robust_design(case, k: int, seed: int = 0, samples: int = DEFAULT_VERIFY_SAMPLES, nominal=None,
+                  progress=None) -> dict:
+    """The robust optimum beside the nominal one (``nominal``: its OptimizationResult, solved when not
+    given), the price of
+    robustness, the scenarios with the limits they bind, both designs verified on fresh samples, and the
+    scenario guarantee."""
+    from tubewright.optimizer.design.optimise import optimise
+    from tubewright.optimizer.design.spec import DESIGN_FIELDS, read_design
+
+    items, scenarios = draw_scenarios(case, k, seed)
+    if nominal is None:
+        nominal = optimise(case, progress=progress)
+    if progress is not None:
+        progress(f"robust design: {k} scenarios")
+    robust = optimise(case, progress=progress, scenarios=scenarios)
+    out = {"scenarios": k, "seed": seed, "goal": "nominal", "status": str(robust.status), "reason": robust.reason,
+           "objective": robust.objective, "design": robust.design, "limits": [r.as_dict() for r in robust.limits],
+           "scenario_limits": robust.extras.get("scenario_limits", []), "notes": robust.notes}
+    if nominal is not None and nominal.ok and robust.ok:
+        out["price"] = robust.objective - nominal.objective
+        out["price_percent"] = 100.0 * out["price"] / abs(nominal.objective) if nominal.objective else None
+    fields = {v: k for k, v in DESIGN_FIELDS.items()}
+    verification = {}
+    for label, res in (("nominal", nominal), ("robust", robust)):
+        if res is not None and res.ok:
+            values = {fields[f]: v for f, v in res.design.items()}
+            verification[label] = verify_design(case, items, values, samples, seed)
+    out["verification"] = verification
+    out["guarantee"] = scenario_guarantee(k + 1, len(read_design(case).free))  # the nominal case is a scenario too
+    out["verification_seed"] = seed
+    return out

@@ -19,10 +19,11 @@ from tubewright.optimizer.design.problem import DesignProblem, design_case
 from tubewright.optimizer.design.spec import DESIGN_FIELDS
 
 
-def optimise(case, nfe=None, ncp=None, progress=None, scenarios=None) -> OptimizationResult:
+def optimise(case, nfe=None, ncp=None, progress=None, scenarios=None, start=None) -> OptimizationResult:
     """The whole `optimize` verb: solve, round the tube count and re-solve, verify (refining the mesh once
     if needed), and report. ``scenarios`` ([{parameter path: value}]): every limit must also hold in each
-    (a robust design; the goal stays the nominal one); the result's extras then carry the scenario rows."""
+    (a robust design; the goal stays the nominal one); the result's extras then carry the scenario rows.
+    ``start``: the starting design {design key: SI value} (default: the starts of [design])."""
     t0 = time.perf_counter()
     problem = DesignProblem(case, nfe, ncp, progress=progress, scenarios=scenarios)
     spec = problem.spec
@@ -44,7 +45,7 @@ def optimise(case, nfe=None, ncp=None, progress=None, scenarios=None) -> Optimiz
                                   hint=f"lower limits.{worst['limit']} below {worst['maximum']:.6g} {worst['unit']} "
                                   "or raise the feed")
     try:
-        problem.build()
+        problem.build(start)
     except ComputationFailed as err:
         sim = simulate(design_case(case, problem.start_values()), checks=False)
         return OptimizationResult(Status.FAILED, str(err), spec.goal, None, simulation=sim, reason_code=err.code,

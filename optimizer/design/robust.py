@@ -96,14 +96,19 @@ def robust_design(case, k: int, seed: int = 0, samples: int = DEFAULT_VERIFY_SAM
         nominal = optimise(case, progress=progress)
     if progress is not None:
         progress(f"robust design: {k} scenarios")
-    robust = optimise(case, progress=progress, scenarios=scenarios)
+    fields = {v: k for k, v in DESIGN_FIELDS.items()}
+    start = None
+    if nominal.ok:  # from the nominal optimum: the scenarios then move it only as far as they must
+        free = read_design(case).free
+        start = {fields[f]: v for f, v in nominal.design.items() if fields[f] in free}
+        start = {k: min(max(v, free[k].lower), free[k].upper) for k, v in start.items()}
+    robust = optimise(case, progress=progress, scenarios=scenarios, start=start)
     out = {"scenarios": k, "seed": seed, "goal": "nominal", "status": str(robust.status), "reason": robust.reason,
            "objective": robust.objective, "design": robust.design, "limits": [r.as_dict() for r in robust.limits],
            "scenario_limits": robust.extras.get("scenario_limits", []), "notes": robust.notes}
     if nominal is not None and nominal.ok and robust.ok:
         out["price"] = robust.objective - nominal.objective
         out["price_percent"] = 100.0 * out["price"] / abs(nominal.objective) if nominal.objective else None
-    fields = {v: k for k, v in DESIGN_FIELDS.items()}
     verification = {}
     for label, res in (("nominal", nominal), ("robust", robust)):
         if res is not None and res.ok:

@@ -25,7 +25,7 @@ else:  # pragma: no cover
     import tomli as tomllib
 
 SECTIONS = ("title", "note", "include", "chemistry", "feed", "tube", "bed", "coolant", "heat_transfer",
-            "limits", "numerics", "design", "goal", "costs", "uncertain", "fit")
+            "limits", "numerics", "design", "goal", "costs", "uncertain", "fit", "robust")
 
 
 MAX_FILE_BYTES = 1_000_000  # a case or study file is text of a few kB

@@ -84,11 +84,18 @@ def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0
         extras["multistart"] = multistart(case, starts, seed, progress)
     if pareto:
         extras["pareto"] = pareto_front(case, pareto, progress)  # the same front as the pareto verb
-    if scenarios:
-        from tubewright.optimizer.design.robust import DEFAULT_VERIFY_SAMPLES, robust_design
+    from tubewright.optimizer.design.robust import DEFAULT_SCENARIOS, DEFAULT_VERIFY_SAMPLES, read_robust, robust_design
 
-        extras["robust"] = robust_design(case, scenarios, seed, verify_samples or DEFAULT_VERIFY_SAMPLES,
-                                         nominal=res, progress=progress)
+    settings = read_robust(case)  # [robust] of the case; --scenarios (with its --seed), --verify-samples override
+    if scenarios or settings:
+        settings = settings or {"scenarios": DEFAULT_SCENARIOS, "seed": 0, "goal": "nominal",
+                                "verify_samples": DEFAULT_VERIFY_SAMPLES}
+        if scenarios:
+            settings.update(scenarios=scenarios, seed=seed)
+        if verify_samples:
+            settings["verify_samples"] = verify_samples
+        extras["robust"] = robust_design(case, settings["scenarios"], settings["seed"], settings["verify_samples"],
+                                         nominal=res, progress=progress, goal=settings["goal"])
     res.extras.update(extras)
     res.case = case
     return res

@@ -125,3 +125,37 @@ def test_a_robust_study_task_records_the_robust_design(tmp_path):
     verified = robust["verification"]["robust"]
     assert verified["samples"] == 50 and "hot_spot_samples_K" not in verified  # those went to a table
     assert list((tmp_path / "out" / "tables").glob("*hot_spots_robust.parquet"))
+
+
+def test_expected_goal_is_the_mean_of_the_simulated_scenarios():
+    # [robust] goal = "expected": the objective is the mean goal over the nominal case and the scenarios;
+    # checked against the adaptive integrator: the robust design simulated in each scenario, its goal averaged
+    # (for A -> D the yield of D is the conversion of A)
+    from tubewright.models.parameters import apply
+    from tubewright.models.simulator import simulate
+    from tubewright.optimizer.design.problem import design_case
+    from tubewright.optimizer.design.robust import read_robust
+
+    case = make(liquid_case(**{
+        "design": {"length": {"min": "1 m", "max": "30 m"}}, "limits": {"min_conversion": 0.5},
+        "goal": {"objective": "max_yield"}, "numerics.finite_elements": 20,
+        "uncertain": {"k": {"parameter": K_PATH, "distribution": "uniform", "min": "0.006 1/s", "max": "0.014 1/s"}},
+        "robust": {"scenarios": 4, "goal": "expected"}}))
+    settings = read_robust(case)
+    assert settings == {"scenarios": 4, "seed": 0, "goal": "expected", "verify_samples": 1000}
+    _, scenarios = draw_scenarios(case, 4, 0)
+    res = optimise(case, scenarios=scenarios, scenario_goal="expected")
+    values = {"length": res.design["length_m"]}
+    conversions = [simulate(design_case(c, values), checks=False).summary["conversion"]
+                   for c in [case, *(apply(case, s) for s in scenarios)]]
+    assert res.objective == pytest.approx(np.mean(conversions), rel=1e-5)
+
+
+def test_robust_section_is_checked():
+    for robust, key in (({"goal": "worst"}, "robust.goal"), ({"scenarios": 0}, "robust.scenarios"),
+                        ({"scenaros": 4}, "robust.scenaros")):
+        from tubewright.optimizer.design.robust import read_robust
+
+        with pytest.raises(CaseError) as info:
+            read_robust(make(liquid_case(robust=robust)))
+        assert info.value.key == key

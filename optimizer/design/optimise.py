@@ -19,13 +19,14 @@ from tubewright.optimizer.design.problem import DesignProblem, design_case
 from tubewright.optimizer.design.spec import DESIGN_FIELDS
 
 
-def optimise(case, nfe=None, ncp=None, progress=None, scenarios=None, start=None) -> OptimizationResult:
+def optimise(case, nfe=None, ncp=None, progress=None, scenarios=None, start=None,
+             scenario_goal: str = "nominal") -> OptimizationResult:
     """The whole `optimize` verb: solve, round the tube count and re-solve, verify (refining the mesh once
     if needed), and report. ``scenarios`` ([{parameter path: value}]): every limit must also hold in each
     (a robust design; the goal stays the nominal one); the result's extras then carry the scenario rows.
     ``start``: the starting design {design key: SI value} (default: the starts of [design])."""
     t0 = time.perf_counter()
-    problem = DesignProblem(case, nfe, ncp, progress=progress, scenarios=scenarios)
+    problem = DesignProblem(case, nfe, ncp, progress=progress, scenarios=scenarios, scenario_goal=scenario_goal)
     spec = problem.spec
     if not spec.has_freedom:
         sim = simulate(design_case(case, problem.start_values()))
@@ -70,7 +71,8 @@ def optimise(case, nfe=None, ncp=None, progress=None, scenarios=None, start=None
     if outcome.success and verification["max_relative_deviation"] > problem.verify_tolerance:
         notes.append(f"verification deviation {verification['max_relative_deviation']:.2e} above tolerance "
                      f"{problem.verify_tolerance:g}: mesh refined from {problem.nfe} to {2 * problem.nfe} elements")
-        finer = DesignProblem(case, 2 * problem.nfe, problem.ncp, progress=progress, scenarios=scenarios)
+        finer = DesignProblem(case, 2 * problem.nfe, problem.ncp, progress=progress, scenarios=scenarios,
+                              scenario_goal=scenario_goal)
         finer.build(values)
         if "tube_count" in spec.free and spec.round_tube_count:
             finer.model.design["tube_count"].setlb(values["tube_count"])

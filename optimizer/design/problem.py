@@ -53,7 +53,7 @@ class DesignProblem:
     fixed design values) change through ``set_parameter`` and re-solve without recompiling."""
 
     def __init__(self, case, nfe: int | None = None, ncp: int | None = None, goal: str | None = None,
-                 progress=None, scenarios=None):
+                 progress=None, scenarios=None, scenario_goal: str = "nominal"):
         self.case = case
         self.spec = read_design(case)
         if goal is not None:
@@ -68,6 +68,7 @@ class DesignProblem:
         self.progress = progress  # optional: progress(text) and progress.iteration(k, objective, infeasibility)
         self.scenarios = list(scenarios or [])  # [{parameter path: SI value}]: every limit holds in each
         self.scenario_blocks = []  # (block, scenario case, limit components, state scales)
+        self.scenario_goal = scenario_goal  # "nominal" or "expected" (the mean over nominal and scenarios)
 
     def say(self, text: str):
         if self.progress is not None:
@@ -159,8 +160,10 @@ class DesignProblem:
             figures.update(production_rate_mol_s=N * formed, product_yield=yld, product_selectivity=selectivity,
                            key_lost_mol_s=N * key_lost(case, f_in, f_out))
         coolant = m.design["coolant_flow"] if "coolant_flow" in m.design else 0.0
-        m.shells = pyo.Param(mutable=True, initialize=1)  # set by solve_nlp when the area passes one shell
-        costs = cost_figures(pyomo_backend(), self.spec.costs, case, figures, coolant, m.shells)
+        if nominal:
+            m.shells = pyo.Param(mutable=True, initialize=1)  # set by solve_nlp when the area passes one shell
+        shells = m.shells if nominal else self.model.shells  # the scenarios share the layout, hence its shells
+        costs = cost_figures(pyomo_backend(), self.spec.costs, case, figures, coolant, shells)
         figures["annual_cost_per_year"] = costs["total"]
         if nominal:
             self.cost_expressions = costs
@@ -206,8 +209,14 @@ class DesignProblem:
         return {k: float(pyo.value(v)) for k, v in self.cost_expressions.items()}
 
     def _objective(self, m):
+        """The goal of the nominal model; with scenarios and ``scenario_goal = "expected"`` its mean over the
+        nominal case and the scenarios (equal weights)."""
         goal = GOALS[self.spec.goal]
-        m.goal = pyo.Objective(expr=goal.value(m.figures), sense=pyo.minimize if goal.sense == "min" else pyo.maximize)
+        value = goal.value(m.figures)
+        if self.scenario_goal == "expected" and self.scenario_blocks:
+            value = (value + sum(goal.value(b.figures) for b, *_ in self.scenario_blocks)) / (
+                1 + len(self.scenario_blocks))
+        m.goal = pyo.Objective(expr=value, sense=pyo.minimize if goal.sense == "min" else pyo.maximize)
 
     # --- solving ----------------------------------------------------------------------------------------
     def scaling(self):

@@ -20,6 +20,25 @@ from tubewright.models.errors import CaseError
 
 BETA = 0.01  # confidence parameter of the scenario guarantee (the guarantee holds with 1 - BETA)
 DEFAULT_VERIFY_SAMPLES = 1000
+DEFAULT_SCENARIOS = 8
+GOALS = ("nominal", "expected")  # the goal at the nominal values (default), or its mean over all scenarios
+
+
+def read_robust(case) -> dict | None:
+    """``[robust]`` of a design case: scenarios (default 8), seed (0), goal ("nominal", the default, or
+    "expected": the mean over the nominal case and the scenarios), verify_samples (1000); None without it."""
+    from tubewright.models.casefile import Table
+
+    if "robust" not in case.raw:
+        return None
+    t = Table(case.raw["robust"], case.source, "robust", {"scenarios", "seed", "goal", "verify_samples"})
+    out = {"scenarios": t.number("scenarios", default=DEFAULT_SCENARIOS, low=1, high=1000, integer=True),
+           "seed": t.number("seed", default=0, low=0, high=2**31 - 1, integer=True),
+           "goal": t.choice("goal", GOALS, default="nominal"),
+           "verify_samples": t.number("verify_samples", default=DEFAULT_VERIFY_SAMPLES, low=10, high=1_000_000,
+                                      integer=True)}
+    t.finish()
+    return out
 
 
 def draw_scenarios(case, k: int, seed: int):
@@ -83,7 +102,7 @@ def verify_design(case, items, values: dict, samples: int, seed: int) -> dict:
 
 
 def robust_design(case, k: int, seed: int = 0, samples: int = DEFAULT_VERIFY_SAMPLES, nominal=None,
-                  progress=None) -> dict:
+                  progress=None, goal: str = "nominal") -> dict:
     """The robust optimum beside the nominal one (``nominal``: its OptimizationResult, solved when not
     given), the price of
     robustness, the scenarios with the limits they bind, both designs verified on fresh samples, and the
@@ -102,8 +121,8 @@ def robust_design(case, k: int, seed: int = 0, samples: int = DEFAULT_VERIFY_SAM
         free = read_design(case).free
         start = {fields[f]: v for f, v in nominal.design.items() if fields[f] in free}
         start = {k: min(max(v, free[k].lower), free[k].upper) for k, v in start.items()}
-    robust = optimise(case, progress=progress, scenarios=scenarios, start=start)
-    out = {"scenarios": k, "seed": seed, "goal": "nominal", "status": str(robust.status), "reason": robust.reason,
+    robust = optimise(case, progress=progress, scenarios=scenarios, start=start, scenario_goal=goal)
+    out = {"scenarios": k, "seed": seed, "goal": goal, "status": str(robust.status), "reason": robust.reason,
            "objective": robust.objective, "design": robust.design, "limits": [r.as_dict() for r in robust.limits],
            "scenario_limits": robust.extras.get("scenario_limits", []), "notes": robust.notes}
     if nominal is not None and nominal.ok and robust.ok:

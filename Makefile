@@ -18,6 +18,7 @@ demo: $(STAMP)
 	$(BIN)/tubewright simulate studies/demo/oxidation.toml --out demo-output/oxidation
 	$(BIN)/tubewright simulate studies/demo/coil.toml --out demo-output/coil
 	$(BIN)/tubewright optimize studies/demo/oxidation-design.toml --ideal --out demo-output/oxidation-design
+	$(BIN)/tubewright optimize studies/demo/oxidation-design.toml --scenarios 8 --verify-samples 300 --out demo-output/robust
 	$(BIN)/tubewright screen studies/demo/oxidation-screen.toml --method morris --samples 10 --out demo-output/screen
 	$(BIN)/tubewright fit studies/demo/oxidation-lab.toml --data studies/demo/oxidation-lab-runs.csv --out demo-output/fit --design studies/demo/oxidation.toml
 	$(BIN)/tubewright screen demo-output/fit/design-fitted.toml --method sobol --samples 64 --out demo-output/fit-screen

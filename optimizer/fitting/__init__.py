@@ -1,2 +1,2 @@
-"""Kinetics from laboratory data: the statistics of a weighted least-squares fit (the estimator and the
-`fit` verb follow)."""
+"""Kinetics from laboratory data: the runs (data), the [fit] section (spec), the estimator over all runs at
+once (estimate) and the statistics of the fit (statistics)."""

@@ -323,11 +323,13 @@ def extra_lines(res, extras) -> list[str]:
 def robust_lines(r: dict) -> list[str]:
     """The robust design beside the nominal one, the scenarios that bind, the verification and the
     scenario guarantee."""
-    lines = [f"\nrobust design over {r['scenarios']} scenarios of [uncertain] (seed {r['seed']}; goal: the nominal "
-             f"one; every limit in the nominal case and in each scenario): {r['status']} ({r['reason']})"]
+    goal = "the nominal one" if r["goal"] == "nominal" else "its mean over the nominal case and the scenarios"
+    lines = [f"\nrobust design over {r['scenarios']} scenarios of [uncertain] (seed {r['seed']}; goal: {goal}; "
+             f"every limit in the nominal case and in each scenario): {r['status']} ({r['reason']})"]
     if r.get("objective") is not None:
-        lines.append(f"  goal {_fmt(r['objective'])}" + (f", price of robustness {_fmt(r['price'])} "
-                                                         f"({r['price_percent']:.2f} %)" if "price" in r else ""))
+        price = (f", price of robustness {_fmt(r['price'])} ({r['price_percent']:.2f} %) at the nominal values"
+                 if r.get("price_percent") is not None else "")
+        lines.append(f"  goal {_fmt(r['objective'])}{price}")
         lines.append("  design: " + ", ".join(f"{k} {_fmt(v)}" for k, v in r["design"].items()))
     for s in r["scenario_limits"]:
         binding = [f"{row['limit']} (multiplier {_fmt(row['multiplier'])})" for row in s["limits"] if row["binding"]]

@@ -13,6 +13,7 @@ from tubewright.models.errors import ComputationFailed
 from tubewright.models.limits import LIMITS
 from tubewright.models.outcomes import Reason, Status
 from tubewright.models.simulator import simulate
+from tubewright.optimizer.design.goals import GOALS
 from tubewright.optimizer.design.outcome import LimitRow, OptimizationResult
 from tubewright.optimizer.design.precheck import infeasible_duties
 from tubewright.optimizer.design.problem import DesignProblem, design_case
@@ -151,6 +152,7 @@ def optimise(case, nfe=None, ncp=None, progress=None, scenarios=None, start=None
     res.extras["shells"] = {"count": shells, "area_per_shell_m2": area / shells, "area_m2": area}
     if scenarios:
         res.extras["scenario_limits"] = problem.scenario_limit_rows(outcome)
+        res.extras["nominal_goal"] = float(pyo.value(GOALS[spec.goal].value(problem.model.figures)))
     return res
 
 

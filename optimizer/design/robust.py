@@ -104,9 +104,9 @@ def verify_design(case, items, values: dict, samples: int, seed: int) -> dict:
 def robust_design(case, k: int, seed: int = 0, samples: int = DEFAULT_VERIFY_SAMPLES, nominal=None,
                   progress=None, goal: str = "nominal") -> dict:
     """The robust optimum beside the nominal one (``nominal``: its OptimizationResult, solved when not
-    given), the price of
-    robustness, the scenarios with the limits they bind, both designs verified on fresh samples, and the
-    scenario guarantee."""
+    given), the price of robustness (the goal at the nominal values, robust against nominal design), the
+    scenarios with the limits they bind, both designs verified on fresh samples, and the scenario
+    guarantee."""
     from tubewright.optimizer.design.optimise import optimise
     from tubewright.optimizer.design.spec import DESIGN_FIELDS, read_design
 
@@ -115,23 +115,25 @@ def robust_design(case, k: int, seed: int = 0, samples: int = DEFAULT_VERIFY_SAM
         nominal = optimise(case, progress=progress)
     if progress is not None:
         progress(f"robust design: {k} scenarios")
-    fields = {v: k for k, v in DESIGN_FIELDS.items()}
+    key_of = {field: key for key, field in DESIGN_FIELDS.items()}
     start = None
     if nominal.ok:  # from the nominal optimum: the scenarios then move it only as far as they must
         free = read_design(case).free
-        start = {fields[f]: v for f, v in nominal.design.items() if fields[f] in free}
-        start = {k: min(max(v, free[k].lower), free[k].upper) for k, v in start.items()}
+        start = {key_of[f]: min(max(v, free[key_of[f]].lower), free[key_of[f]].upper)
+                 for f, v in nominal.design.items() if key_of[f] in free}
     robust = optimise(case, progress=progress, scenarios=scenarios, start=start, scenario_goal=goal)
     out = {"scenarios": k, "seed": seed, "goal": goal, "status": str(robust.status), "reason": robust.reason,
            "objective": robust.objective, "design": robust.design, "limits": [r.as_dict() for r in robust.limits],
            "scenario_limits": robust.extras.get("scenario_limits", []), "notes": robust.notes}
-    if nominal is not None and nominal.ok and robust.ok:
-        out["price"] = robust.objective - nominal.objective
+    if nominal.ok and robust.ok:
+        at_nominal = robust.extras.get("nominal_goal", robust.objective)  # "expected": the objective differs
+        out["nominal_goal"] = at_nominal
+        out["price"] = at_nominal - nominal.objective
         out["price_percent"] = 100.0 * out["price"] / abs(nominal.objective) if nominal.objective else None
     verification = {}
     for label, res in (("nominal", nominal), ("robust", robust)):
-        if res is not None and res.ok:
-            values = {fields[f]: v for f, v in res.design.items()}
+        if res.ok:
+            values = {key_of[f]: v for f, v in res.design.items()}
             verification[label] = verify_design(case, items, values, samples, seed)
     out["verification"] = verification
     out["guarantee"] = scenario_guarantee(k + 1, len(read_design(case).free))  # the nominal case is a scenario too

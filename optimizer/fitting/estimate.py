@@ -1,7 +1,8 @@
 """Weighted least squares of kinetic parameters over all laboratory runs at once, solved by IPOPT through
 the bridge: one collocation block per run (the tube model of optimizer.design.collocation, built from the
-same balances as the simulator), all blocks sharing the free kinetic parameters; every block starts from a
-simulation of its run at the starting parameters.
+same balances as the simulator), all blocks sharing the free kinetic parameters (k, E_a, reaction orders);
+every block starts from a simulation of its run at the starting parameters. A differential run (measured
+formation rates only) needs no block: its rates are the rate law at its feed conditions.
 
 Arrhenius laws are fitted about one reference temperature T_fit inside the data (optimizer.fitting.spec):
 the free parameters are k(T_fit) and E_a, and the case's own k_ref (at its T_ref) is the expression
@@ -40,7 +41,7 @@ class FitOutcome:
     reference_temperature: float = math.nan
     parameters: list = field(default_factory=list)  # names
     estimates: dict = field(default_factory=dict)  # name -> value (k at T_fit, E_a)
-    case_values: dict = field(default_factory=dict)  # reaction -> {"k_ref", "activation_energy", "t_ref"}
+    case_values: dict = field(default_factory=dict)  # reaction -> {"k_ref", "activation_energy", "t_ref", "orders"}
     statistics: object = None  # FitStatistics
     lack_of_fit: dict | None = None
     residuals: list = field(default_factory=list)  # per observation: row, quantity, measured, fitted, sigma

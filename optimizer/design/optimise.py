@@ -21,11 +21,12 @@ from tubewright.optimizer.design.spec import DESIGN_FIELDS
 
 
 def optimise(case, nfe=None, ncp=None, progress=None, scenarios=None, start=None,
-             scenario_goal: str = "nominal") -> OptimizationResult:
+             scenario_goal: str = "nominal", shells: int | None = None) -> OptimizationResult:
     """The whole `optimize` verb: solve, round the tube count and re-solve, verify (refining the mesh once
     if needed), and report. ``scenarios`` ([{parameter path: value}]): every limit must also hold in each
     (a robust design; the goal stays the nominal one); the result's extras then carry the scenario rows.
-    ``start``: the starting design {design key: SI value} (default: the starts of [design])."""
+    ``start``: the starting design {design key: SI value} (default: the starts of [design]); ``shells``: the
+    number of shells to start with (a known optimum's; solve_nlp corrects it if the area says otherwise)."""
     t0 = time.perf_counter()
     problem = DesignProblem(case, nfe, ncp, progress=progress, scenarios=scenarios, scenario_goal=scenario_goal)
     spec = problem.spec
@@ -48,6 +49,8 @@ def optimise(case, nfe=None, ncp=None, progress=None, scenarios=None, start=None
                                   "or raise the feed")
     try:
         problem.build(start)
+        if shells:
+            problem.model.shells = shells
     except ComputationFailed as err:
         sim = simulate(design_case(case, problem.start_values()), checks=False)
         return OptimizationResult(Status.FAILED, str(err), spec.goal, None, simulation=sim, reason_code=err.code,

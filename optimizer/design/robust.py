@@ -121,7 +121,8 @@ def robust_design(case, k: int, seed: int = 0, samples: int = DEFAULT_VERIFY_SAM
         free = read_design(case).free
         start = {key_of[f]: min(max(v, free[key_of[f]].lower), free[key_of[f]].upper)
                  for f, v in nominal.design.items() if key_of[f] in free}
-    robust = optimise(case, progress=progress, scenarios=scenarios, start=start, scenario_goal=goal)
+    shells = nominal.extras.get("shells", {}).get("count") if nominal.ok else None
+    robust = optimise(case, progress=progress, scenarios=scenarios, start=start, scenario_goal=goal, shells=shells)
     out = {"scenarios": k, "seed": seed, "goal": goal, "status": str(robust.status), "reason": robust.reason,
            "objective": robust.objective, "design": robust.design, "limits": [r.as_dict() for r in robust.limits],
            "scenario_limits": robust.extras.get("scenario_limits", []), "notes": robust.notes}

@@ -323,7 +323,8 @@ def extra_lines(res, extras) -> list[str]:
 def robust_lines(r: dict) -> list[str]:
     """The robust design beside the nominal one, the scenarios that bind, the verification and the
     scenario guarantee."""
-    goal = "the nominal one" if r["goal"] == "nominal" else "its mean over the nominal case and the scenarios"
+    goal = {"nominal": "the nominal one", "expected": "its mean over the nominal case and the scenarios",
+            "mix": f"{r.get('nominal_weight', 0.5):g} x nominal + the rest x the mean"}[r["goal"]]
     lines = [f"\nrobust design over {r['scenarios']} scenarios of [uncertain] (seed {r['seed']}; goal: {goal}; "
              f"every limit in the nominal case and in each scenario): {r['status']} ({r['reason']})"]
     if r.get("objective") is not None:

@@ -95,7 +95,8 @@ def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0
         if verify_samples:
             settings["verify_samples"] = verify_samples
         extras["robust"] = robust_design(case, settings["scenarios"], settings["seed"], settings["verify_samples"],
-                                         nominal=res, progress=progress, goal=settings["goal"])
+                                         nominal=res, progress=progress, goal=settings["goal"],
+                                         nominal_weight=settings.get("nominal_weight", 0.5))
     res.extras.update(extras)
     res.case = case
     return res

@@ -149,11 +149,14 @@ def test_expected_goal_is_the_mean_of_the_simulated_scenarios():
     conversions = [simulate(design_case(c, values), checks=False).summary["conversion"]
                    for c in [case, *(apply(case, s) for s in scenarios)]]
     assert res.objective == pytest.approx(np.mean(conversions), rel=1e-5)
+    mixed = optimise(case, scenarios=scenarios, scenario_goal=("mix", 0.25))  # the same design (L at its bound)
+    assert mixed.objective == pytest.approx(0.25 * conversions[0] + 0.75 * np.mean(conversions), rel=1e-5)
 
 
 def test_robust_section_is_checked():
     for robust, key in (({"goal": "worst"}, "robust.goal"), ({"scenarios": 0}, "robust.scenarios"),
-                        ({"scenaros": 4}, "robust.scenaros")):
+                        ({"scenaros": 4}, "robust.scenaros"), ({"nominal_weight": 0.3}, "robust.nominal_weight"),
+                        ({"goal": "mix", "nominal_weight": 1.5}, "robust.nominal_weight")):
         from tubewright.optimizer.design.robust import read_robust
 
         with pytest.raises(CaseError) as info:

@@ -21,7 +21,7 @@ from tubewright.optimizer.design.spec import DESIGN_FIELDS
 
 
 def optimise(case, nfe=None, ncp=None, progress=None, scenarios=None, start=None,
-             scenario_goal: str = "nominal", shells: int | None = None) -> OptimizationResult:
+             scenario_goal="nominal", shells: int | None = None) -> OptimizationResult:
     """The whole `optimize` verb: solve, round the tube count and re-solve, verify (refining the mesh once
     if needed), and report. ``scenarios`` ([{parameter path: value}]): every limit must also hold in each
     (a robust design; the goal stays the nominal one); the result's extras then carry the scenario rows.

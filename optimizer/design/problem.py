@@ -53,7 +53,7 @@ class DesignProblem:
     fixed design values) change through ``set_parameter`` and re-solve without recompiling."""
 
     def __init__(self, case, nfe: int | None = None, ncp: int | None = None, goal: str | None = None,
-                 progress=None, scenarios=None, scenario_goal: str = "nominal"):
+                 progress=None, scenarios=None, scenario_goal="nominal"):
         self.case = case
         self.spec = read_design(case)
         if goal is not None:
@@ -68,7 +68,7 @@ class DesignProblem:
         self.progress = progress  # optional: progress(text) and progress.iteration(k, objective, infeasibility)
         self.scenarios = list(scenarios or [])  # [{parameter path: SI value}]: every limit holds in each
         self.scenario_blocks = []  # (block, scenario case, limit components, state scales)
-        self.scenario_goal = scenario_goal  # "nominal" or "expected" (the mean over nominal and scenarios)
+        self.scenario_goal = scenario_goal  # "nominal", "expected" (the mean over nominal and scenarios), ("mix", w)
 
     def say(self, text: str):
         if self.progress is not None:
@@ -210,12 +210,14 @@ class DesignProblem:
 
     def _objective(self, m):
         """The goal of the nominal model; with scenarios and ``scenario_goal = "expected"`` its mean over the
-        nominal case and the scenarios (equal weights)."""
+        nominal case and the scenarios (equal weights), with ``("mix", w)`` w nominal + (1 - w) expected."""
         goal = GOALS[self.spec.goal]
         value = goal.value(m.figures)
-        if self.scenario_goal == "expected" and self.scenario_blocks:
-            value = (value + sum(goal.value(b.figures) for b, *_ in self.scenario_blocks)) / (
+        if self.scenario_goal != "nominal" and self.scenario_blocks:
+            expected = (value + sum(goal.value(b.figures) for b, *_ in self.scenario_blocks)) / (
                 1 + len(self.scenario_blocks))
+            w = self.scenario_goal[1] if isinstance(self.scenario_goal, tuple) else 0.0
+            value = w * value + (1.0 - w) * expected
         m.goal = pyo.Objective(expr=value, sense=pyo.minimize if goal.sense == "min" else pyo.maximize)
 
     # --- solving ----------------------------------------------------------------------------------------

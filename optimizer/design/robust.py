@@ -21,22 +21,30 @@ from tubewright.models.errors import CaseError
 BETA = 0.01  # confidence parameter of the scenario guarantee (the guarantee holds with 1 - BETA)
 DEFAULT_VERIFY_SAMPLES = 1000
 DEFAULT_SCENARIOS = 8
-GOALS = ("nominal", "expected")  # the goal at the nominal values (default), or its mean over all scenarios
+# the goal at the nominal values (default), its mean over the nominal case and the scenarios, or a mix:
+# nominal_weight * nominal + (1 - nominal_weight) * expected
+GOALS = ("nominal", "expected", "mix")
 
 
 def read_robust(case) -> dict | None:
-    """``[robust]`` of a design case: scenarios (default 8), seed (0), goal ("nominal", the default, or
-    "expected": the mean over the nominal case and the scenarios), verify_samples (1000); None without it."""
+    """``[robust]`` of a design case: scenarios (default 8), seed (0), goal ("nominal", the default;
+    "expected": the mean over the nominal case and the scenarios; "mix" with nominal_weight, default 0.5),
+    verify_samples (1000); None without it."""
     from tubewright.models.casefile import Table
 
     if "robust" not in case.raw:
         return None
-    t = Table(case.raw["robust"], case.source, "robust", {"scenarios", "seed", "goal", "verify_samples"})
+    t = Table(case.raw["robust"], case.source, "robust",
+              {"scenarios", "seed", "goal", "verify_samples", "nominal_weight"})
     out = {"scenarios": t.number("scenarios", default=DEFAULT_SCENARIOS, low=1, high=1000, integer=True),
            "seed": t.number("seed", default=0, low=0, high=2**31 - 1, integer=True),
            "goal": t.choice("goal", GOALS, default="nominal"),
            "verify_samples": t.number("verify_samples", default=DEFAULT_VERIFY_SAMPLES, low=10, high=1_000_000,
                                       integer=True)}
+    if out["goal"] == "mix":
+        out["nominal_weight"] = t.number("nominal_weight", default=0.5, low=0.0, high=1.0)
+    elif t.has("nominal_weight"):
+        raise CaseError(case.source, "robust.nominal_weight", f'applies to goal = "mix" only, not "{out["goal"]}"')
     t.finish()
     return out
 
@@ -102,7 +110,7 @@ def verify_design(case, items, values: dict, samples: int, seed: int) -> dict:
 
 
 def robust_design(case, k: int, seed: int = 0, samples: int = DEFAULT_VERIFY_SAMPLES, nominal=None,
-                  progress=None, goal: str = "nominal") -> dict:
+                  progress=None, goal: str = "nominal", nominal_weight: float = 0.5) -> dict:
     """The robust optimum beside the nominal one (``nominal``: its OptimizationResult, solved when not
     given), the price of robustness (the goal at the nominal values, robust against nominal design), the
     scenarios with the limits they bind, both designs verified on fresh samples, and the scenario
@@ -122,8 +130,10 @@ def robust_design(case, k: int, seed: int = 0, samples: int = DEFAULT_VERIFY_SAM
         start = {key_of[f]: min(max(v, free[key_of[f]].lower), free[key_of[f]].upper)
                  for f, v in nominal.design.items() if key_of[f] in free}
     shells = nominal.extras.get("shells", {}).get("count") if nominal.ok else None
-    robust = optimise(case, progress=progress, scenarios=scenarios, start=start, scenario_goal=goal, shells=shells)
-    out = {"scenarios": k, "seed": seed, "goal": goal, "status": str(robust.status), "reason": robust.reason,
+    robust = optimise(case, progress=progress, scenarios=scenarios, start=start, shells=shells,
+                      scenario_goal=goal if goal != "mix" else ("mix", nominal_weight))
+    out = {"scenarios": k, "seed": seed, "goal": goal, **({"nominal_weight": nominal_weight} if goal == "mix" else {}),
+           "status": str(robust.status), "reason": robust.reason,
            "objective": robust.objective, "design": robust.design, "limits": [r.as_dict() for r in robust.limits],
            "scenario_limits": robust.extras.get("scenario_limits", []), "notes": robust.notes}
     if nominal.ok and robust.ok:

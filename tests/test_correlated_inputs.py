@@ -53,6 +53,7 @@ def test_k_given_at_a_reference_temperature_is_carried_to_the_case_t_ref():
 
 @pytest.mark.parametrize("changes,message", [
     ({"covariance": [[1.0, 2.0], [2.0, 1.0]]}, "positive definite"),
+    ({"covariance": [[-1.0, 0.0], [0.0, 1.0]]}, "positive definite"),
     ({"covariance": [[1.0, 0.1], [0.2, 1.0]]}, "symmetric"),
     ({"covariance": [[1.0, 0.0, 0.0]]}, "covariance"),
     ({"mean": [1.0]}, "covariance"),

@@ -53,7 +53,6 @@ class CorrelatedSet:
     mean: np.ndarray
     cholesky: np.ndarray
     reference_temperature: float | None
-
     rereference: tuple = ()  # (k_ref path, the case's T_ref, E_a path in the set or the case's E_a)
 
     def case_values(self, z: np.ndarray) -> dict:
@@ -175,8 +174,11 @@ def _correlated(case, name, spec) -> list[Uncertain]:
         raise CaseError(source, t.key("covariance"), "mean and covariance must be finite numbers")
     if not np.allclose(cov, cov.T, rtol=1e-9, atol=0.0):
         raise CaseError(source, t.key("covariance"), "must be symmetric")
-    try:
-        chol = np.linalg.cholesky(cov)
+    try:  # through the correlation matrix: fitted k (~1e-9) beside E_a (~1e5) spans 30 decades of variance
+        std = np.sqrt(np.clip(np.diag(cov), 0.0, None))
+        if not np.all(std > 0):
+            raise np.linalg.LinAlgError("a zero or negative variance")
+        chol = std[:, None] * np.linalg.cholesky(cov / np.outer(std, std))
     except np.linalg.LinAlgError:
         raise CaseError(source, t.key("covariance"), "must be positive definite (a parameter that the data do "
                         "not determine has no finite variance: fix it instead)") from None

@@ -459,35 +459,36 @@ def cmd_run(args) -> int:
     return EXIT_OK if summary["not_done"] == 0 else EXIT_NOT_OK
 
 
+def _fit_answer(args, res, files) -> dict:
+    return finite({"case": str(args.case), "data": str(args.data), **res.as_dict(), "files": files,
+                   "caution": CAUTION})
+
+
 def cmd_fit(args) -> int:
     from tubewright.optimizer.output.fitreport import fit_lines
 
     if args.design and not args.out:
         raise option_error("--design", "needs --out DIR (the design case is written there)")
-
+    design = load_case(args.design) if args.design else None  # refused before the fit, not after it
     res = verbs.fit(args.case, args.data)
     files = {}
     if args.out:
-        from tubewright.optimizer.output.fitreport import plot_fit, write_fitted_case
+        from tubewright.optimizer.output.fitreport import plot_fit, write_design_case, write_fitted_case
 
         out = Path(args.out)
         out.mkdir(parents=True, exist_ok=True)
+        files["fit_json"] = str(out / "fit.json")
         if res.statistics is not None:
             files["fitted_case_toml"] = str(write_fitted_case(out / "fitted.toml", load_case(args.case), res))
             files["fit_png"] = str(plot_fit(res, out / "fit.png"))
-            if args.design:
-                from tubewright.optimizer.output.fitreport import write_design_case
-
-                written = write_design_case(out / "design-fitted.toml", load_case(args.design), res)
-                load_case(written)  # what was written must read back as a case
-                files["design_case_toml"] = str(written)
-        files["fit_json"] = str(out / "fit.json")
-        answer = finite({"case": str(args.case), "data": str(args.data), **res.as_dict(), "files": files,
-                         "caution": CAUTION})
-        Path(files["fit_json"]).write_text(json.dumps(answer, indent=2) + "\n")
+        Path(files["fit_json"]).write_text(json.dumps(_fit_answer(args, res, files), indent=2) + "\n")
+        if design is not None and res.statistics is not None:  # after fit.json: a refusal here loses nothing
+            written = write_design_case(out / "design-fitted.toml", design, res)
+            load_case(written)  # what was written must read back as a case
+            files["design_case_toml"] = str(written)
+            Path(files["fit_json"]).write_text(json.dumps(_fit_answer(args, res, files), indent=2) + "\n")
     if args.json:
-        _emit_json(finite({"case": str(args.case), "data": str(args.data), **res.as_dict(), "files": files,
-                           "caution": CAUTION}))
+        _emit_json(_fit_answer(args, res, files))
     else:
         print("\n".join(fit_lines(res)))
         for label, path in files.items():

@@ -105,3 +105,7 @@ def test_design_needs_out_and_the_same_reactions(tmp_path, capsys):
     assert main(["fit", str(case), "--data", str(data), "--out", str(tmp_path / "o"),
                  "--design", str(DEMO / "oxidation.toml")]) == 2
     assert "r1" in capsys.readouterr().err
+    assert (tmp_path / "o" / "fit.json").exists()  # the fit itself is kept
+    assert main(["fit", str(case), "--data", str(data), "--out", str(tmp_path / "p"),
+                 "--design", str(tmp_path / "missing.toml")]) == 2  # refused before fitting
+    assert not (tmp_path / "p").exists()

@@ -3,11 +3,13 @@ finished task; failures and time-outs recorded, never fatal; resume by re-runnin
 
 from __future__ import annotations
 
+import contextlib
 import ctypes
 import errno
 import signal
 import sqlite3
 import sys
+import threading
 import time
 from collections import deque
 from multiprocessing.connection import wait as wait_ready
@@ -73,14 +75,39 @@ def run_local(tasks, workers: int, on_done, poll: float = 0.05):
     ctx = process_context()
     pending = deque(tasks)
     running = []
+    with _interrupt_flag() as interrupted:
+        try:
+            _loop(ctx, pending, running, workers, on_done, poll, interrupted)
+        finally:
+            _end(running)
+
+
+@contextlib.contextmanager
+def _interrupt_flag():
+    """Ctrl-C raises KeyboardInterrupt and also sets a flag that the loop checks: an interrupt that arrives
+    while a worker is being forked can be raised inside the interpreter's fork hooks, which print it and
+    swallow it ("Exception ignored in ... _releaseLock"); the flag makes sure it still stops the run.
+    Only the main thread can install a signal handler; elsewhere the flag stays unset."""
+    flag = {"set": False}
+    if threading.current_thread() is not threading.main_thread():
+        yield flag
+        return
+
+    def on_sigint(signum, frame):
+        flag["set"] = True
+        raise KeyboardInterrupt
+
+    previous = signal.signal(signal.SIGINT, on_sigint)
     try:
-        _loop(ctx, pending, running, workers, on_done, poll)
+        yield flag
     finally:
-        _end(running)
+        signal.signal(signal.SIGINT, previous)
 
 
-def _loop(ctx, pending, running, workers, on_done, poll):
+def _loop(ctx, pending, running, workers, on_done, poll, interrupted=None):
     while pending or running:
+        if interrupted is not None and interrupted["set"]:
+            raise KeyboardInterrupt
         while pending and len(running) < workers:
             task = pending.popleft()
             parent, child = ctx.Pipe(duplex=False)

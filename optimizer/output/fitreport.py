@@ -93,7 +93,7 @@ def write_fitted_case(path: Path, case, out) -> Path:
     st = out.statistics
     lines = ["# Kinetics fitted by tubewright fit: the fitting case by include, the fitted values on top.",
              "# Screening estimate only: verify with detailed models, hazard studies and licensed engineers.",
-             "# To design with them, copy the [chemistry.reactions.*] values below into the design case.",
+             "# To design with them: tubewright fit ... --design CASE writes that case with them and their spread.",
              f"# Fitted about {float(out.reference_temperature)!r} K; estimates, standard errors and correlation:"]
     for name, est, se in zip(st.names, st.estimates, st.standard_errors):
         lines.append(f"#   {name} = {float(est)!r} (standard error {float(se)!r})")

@@ -45,32 +45,35 @@ def test_parameter_change_resolves_without_recompiling():
     assert abs(lam) == pytest.approx((third.objective - second.objective) / 1e-3, rel=2e-2)
 
 
+def _derivatives_match(n, m, f, grad, cons, jac, jac_structure, hess, hess_structure, x, lam, sigma,
+                       abs_tol=(1e-6, 1e-6, 1e-5)):
+    """Gradient, Jacobian and Lagrangian Hessian (lower triangle) against central differences at x;
+    ``abs_tol``: absolute tolerances of the three (relative: 1e-6, 1e-6, 1e-5)."""
+    h = 1e-6
+    jac_x = np.zeros((m, n))
+    jac_x[jac_structure] = jac(x)
+    hess_x = np.zeros((n, n))
+    np.add.at(hess_x, hess_structure, hess(x, lam, sigma))
+    hess_x = hess_x + np.tril(hess_x, -1).T
+
+    def lag_grad(z):
+        j = np.zeros((m, n))
+        j[jac_structure] = jac(z)
+        return sigma * grad(z) + lam @ j
+
+    for k in range(n):
+        e = np.zeros(n)
+        e[k] = h
+        assert grad(x)[k] == pytest.approx((f(x + e) - f(x - e)) / (2 * h), rel=1e-6, abs=abs_tol[0])
+        assert jac_x[:, k] == pytest.approx((cons(x + e) - cons(x - e)) / (2 * h), rel=1e-6, abs=abs_tol[1])
+        assert hess_x[:, k] == pytest.approx((lag_grad(x + e) - lag_grad(x - e)) / (2 * h), rel=1e-5,
+                                             abs=abs_tol[2])
+
+
 def _fd_check(nlp, x):
     nlp.refresh()
-    h = 1e-6
-    jac = np.zeros((nlp.m, nlp.n))
-    jac[nlp.jac_rows, nlp.jac_cols] = nlp._jac(x)
-    grad = nlp._grad(x)
-    for k in range(nlp.n):
-        e = np.zeros(nlp.n)
-        e[k] = h
-        assert grad[k] == pytest.approx((nlp._obj(x + e) - nlp._obj(x - e)) / (2 * h), rel=1e-6, abs=1e-6)
-        assert jac[:, k] == pytest.approx((nlp._cons(x + e) - nlp._cons(x - e)) / (2 * h), rel=1e-6, abs=1e-6)
-    lam = np.linspace(0.5, 1.5, nlp.m)
-    sigma = 0.7
-    hess = np.zeros((nlp.n, nlp.n))
-    np.add.at(hess, (nlp.hess_rows, nlp.hess_cols), nlp._hess(x, lam, sigma))
-    hess = hess + np.tril(hess, -1).T
-
-    def lag_grad(y):
-        j = np.zeros((nlp.m, nlp.n))
-        j[nlp.jac_rows, nlp.jac_cols] = nlp._jac(y)
-        return sigma * nlp._grad(y) + lam @ j
-
-    for k in range(nlp.n):
-        e = np.zeros(nlp.n)
-        e[k] = h
-        assert hess[:, k] == pytest.approx((lag_grad(x + e) - lag_grad(x - e)) / (2 * h), rel=1e-5, abs=1e-5)
+    _derivatives_match(nlp.n, nlp.m, nlp._obj, nlp._grad, nlp._cons, nlp._jac, (nlp.jac_rows, nlp.jac_cols),
+                       nlp._hess, (nlp.hess_rows, nlp.hess_cols), x, np.linspace(0.5, 1.5, nlp.m), 0.7)
 
 
 def test_derivatives_against_finite_differences_hs71():
@@ -179,24 +182,6 @@ def test_compact_derivatives_against_finite_differences():
     nlp = CompiledNLP(chained_model())
     nlp.refresh()
     red = nlp._reduction(nlp.current_point())
-    y = np.array([0.7, -1.3])
-    h = 1e-6
-    jac = np.zeros((red.m, red.n))
-    jac[red.jac_rows, red.jac_cols] = red.jacobian(y)
-    lam, sigma = np.array([0.8, 1.3]), 0.6
-    hess = np.zeros((red.n, red.n))
-    np.add.at(hess, (red.hess_rows, red.hess_cols), red.hessian(y, lam, sigma))
-    hess = hess + np.tril(hess, -1).T
-
-    def lag_grad(z):
-        j = np.zeros((red.m, red.n))
-        j[red.jac_rows, red.jac_cols] = red.jacobian(z)
-        return sigma * red.gradient(z) + lam @ j
-
-    for k in range(red.n):
-        e = np.zeros(red.n)
-        e[k] = h
-        assert red.gradient(y)[k] == pytest.approx((red.objective(y + e) - red.objective(y - e)) / (2 * h), rel=1e-6)
-        assert jac[:, k] == pytest.approx((red.constraints(y + e) - red.constraints(y - e)) / (2 * h), rel=1e-6,
-                                          abs=1e-8)
-        assert hess[:, k] == pytest.approx((lag_grad(y + e) - lag_grad(y - e)) / (2 * h), rel=1e-5, abs=1e-6)
+    _derivatives_match(red.n, red.m, red.objective, red.gradient, red.constraints, red.jacobian,
+                       (red.jac_rows, red.jac_cols), red.hessian, (red.hess_rows, red.hess_cols),
+                       np.array([0.7, -1.3]), np.array([0.8, 1.3]), 0.6, abs_tol=(1e-12, 1e-8, 1e-6))

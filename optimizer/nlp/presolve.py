@@ -89,8 +89,8 @@ class LinearElimination:
         self._own, self._other = np.flatnonzero(own), np.flatnonzero(~own)
         # structures from a map with positive weights (no cancellation: every possible entry is present)
         t_struct = self._map(np.ones(len(self._other)), np.ones(len(self._own)))
-        self.jac_rows, self.jac_cols, self._jac_keys = self._jacobian_structure(t_struct)
-        self.hess_rows, self.hess_cols, self._hess_keys = self._hessian_structure(t_struct)
+        self.jac_rows, self.jac_cols, self._jac_keys = self._structure(self._expand_jacobian(t_struct))
+        self.hess_rows, self.hess_cols, self._hess_keys = self._structure(self._expand_hessian(t_struct))
         self._coef_key = None
 
     # --- the map x = T y + t -----------------------------------------------------------------------------
@@ -139,8 +139,8 @@ class LinearElimination:
         if key != self._coef_key:
             self.T = self._map(coef[self._other], own)
             self.TT = self.T.T.tocsr()
-            self._jac_map = self._jacobian_map()
-            self._hess_map = self._hessian_map()
+            self._jac_map = self._value_map(self._expand_jacobian(self.T), self._jac_keys, len(nlp.jac_rows))
+            self._hess_map = self._value_map(self._expand_hessian(self.T), self._hess_keys, len(nlp.hess_rows))
             self._coef_key = key
         # the constant part: x = T y + t with t from the right-hand sides (same substitution, y = 0)
         t = np.zeros(nlp.n)
@@ -169,16 +169,6 @@ class LinearElimination:
         rows = self._row_of[nlp.jac_rows[q_rep]]
         return q_rep, rows, t_map.indices[entry], t_map.data[entry]
 
-    def _jacobian_structure(self, t_struct):
-        _, rows, cols, _ = self._expand_jacobian(t_struct)
-        keys = np.unique(rows * self.n + cols)
-        return keys // self.n, keys % self.n, keys
-
-    def _jacobian_map(self):
-        q, rows, cols, weights = self._expand_jacobian(self.T)
-        target = np.searchsorted(self._jac_keys, rows * self.n + cols)
-        return sp.csr_matrix((weights, (target, q)), shape=(len(self._jac_keys), len(self.nlp.jac_rows)))
-
     def _expand_hessian(self, t_map):
         nlp = self.nlp
         hk, hl = nlp.hess_rows, nlp.hess_cols
@@ -198,15 +188,17 @@ class LinearElimination:
         w = np.where(diagonal_full & (a != b), 0.5 * w, w)
         return q, np.maximum(a, b), np.minimum(a, b), w
 
-    def _hessian_structure(self, t_struct):
-        _, hi, lo, _ = self._expand_hessian(t_struct)
-        keys = np.unique(hi * self.n + lo)
+    def _structure(self, expanded):
+        """Sorted unique reduced coordinates of expanded entries (q, row, col, weight): rows, cols, keys."""
+        _, rows, cols, _ = expanded
+        keys = np.unique(rows * self.n + cols)
         return keys // self.n, keys % self.n, keys
 
-    def _hessian_map(self):
-        q, hi, lo, w = self._expand_hessian(self.T)
-        target = np.searchsorted(self._hess_keys, hi * self.n + lo)
-        return sp.csr_matrix((w, (target, q)), shape=(len(self._hess_keys), len(self.nlp.hess_rows)))
+    def _value_map(self, expanded, keys, n_full):
+        """The sparse matrix taking the full entries' values to the reduced structure ``keys``."""
+        q, rows, cols, weights = expanded
+        target = np.searchsorted(keys, rows * self.n + cols)
+        return sp.csr_matrix((weights, (target, q)), shape=(len(keys), n_full))
 
     # --- reduced callbacks ------------------------------------------------------------------------------
     def objective(self, y):

@@ -3,6 +3,10 @@ changes (no ``matplotlib.use``, no pyplot state), so a notebook user's backend i
 
 from __future__ import annotations
 
+from pathlib import Path
+
+CAUTION_LINE = "Screening estimate only - verify before use."
+
 
 def new_figure(figsize):
     """A Figure with an Agg canvas attached (``fig.savefig`` then works without pyplot)."""
@@ -12,3 +16,12 @@ def new_figure(figsize):
     fig = Figure(figsize=figsize)
     FigureCanvasAgg(fig)
     return fig
+
+
+def finish(fig, path, top: float = 1.0, dpi: int = 110) -> Path:
+    """The caution line at the foot of the figure, a tight layout below ``top`` (room for a suptitle), saved."""
+    fig.text(0.01, 0.005, CAUTION_LINE, fontsize=7, color="gray")
+    fig.tight_layout(rect=(0, 0.02, 1, top))
+    path = Path(path)
+    fig.savefig(path, dpi=dpi)
+    return path

@@ -146,17 +146,12 @@ def write_design_case(path: Path, design, out) -> Path:
 
 def _reaction_table(case, name: str, k_ref: float, fitted: dict) -> dict:
     """k_ref (in the unit of the fitted orders), E_a and the orders of one fitted reaction, as case values."""
+    from tubewright.models.reactions import rate_units  # the unit a case file reads k_ref in
+
     rx = next(r for r in case.reactions if r.name == name)
     orders = {**rx.orders, **fitted.get("orders", {})}
-    table = {"k_ref": f"{float(k_ref)!r} {_k_unit(rx, sum(orders.values()))}",
+    table = {"k_ref": f"{float(k_ref)!r} {rate_units(rx.basis, rx.driving, sum(orders.values()))}",
              "activation_energy": f"{float(fitted['activation_energy'])!r} J/mol"}
     if orders != dict(rx.orders):
         table["orders"] = {s: float(o) for s, o in orders.items()}
     return table
-
-
-def _k_unit(rx, n: float) -> str:
-    """The SI unit of k_ref for the fitted total order, as a case file reads it."""
-    from tubewright.models.reactions import rate_units
-
-    return rate_units(rx.basis, rx.driving, n)

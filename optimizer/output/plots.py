@@ -6,7 +6,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
-from tubewright.optimizer.output.canvas import new_figure
+from tubewright.optimizer.output.canvas import finish, new_figure
 from tubewright.optimizer.output.text import plain
 
 
@@ -47,11 +47,7 @@ def plot_profiles(case, result, path: Path, limits=None) -> Path:
                          xytext=(-4, -12), textcoords="offset points", ha="right")
         title += "\n" + plain(f"SIMULATION STOPPED: {result.reason}")
     fig.suptitle(title, fontsize=9)
-    fig.text(0.01, 0.005, "Screening estimate only - verify before use.", fontsize=7, color="gray")
-    fig.tight_layout(rect=(0, 0.02, 1, 0.95 if not result.ok else 0.97))
-    path = Path(path)
-    fig.savefig(path, dpi=110)
-    return path
+    return finish(fig, path, top=0.95 if not result.ok else 0.97)
 
 
 def plot_front(case, front: dict, path: Path) -> Path:
@@ -66,11 +62,7 @@ def plot_front(case, front: dict, path: Path) -> Path:
     missing = len(front.get("not_converged", []))
     ax.set_title(plain(case.title) + (f"\n({missing} point(s) did not converge: not drawn)" if missing else ""),
                  fontsize=8)
-    fig.text(0.01, 0.005, "Screening estimate only - verify before use.", fontsize=7, color="gray")
-    fig.tight_layout(rect=(0, 0.02, 1, 1))
-    path = Path(path)
-    fig.savefig(path, dpi=110)
-    return path
+    return finish(fig, path)
 
 
 def plot_robust(case, robust: dict, path: Path) -> Path:
@@ -98,8 +90,4 @@ def plot_robust(case, robust: dict, path: Path) -> Path:
     ax.set_ylabel(f"samples (of {robust['verification'].get('robust', {}).get('samples', '?')})")
     ax.set_title(plain(case.title) + f"\nrobust design over {robust['scenarios']} scenarios", fontsize=8)
     ax.legend(fontsize=7)
-    fig.text(0.01, 0.005, "Screening estimate only - verify before use.", fontsize=7, color="gray")
-    fig.tight_layout(rect=(0, 0.02, 1, 1))
-    path = Path(path)
-    fig.savefig(path, dpi=110)
-    return path
+    return finish(fig, path)

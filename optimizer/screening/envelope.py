@@ -39,9 +39,8 @@ def temperature_envelope(case, items, res, max_samples: int = 200) -> dict | Non
 
 def plot_envelope(case, envelope: dict, path):
     """The P5-P95 band and the median of the temperature profile, with the hot-spot limit."""
-    from pathlib import Path
 
-    from tubewright.optimizer.output.canvas import new_figure
+    from tubewright.optimizer.output.canvas import finish, new_figure
     from tubewright.optimizer.output.text import plain
 
     fig = new_figure((7.0, 4.2))
@@ -57,8 +56,4 @@ def plot_envelope(case, envelope: dict, path):
     ax.set_title(plain(f"{case.title}\nspread of the temperature profile over {envelope['samples']} samples"),
                  fontsize=8)
     ax.legend(fontsize=8)
-    fig.text(0.01, 0.005, "Screening estimate only - verify before use.", fontsize=7, color="gray")
-    fig.tight_layout(rect=(0, 0.02, 1, 1))
-    path = Path(path)
-    fig.savefig(path, dpi=110)
-    return path
+    return finish(fig, path)

@@ -7,7 +7,7 @@ import textwrap
 from pathlib import Path
 
 import numpy as np
-from tubewright.optimizer.output.canvas import new_figure
+from tubewright.optimizer.output.canvas import finish, new_figure
 from tubewright.optimizer.output.text import plain, safe_frame
 
 
@@ -107,10 +107,7 @@ def plot(res, path: Path) -> Path:
             _sobol_panel(ax, idx)
     for ax in axes.ravel()[len(panels):]:
         ax.axis("off")
-    fig.text(0.01, 0.005, "Screening estimate only - verify before use.", fontsize=7, color="gray")
-    fig.tight_layout(rect=(0, 0.02, 1, 1))
-    fig.savefig(path, dpi=100)
-    return path
+    return finish(fig, path, dpi=100)
 
 
 def _morris_panel(ax, idx):

@@ -17,7 +17,9 @@ $(STAMP): pyproject.toml
 demo: $(STAMP)
 	$(BIN)/tubewright simulate studies/demo/oxidation.toml --out demo-output/oxidation
 	$(BIN)/tubewright simulate studies/demo/coil.toml --out demo-output/coil
+	$(BIN)/tubewright simulate studies/demo/oxidation-radial.toml --radial --out demo-output/radial
 	$(BIN)/tubewright optimize studies/demo/oxidation-design.toml --ideal --out demo-output/oxidation-design
+	$(BIN)/tubewright optimize studies/demo/oxidation-design.toml --radial-tighten --out demo-output/radial-design
 	$(BIN)/tubewright optimize studies/demo/oxidation-design.toml --scenarios 8 --verify-samples 300 --out demo-output/robust
 	$(BIN)/tubewright screen studies/demo/oxidation-screen.toml --method morris --samples 10 --out demo-output/screen
 	$(BIN)/tubewright fit studies/demo/oxidation-lab.toml --data studies/demo/oxidation-lab-runs.csv --out demo-output/fit --design studies/demo/oxidation.toml

@@ -105,6 +105,11 @@ def overall_u(m, case, local: Local):
     tube, feed = case.tube, case.feed
     flux = local.mass_flow / tube.area
     k_f = feed.thermal_conductivity
+    if ht.inside == "radial_lumped":
+        t = radial_transport(m, case, local)
+        h_i = corr.lumped_wall_coefficient(m, t.alpha_w, t.lambda_er, tube.inner_diameter)
+        return ht.multiplier * corr.overall_coefficient(m, h_i, ht.outside, tube.inner_diameter,
+                                                        tube.wall_thickness, tube.wall_conductivity)
     if ht.inside == "leva":
         re_p = case.bed.particle_diameter * flux / feed.viscosity
         nu = corr.leva_cooling_wall_nusselt(m, re_p, case.bed.particle_diameter / tube.inner_diameter)
@@ -154,12 +159,12 @@ class Derivatives:
         return self.dT, self.dP, self.dTc, self.dQ, self.dtau
 
 
-def axial_derivatives(m, case, F, T, P, Tc) -> Derivatives:
-    """d/dz of the state (F_i, T, P, Tc, Q, tau) of one tube at one position. See module docstring."""
-    tube = case.tube
+def reaction_sources(m, case, F, T, P):
+    """The local properties, the species sources A_c sum_j nu_ij r_j [mol/(s m)] and the heat released
+    A_c sum_j (-dH_j) r_j [W/m] of one tube at the state (F, T, P); shared by the axial and radial models."""
     local = local_properties(m, case, F, T, P)
     r = rates(m, case, T, local)
-    area = tube.area
+    area = case.tube.area
     dF = []
     for sp in case.species:
         total = 0.0
@@ -171,6 +176,13 @@ def axial_derivatives(m, case, F, T, P, Tc) -> Derivatives:
     heat_generation = 0.0  # W/m per tube
     for rx, rj in zip(case.reactions, r):
         heat_generation = heat_generation - area * heat_of_reaction(m, rx, case.species_map, T) * rj
+    return local, dF, heat_generation
+
+
+def axial_derivatives(m, case, F, T, P, Tc) -> Derivatives:
+    """d/dz of the state (F_i, T, P, Tc, Q, tau) of one tube at one position. See module docstring."""
+    tube = case.tube
+    local, dF, heat_generation = reaction_sources(m, case, F, T, P)
     mode = case.coolant.kind
     u = overall_u(m, case, local)
     perimeter = math.pi * tube.inner_diameter
@@ -181,10 +193,64 @@ def axial_derivatives(m, case, F, T, P, Tc) -> Derivatives:
     else:
         dT = (heat_generation - to_coolant) / local.cp_molar_flow
         dQ = tube.count * to_coolant
+    return Derivatives(dF, dT, pressure_gradient(m, case, local), coolant_gradient(case, to_coolant, Tc), dQ,
+                       residence_gradient(case, local))
+
+
+def coolant_gradient(case, to_coolant, Tc):
+    """dTc/dz [K/m] from the heat to the coolant [W/m per tube] (0 for a coolant at constant temperature)."""
+    mode = case.coolant.kind
     if mode.coolant_balance:
-        dTc = mode.coolant_balance * tube.count * to_coolant / (case.coolant.mass_flow * case.coolant.cp)
-    else:
-        dTc = 0.0 * Tc
+        return mode.coolant_balance * case.tube.count * to_coolant / (case.coolant.mass_flow * case.coolant.cp)
+    return 0.0 * Tc
+
+
+def residence_gradient(case, local: Local):
+    """dtau/dz [s/m]: the fluid volume per unit length over the volumetric flow."""
     void = case.bed.voidage if case.bed is not None else 1.0
-    dtau = area * void / local.volumetric_flow
-    return Derivatives(dF, dT, pressure_gradient(m, case, local), dTc, dQ, dtau)
+    return case.tube.area * void / local.volumetric_flow
+
+
+@dataclass
+class RadialTransport:
+    """The data of the two-dimensional model at one axial position (models.radial)."""
+
+    lambda_er: object  # W/(m K)
+    alpha_w: object  # W/(m^2 K), bed side of the wall
+    dispersion: object  # m^2/s on the whole cross-section
+    wall_u: object  # W/(m^2 K): alpha_w, the tube wall and the coolant side in series
+
+
+def radial_transport(m, case, local: Local) -> RadialTransport:
+    """lambda_er, alpha_w and D_er at the local (cross-section mean) state: the values of [radial] where given,
+    else the correlations of models.correlations; and the wall-to-coolant coefficient of the 2-D model.
+    With heat_transfer.overall given, the wall coefficient is what makes the lumped U of the 2-D data equal
+    the given U (1/U_w = 1/U - d_t/(8 lambda_er)); not positive when lambda_er cannot carry the given U."""
+    rad, tube, feed, bed = case.radial, case.tube, case.feed, case.bed
+    flux = local.mass_flow / tube.area
+    lam, alpha, disp = rad.lambda_er, rad.alpha_w, rad.dispersion
+    if bed is not None:
+        re_p = bed.particle_diameter * flux / feed.viscosity if feed.viscosity else None
+        dp_dt = bed.particle_diameter / tube.inner_diameter
+        if lam is None:
+            k_f = feed.thermal_conductivity
+            static = corr.zehner_schlunder_1970_static_conductivity(
+                m, k_f, rad.solid_conductivity, bed.voidage, corr.SHAPE_FACTORS[rad.particle_shape])
+            pr = local.cp_mass * feed.viscosity / k_f
+            lam = corr.specchia_1980_radial_conductivity(m, static, k_f, re_p, pr, dp_dt)
+        if alpha is None:
+            alpha = corr.li_finlayson_1977_wall_coefficient(m, re_p, feed.thermal_conductivity,
+                                                            bed.particle_diameter, rad.particle_shape)
+        if disp is None:
+            disp = corr.fahien_smith_1955_radial_dispersion(m, flux / local.density, bed.particle_diameter, dp_dt)
+    elif disp is None:  # empty tube: turbulent Prandtl number 1 (Reynolds analogy; common practice)
+        disp = lam / (local.density * local.cp_mass)
+    ht = case.heat_transfer
+    if not case.coolant.kind.exchanges_heat:
+        wall_u = 0.0
+    elif ht.overall is not None:
+        wall_u = 1.0 / (1.0 / (ht.overall * ht.multiplier) - tube.inner_diameter / (8.0 * lam))
+    else:
+        wall_u = ht.multiplier * corr.overall_coefficient(m, alpha, ht.outside, tube.inner_diameter,
+                                                          tube.wall_thickness, tube.wall_conductivity)
+    return RadialTransport(lam, alpha, disp, wall_u)

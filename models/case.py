@@ -8,7 +8,7 @@ from functools import cached_property
 
 from .coolant_modes import COOLANT_MODES, CoolantMode
 
-INSIDE_CORRELATIONS = ("gnielinski", "dittus_boelter", "laminar", "leva")
+INSIDE_CORRELATIONS = ("gnielinski", "dittus_boelter", "laminar", "leva", "radial_lumped")
 
 
 @dataclass(frozen=True)
@@ -83,6 +83,19 @@ class Numerics:
 
 
 @dataclass(frozen=True)
+class Radial:
+    """Data of the two-dimensional (radial) model, [radial] in the case file. A given value wins over its
+    correlation (models.correlations); models.balances.radial_transport resolves them along the tube."""
+
+    points: int = 6  # interior radial collocation points (models.radial_grid)
+    particle_shape: str = "sphere"  # "sphere" or "cylinder": form factors of the packed-bed correlations
+    solid_conductivity: float | None = None  # W/(m K), catalyst pellet: static conductivity of the bed
+    lambda_er: float | None = None  # W/(m K), effective radial conductivity
+    alpha_w: float | None = None  # W/(m^2 K), wall coefficient of the bed (the wall and coolant side added)
+    dispersion: float | None = None  # m^2/s, effective radial dispersivity on the whole cross-section
+
+
+@dataclass(frozen=True)
 class Case:
     source: str
     title: str
@@ -98,6 +111,7 @@ class Case:
     heat_transfer: HeatTransfer
     numerics: Numerics
     limits: dict = field(default_factory=dict)  # name -> SI value
+    radial: Radial | None = None  # [radial]: data of the two-dimensional model
     raw: dict = field(default_factory=dict)  # the merged TOML tables ([design], [goal] ... are read elsewhere)
 
     @property

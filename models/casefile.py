@@ -25,7 +25,7 @@ else:  # pragma: no cover
     import tomli as tomllib
 
 SECTIONS = ("title", "note", "include", "chemistry", "feed", "tube", "bed", "coolant", "heat_transfer",
-            "limits", "numerics", "design", "goal", "costs", "uncertain", "fit", "robust")
+            "limits", "numerics", "design", "goal", "costs", "uncertain", "fit", "robust", "radial")
 
 
 MAX_FILE_BYTES = 1_000_000  # a case or study file is text of a few kB
@@ -271,12 +271,13 @@ def build_case(data: dict, source: str) -> C.Case:
         if bed.particle_diameter >= tube.inner_diameter:
             raise CaseError(source, "bed.particle_diameter", "must be smaller than tube.inner_diameter")
     coolant = _coolant(top.sub("coolant"), feed, source)
-    heat = _heat_transfer(top.sub("heat_transfer", required=False), coolant, bed, feed, source)
+    radial = _radial(top.sub("radial", required=False), bed, feed, source)
+    heat = _heat_transfer(top.sub("heat_transfer", required=False), coolant, bed, feed, radial, source)
     limits = _limits(top.sub("limits", required=False), species, product, coolant, bed, source)
     return C.Case(source=source, title=title, phase=phase, species=tuple(species), reactions=tuple(reactions),
                   key_reactant=key, product=product or None, feed=feed, tube=tube, bed=bed, coolant=coolant,
                   heat_transfer=heat, numerics=numerics, limits=limits,
-                  raw=copy.deepcopy(data))
+                  raw=copy.deepcopy(data), radial=radial)
 
 
 def _cp_model(value, source, key):
@@ -578,7 +579,42 @@ def _coolant(t: Table, feed, source):
     return C.Coolant(mode.name, temperature, mass_flow, cp, pressure)
 
 
-def _heat_transfer(t: Table | None, coolant, bed, feed, source):
+def _radial(t: Table | None, bed, feed, source):
+    """The [radial] table: data of the two-dimensional model. For a packed bed, lambda_er is given or comes from
+    the correlations with the pellet's solid_conductivity; an empty tube needs lambda_er and alpha_w given."""
+    if t is None:
+        return None
+    t.allowed = {"points", "particle_shape", "solid_conductivity", "lambda_er", "alpha_w", "dispersion"}
+    radial = C.Radial(
+        points=t.number("points", default=C.Radial.points, low=1, high=40, integer=True),
+        particle_shape=t.choice("particle_shape", ("sphere", "cylinder"), default=C.Radial.particle_shape),
+        solid_conductivity=t.quantity("solid_conductivity", "thermal_conductivity", required=False, maximum=1e4),
+        lambda_er=t.quantity("lambda_er", "thermal_conductivity", required=False, maximum=1e6),
+        alpha_w=t.quantity("alpha_w", "heat_transfer_coefficient", required=False, maximum=1e6),
+        dispersion=t.quantity("dispersion", "diffusivity", required=False, maximum=10.0),
+    )
+    t.finish()
+    if bed is None:
+        for key in ("lambda_er", "alpha_w"):
+            if getattr(radial, key) is None:
+                raise CaseError(source, f"radial.{key}", "missing: an empty tube has no radial correlation here; "
+                                "give lambda_er and alpha_w")
+        for key in ("solid_conductivity", "particle_shape"):
+            if t.has(key):
+                raise CaseError(source, f"radial.{key}", "applies to packed beds only (this case has no [bed])")
+    else:
+        if radial.lambda_er is None and radial.solid_conductivity is None:
+            raise CaseError(source, "radial.solid_conductivity", "missing: a packed bed needs the pellet's "
+                            "solid_conductivity (for the static conductivity) or lambda_er given")
+        needs = [k for k, v in (("lambda_er", radial.lambda_er), ("alpha_w", radial.alpha_w)) if v is None]
+        if needs and (feed.thermal_conductivity is None or feed.viscosity is None):
+            missing = "thermal_conductivity" if feed.thermal_conductivity is None else "viscosity"
+            raise CaseError(source, f"feed.{missing}", f"missing: needed by the radial correlations for "
+                            f"{' and '.join(needs)}")
+    return radial
+
+
+def _heat_transfer(t: Table | None, coolant, bed, feed, radial, source):
     if not coolant.kind.exchanges_heat:
         if t is not None:
             t.allowed = {"overall", "inside", "outside", "multiplier"}
@@ -595,10 +631,14 @@ def _heat_transfer(t: Table | None, coolant, bed, feed, source):
     else:
         default = "leva" if bed is not None else "gnielinski"
         inside = t.choice("inside", C.INSIDE_CORRELATIONS, default=default)
-        if (inside == "leva") != (bed is not None):
+        if inside == "radial_lumped":
+            if radial is None:
+                raise CaseError(source, "heat_transfer.inside", '"radial_lumped" needs the [radial] table (its '
+                                "lambda_er and alpha_w are lumped into the bed-side coefficient)")
+        elif (inside == "leva") != (bed is not None):
             raise CaseError(source, "heat_transfer.inside", '"leva" is for packed beds only; empty tubes allow '
-                            '"gnielinski", "dittus_boelter", "laminar"')
-        if feed.thermal_conductivity is None:
+                            '"gnielinski", "dittus_boelter", "laminar", "radial_lumped"')
+        if feed.thermal_conductivity is None and inside != "radial_lumped":
             raise CaseError(source, "feed.thermal_conductivity", "missing: needed by the inside heat-transfer "
                             "correlation")
         ht = C.HeatTransfer(inside=inside, outside=t.quantity("outside", "heat_transfer_coefficient", maximum=1e6),

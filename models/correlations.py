@@ -97,6 +97,83 @@ def leva_cooling_wall_nusselt(m, Re_p, dp_dt):
     return 3.50 * Re_p**0.7 * m.exp(-4.6 * dp_dt)
 
 
+SHAPE_FACTORS = {"sphere": 1.25, "cylinder": 2.5}  # Zehner-Schluender form factor C_f (from memory)
+
+
+@_valid(voidage=(0.26, 0.7), conductivity_ratio=(1.0, 1.0e4))
+def zehner_schlunder_1970_static_conductivity(m, fluid_conductivity, solid_conductivity, voidage, shape_factor):
+    """Stagnant effective conductivity of a packed bed [W/(m K)], without radiation and flow (Zehner and
+    Schluender, Chem. Ing. Tech. 42, 1970, 933-941; restated in the VDI Heat Atlas):
+
+        k0/k_f = 1 - sqrt(1-e) + 2 sqrt(1-e) / (1 - B/kappa) *
+                 [ (1 - 1/kappa) B / (1 - B/kappa)^2 ln(kappa/B) - (B+1)/2 - (B-1)/(1 - B/kappa) ]
+        kappa = k_s/k_f,   B = C_f ((1-e)/e)^(10/9),   C_f = 1.25 spheres, 2.5 cylinders
+
+    fluid_conductivity k_f and solid_conductivity k_s [W/(m K)], voidage e [-]. It gives k0 = k_f when
+    kappa = 1 (checked in the tests) and lies between the series and parallel bounds. The form factors and
+    ranges are from memory; about +-30 % against stagnant-bed data."""
+    kappa = solid_conductivity / fluid_conductivity
+    b = shape_factor * ((1.0 - voidage) / voidage) ** (10.0 / 9.0)
+    root = m.sqrt(1.0 - voidage)
+    nb = 1.0 - b / kappa
+    core = (1.0 - 1.0 / kappa) * b / nb**2 * m.log(kappa / b) - (b + 1.0) / 2.0 - (b - 1.0) / nb
+    return fluid_conductivity * (1.0 - root + 2.0 * root / nb * core)
+
+
+@_valid(Re_p=(10.0, 2000.0), dp_dt=(0.05, 0.3))
+def specchia_1980_radial_conductivity(m, static_conductivity, fluid_conductivity, Re_p, Pr, dp_dt):
+    """Effective radial conductivity of a packed bed with flow [W/(m K)] (Specchia, Baldi and Sicardi, Chem.
+    Eng. Commun. 4, 1980, 361-380; the flow term in the Bauer-Schluender form):
+
+        lambda_er = k0 + k_f Re_p Pr / (8.65 (1 + 19.4 (d_p/d_t)^2))
+
+    static_conductivity k0 [W/(m K)] (zehner_schlunder_1970_static_conductivity), k_f [W/(m K)],
+    Re_p = d_p G / mu and Pr = cp mu / k_f [-], dp_dt = d_p/d_t [-]. Constants and ranges from memory;
+    about +-20 % in the published comparisons."""
+    return static_conductivity + fluid_conductivity * Re_p * Pr / (8.65 * (1.0 + 19.4 * dp_dt**2))
+
+
+LI_FINLAYSON = {"sphere": (0.17, 0.79), "cylinder": (0.16, 0.93)}  # (a, b) of Nu_w = a Re_p^b (from memory)
+
+
+@_valid(Re_p=(20.0, 7600.0), dp_dt=(0.05, 0.3))
+def li_finlayson_1977_wall_coefficient(m, Re_p, fluid_conductivity, particle_diameter, shape="sphere"):
+    """Wall heat-transfer coefficient alpha_w [W/(m^2 K)] of the two-dimensional packed-bed model (Li and
+    Finlayson, Chem. Eng. Sci. 32, 1977, 1055-1066, their re-evaluation of earlier data with the
+    lambda_er/alpha_w model):
+
+        alpha_w d_p / k_f = 0.17 Re_p^0.79 (spheres, 20 < Re_p < 7600),  0.16 Re_p^0.93 (cylinders, 20-800)
+
+    Re_p = d_p G / mu [-], k_f [W/(m K)], d_p [m]; 0.05 < d_p/d_t < 0.3. Constants from memory; the scatter
+    of wall coefficients is large (+-40 %), which is why the 2-D check is a screening estimate."""
+    a, b = LI_FINLAYSON[shape]
+    return a * Re_p**b * fluid_conductivity / particle_diameter
+
+
+@_valid(Re_p=(10.0, 5000.0), dp_dt=(0.0, 0.3))
+def fahien_smith_1955_radial_dispersion(m, superficial_velocity, particle_diameter, dp_dt):
+    """Effective radial mass dispersivity of a packed bed [m^2/s] on the whole cross-section (Fahien and Smith,
+    AIChE J. 1, 1955, 28-37, in the form quoted by Froment and Bischoff):
+
+        Pe_mr = u_s d_p / D_er = 8 (1 + 19.4 (d_p/d_t)^2)
+
+    superficial_velocity u_s [m/s], d_p [m], dp_dt [-]. Turbulent (Re_p above about 10-100), where molecular
+    diffusion adds little; constants from memory."""
+    return superficial_velocity * particle_diameter / (8.0 * (1.0 + 19.4 * dp_dt**2))
+
+
+def lumped_wall_coefficient(m, alpha_w, lambda_er, tube_diameter):
+    """The one-dimensional bed-side coefficient equivalent to (alpha_w, lambda_er) [W/(m^2 K)] (Froment and
+    Bischoff, Chemical Reactor Analysis and Design, 2nd ed., 1990, chapter on fixed-bed reactors; the chapter
+    from memory):
+
+        1/h = 1/alpha_w + d_t / (8 lambda_er)
+
+    exact to first order in the radial Biot number alpha_w d_t / (2 lambda_er) (the first eigenvalue of the
+    Bessel series); used so that the 1-D and 2-D models share their data."""
+    return 1.0 / (1.0 / alpha_w + tube_diameter / (8.0 * lambda_er))
+
+
 def overall_coefficient(m, h_inside, h_outside, inner_diameter, wall_thickness, wall_conductivity):
     """Overall coefficient based on the inner tube area [W/(m^2 K)], resistances in series (textbook):
 

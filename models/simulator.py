@@ -65,14 +65,19 @@ def initial_state(case, coolant_start: float | None = None) -> np.ndarray:
 
 def _events(case):
     layout = StateLayout.of(case)
+    return stop_events(case, lambda y: y[layout.index("P")], lambda y: y[layout.index("T")])
+
+
+def stop_events(case, pressure, temperature):
+    """The terminal events of an integration: the pressure floor and the temperature ceiling, from functions
+    of the state giving the pressure and the (largest) temperature."""
     num = case.numerics
-    i_p, i_t = layout.index("P"), layout.index("T")
 
     def pressure_floor(z, y):
-        return y[i_p] - num.min_pressure
+        return pressure(y) - num.min_pressure
 
     def temperature_ceiling(z, y):
-        return num.temperature_ceiling - y[i_t]
+        return num.temperature_ceiling - temperature(y)
 
     pressure_floor.terminal = temperature_ceiling.terminal = True
     pressure_floor.direction = temperature_ceiling.direction = -1
@@ -81,13 +86,17 @@ def _events(case):
 
 def integrate(case, coolant_start: float | None = None, dense: bool = True):
     """One pass of solve_ivp from z = 0 to L. Returns the scipy result (never raises for solver trouble)."""
-    rhs = state_rhs(case)
-    y0 = initial_state(case, coolant_start)
+    return run_ivp(case, state_rhs(case), initial_state(case, coolant_start), _events(case), dense)
+
+
+def run_ivp(case, rhs, y0, events, dense: bool):
+    """solve_ivp over the tube with the case's method and tolerances and the complex-step Jacobian; an
+    integrator failure comes back as a result with status -1 (the axial and the radial models)."""
     num = case.numerics
     atol = num.atol * np.maximum(np.abs(y0), 1.0)
     try:
         return solve_ivp(rhs, (0.0, case.tube.length), y0, method=num.method, rtol=num.rtol, atol=atol,
-                         events=_events(case), dense_output=dense, jac=complex_step_jacobian(rhs))
+                         events=events, dense_output=dense, jac=complex_step_jacobian(rhs))
     except (FloatingPointError, ArithmeticError, np.linalg.LinAlgError) as err:
         return _Failure(str(err))
     except ValueError as err:
@@ -123,19 +132,21 @@ def stop_reason(case, sol) -> tuple[Status, Reason, str]:
     return Status.OK, Reason.INTEGRATED, "integrated to the tube outlet"
 
 
-def shoot_countercurrent(case, guess: float | None = None):
+def shoot_countercurrent(case, guess: float | None = None, integrator=None, tc_index: int | None = None):
     """Counter-current coolant enters at z = L: find its outlet temperature at z = 0 such that the
     integrated coolant temperature at z = L equals the inlet value. The residual is nearly linear in the
     guess, so the secant method from ``guess`` usually converges in 3-4 integrations; bracketing plus
-    Brent's method is the fallback."""
-    i_tc = StateLayout.of(case).index("Tc")
+    Brent's method is the fallback. ``integrator(case, tc0, dense)`` and ``tc_index`` (the row of Tc in its
+    state) default to the axial model's (the radial model passes its own)."""
+    integrator = integrate if integrator is None else integrator
+    i_tc = StateLayout.of(case).index("Tc") if tc_index is None else tc_index
     tc_in = case.coolant.temperature
     # the shooting passes need no tighter tolerance than 1e-8; the final pass uses the case's own
     shooting = replace(case, numerics=replace(case.numerics, rtol=max(case.numerics.rtol, 1e-8)))
 
     def residual(tc0):
         with np.errstate(over="ignore", invalid="ignore"):  # a wild probe fails quietly and returns NaN
-            sol = integrate(shooting, tc0, dense=False)
+            sol = integrator(shooting, tc0, dense=False)
         if isinstance(sol, _Failure) or sol.status != 0:
             return np.nan
         return sol.y[i_tc, -1] - tc_in

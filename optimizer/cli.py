@@ -108,7 +108,10 @@ def summary_lines(case, result) -> list[str]:
 
 def cmd_simulate(args) -> int:
     case = load_case(args.case, _parse_sets(args.set))
+    if args.radial_points is not None and not args.radial:
+        raise option_error("--radial-points", "applies to --radial only")
     result = verbs.simulate(case)
+    radial = verbs.radial_check(case, args.radial_points, one_d=result) if args.radial else None
     files = {}
     if args.out:
         out = Path(args.out)
@@ -119,10 +122,13 @@ def cmd_simulate(args) -> int:
             from tubewright.optimizer.output.plots import plot_profiles
 
             files["plot_png"] = str(plot_profiles(case, result, out / "profiles.png"))
+        if radial is not None:
+            files.update(_radial_files(case, radial, out))
         files["summary_json"] = str(out / "summary.json")
-        Path(files["summary_json"]).write_text(json.dumps(_json_answer(case, result, files), indent=2) + "\n")
+        Path(files["summary_json"]).write_text(json.dumps(_json_answer(case, result, files, radial), indent=2)
+                                               + "\n")
     if args.json:
-        _emit_json(_json_answer(case, result, files))
+        _emit_json(_json_answer(case, result, files, radial))
     else:
         print(f"{case.title}\n  case file: {case.source}")
         print("\n".join(summary_lines(case, result)))
@@ -136,14 +142,78 @@ def cmd_simulate(args) -> int:
             print("\nchecks passed:")
             for f in infos:
                 print(f"  - {f.code}: {f.message}")
+        if radial is not None:
+            print("\n" + "\n".join(radial_lines(case, radial)))
         for label, path in files.items():
             print(f"  wrote {label}: {path}")
         print(f"\nsimulated in {result.timings.get('simulate_s', 0):.2f} s, checks in "
-              f"{result.timings.get('checks_s', 0):.2f} s\n\nCAUTION: {CAUTION}")
-    return EXIT_OK if result.ok else EXIT_NOT_OK
+              f"{result.timings.get('checks_s', 0):.2f} s"
+              + (f", 2-D model in {radial.result.timings.get('simulate_s', 0):.2f} s" if radial else "")
+              + f"\n\nCAUTION: {CAUTION}")
+    return EXIT_OK if result.ok and (radial is None or radial.result.ok) else EXIT_NOT_OK
 
 
-def _json_answer(case, result, files) -> dict:
+def radial_lines(case, check, limit=None) -> list[str]:
+    """The 2-D model beside the 1-D one, in display units; ``limit`` the hot-spot limit [K] (default the
+    case's max_temperature)."""
+    f = check.figures()
+    res = check.result
+    t = check.transport
+    limit = case.limits.get("max_temperature") if limit is None else limit
+    lines = [f"two-dimensional model ({res.points} radial points; at the inlet lambda_er "
+             f"{t['lambda_er_W_m_K']:.4g} W/(m K), alpha_w {t['alpha_w_W_m2_K']:.4g} W/(m2 K), wall-to-coolant "
+             f"{t['wall_u_W_m2_K']:.4g} W/(m2 K), D_er {t['dispersion_m2_s']:.3g} m2/s):",
+             f"  status {res.status}: {res.reason}"]
+    rows = [("centre-line hot spot", display.field("centre_hot_spot_K", f["centre_hot_spot_K"])),
+            ("  at z", display.field("centre_hot_spot_position_m", f["centre_hot_spot_position_m"])),
+            ("1-D hot spot (this case's heat transfer)", display.field("one_d_hot_spot_K", f["one_d_hot_spot_K"])),
+            ("  2-D minus 1-D", display.field("one_d_difference_K", f["one_d_difference_K"]))]
+    if "lumped_hot_spot_K" in f:
+        rows += [("1-D hot spot (U lumped from the radial data)",
+                  display.field("lumped_hot_spot_K", f["lumped_hot_spot_K"])),
+                 ("  2-D minus lumped 1-D", display.field("lumped_difference_K", f["lumped_difference_K"]))]
+    rows.append(("centre-to-wall difference at the hot spot",
+                 display.field("hot_spot_radial_difference_K", f["hot_spot_radial_difference_K"])))
+    if "grid_difference_K" in f:
+        rows.append((f"radial-grid check: hot spot change at {f['grid_points']} points",
+                     display.field("grid_difference_K", f["grid_difference_K"])))
+    if limit is not None and f["centre_hot_spot_K"] is not None:
+        margin = limit - f["centre_hot_spot_K"]
+        verdict = "kept" if res.ok and margin >= 0 else "VIOLATED"
+        rows.append(("hot-spot limit (2-D centre line)", f"{display.temperature(limit)}: {verdict} "
+                     f"(margin {margin:.4g} K)"))
+    width = max(len(r[0]) for r in rows)
+    lines += [f"  {label:<{width}}  {value}" for label, value in rows]
+    prof = res.hot_spot_profile
+    if prof:
+        lines.append("  radial profile at the hot spot: "
+                     + ", ".join(f"r {r * 1e3:.3g} mm {display.temperature(v)}"
+                                 for r, v in zip(prof["radius_m"], prof["T_K"])))
+    return lines
+
+
+def _radial_files(case, check, out: Path) -> dict:
+    import pandas as pd
+    from tubewright.optimizer.output.plots import plot_radial
+
+    res = check.result
+    files = {}
+    if res.columns:
+        files["radial_profiles_csv"] = str(out / "radial-profiles.csv")
+        safe_frame(pd.DataFrame(res.columns)).to_csv(files["radial_profiles_csv"], index=False)
+        grid = pd.DataFrame(res.temperature_map_K, columns=[f"T_K_at_r_{r:.6g}_m" for r in res.radius_m])
+        grid.insert(0, "z_m", res.columns["z_m"])
+        files["temperature_map_csv"] = str(out / "temperature-map.csv")
+        safe_frame(grid).to_csv(files["temperature_map_csv"], index=False)
+        files.update(plot_radial(case, check, out))
+    return files
+
+
+def _json_answer(case, result, files, radial=None) -> dict:
+    extra = {}
+    if radial is not None:
+        extra["radial"] = {"figures": radial.figures(), "summary_2d": radial.result.summary,
+                           "hot_spot_profile": radial.result.hot_spot_profile}
     return finite({
         "case": case.source,
         "title": case.title,
@@ -153,6 +223,7 @@ def _json_answer(case, result, files) -> dict:
         "findings": [f.as_dict() for f in result.findings],
         "timings_s": result.timings,
         "files": files,
+        **extra,
         "caution": CAUTION,
     })
 
@@ -246,7 +317,7 @@ def cmd_optimize(args) -> int:
 
     res = verbs.optimize(case, ideal=args.ideal, starts=args.starts, seed=args.seed, pareto=args.pareto,
                          progress=progress, on_optimum=show_optimum, scenarios=args.scenarios,
-                         verify_samples=args.verify_samples)
+                         verify_samples=args.verify_samples, radial_tighten=args.radial_tighten)
     progress.close()
     extras = res.extras
     files = {}
@@ -317,6 +388,42 @@ def extra_lines(res, extras) -> list[str]:
             lines.append(f"  not on the front (IPOPT {p['status']}): selectivity asked >= {p['epsilon']:.5f}")
     if "robust" in extras:
         lines += robust_lines(extras["robust"])
+    if "radial_check" in extras:
+        lines += radial_check_lines(extras["radial_check"])
+    return lines
+
+
+def radial_check_lines(r: dict) -> list[str]:
+    """The 2-D check of the optimum (optimizer.design.radial_check) and its tightening passes."""
+    if not r["run"]:
+        return [f"\ntwo-dimensional check of the optimum: not run: {r['reason']}"]
+    f, limit = r["figures"], r["limit_K"]
+    hot = f["centre_hot_spot_K"]
+    lines = [f"\ntwo-dimensional check of the optimum ({f['radial_points']} radial points; the radial criterion "
+             "warned):", f"  2-D status {f['status_2d']}: {f['reason_2d']}",
+             f"  hot spot: 1-D {display.field('max_temperature_K', f['one_d_hot_spot_K'])}, 2-D centre line "
+             f"{display.field('max_temperature_K', hot)}"
+             + ("" if limit is None else f", limit {display.temperature(limit)}")]
+    if r["violated"]:
+        lines.append("  THE 1-D OPTIMUM VIOLATES THE HOT-SPOT LIMIT IN 2-D"
+                     + ("" if "passes" in r else " (optimize --radial-tighten re-solves with a tightened limit)"))
+    elif limit is not None:
+        lines.append("  the 2-D hot spot keeps the limit")
+    for p in r.get("passes", []):
+        lines.append(f"  pass {p['pass']} ({p['change']}): 1-D limit {display.temperature(p['limit_1d_K'])}, "
+                     f"IPOPT {p['status']}"
+                     + (f", objective {_fmt(p['objective'])}, hot spot 1-D "
+                        f"{display.field('max_temperature_K', p['hot_spot_1d_K'])}, 2-D "
+                        f"{display.field('max_temperature_K', p['hot_spot_2d_K'])} ({p['status_2d']})"
+                        if "hot_spot_2d_K" in p else f": {p.get('reason', '')}"))
+    t = r.get("tightened")
+    if t and "design" in t:
+        lines.append(f"  tightened design (2-D hot spot within the limit after {t['passes']} pass(es)):")
+        for k, v in t["design"].items():
+            lines.append(f"    {k}: {display.field(k, v)}")
+        lines.append(f"    objective {_fmt(t['objective'])} (the 1-D optimum: {_fmt(r['objective_1d'])})")
+    elif t:
+        lines.append(f"  tightening did not meet the limit: {t['reason']}")
     return lines
 
 
@@ -533,6 +640,10 @@ def build_parser() -> argparse.ArgumentParser:
     sim.add_argument("--out", metavar="DIR", help="write profiles.csv, profiles.png and summary.json here")
     sim.add_argument("--set", action="append", metavar="KEY=VALUE",
                      help='override a case key, for example --set tube.length="6 m" (repeatable)')
+    sim.add_argument("--radial", action="store_true", help="also run the two-dimensional model ([radial] table) "
+                     "and compare its centre-line hot spot with the 1-D one")
+    sim.add_argument("--radial-points", type=int, metavar="N", help="interior radial points of the 2-D model "
+                     "(default [radial] points)")
     sim.set_defaults(func=cmd_simulate)
     opt = sub.add_parser("optimize", help="optimise the free design quantities of a case ([design], [limits], [goal])")
     opt.add_argument("case", help="case file (TOML)")
@@ -543,6 +654,8 @@ def build_parser() -> argparse.ArgumentParser:
     opt.add_argument("--starts", type=int, metavar="N", help="also solve from N random starting designs")
     opt.add_argument("--seed", type=int, default=0, help="seed of the random starts (default 0)")
     opt.add_argument("--pareto", type=int, metavar="N", help="also trace a cost-selectivity front of N points")
+    opt.add_argument("--radial-tighten", action="store_true", help="when the 2-D model puts the optimum's hot spot "
+                     "above the limit, re-solve with the 1-D limit tightened by the excess until it holds in 2-D")
     opt.add_argument("--scenarios", type=int, metavar="K", help="also a robust design: every limit in K scenarios "
                      "drawn from [uncertain] (seeded by --seed), verified on fresh samples")
     opt.add_argument("--verify-samples", type=int, metavar="M", help="fresh samples that verify the nominal and "

@@ -27,6 +27,20 @@ def simulate(case):
     return _simulate_with_checks(case, checks=True)
 
 
+def radial_check(case, points: int | None = None, one_d=None, grid_check: bool = True):
+    """The two-dimensional model beside the one-dimensional one: a models.radial.RadialCheck. The case needs
+    its [radial] table (CaseError otherwise)."""
+    from tubewright.models.errors import CaseError
+    from tubewright.models.radial import radial_check as check
+
+    if case.radial is None:
+        raise CaseError(case.source, "radial", "missing: the two-dimensional model needs the [radial] table "
+                        "(solid_conductivity for a packed bed, or lambda_er and alpha_w; docs/case-reference.md)")
+    if points is not None and not 1 <= points <= 20:
+        raise option_error("--radial-points", f"must be 1..20 (the grid check doubles it), got {points}")
+    return check(case, points, grid_check=grid_check, one_d=one_d)
+
+
 def fit(case_path, data_path):
     """Kinetic parameters from laboratory runs: an optimizer.fitting.estimate.FitOutcome."""
     from tubewright.optimizer.fitting.estimate import fit as estimate
@@ -35,7 +49,8 @@ def fit(case_path, data_path):
 
 
 def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0, pareto: int | None = None,
-             progress=None, on_optimum=None, scenarios: int | None = None, verify_samples: int | None = None):
+             progress=None, on_optimum=None, scenarios: int | None = None, verify_samples: int | None = None,
+             radial_tighten: bool = False):
     """The cheapest (or best) layout of a case: an OptimizationResult whose ``extras`` hold, as asked, the
     ranking of standard tubes (``[design] standard_tubes = true``: the best tube is then optimised), the
     ideal bound with its gap (``ideal``), a multi-start (``starts``, ``seed``) and a cost-selectivity front
@@ -43,7 +58,9 @@ def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0
     ``progress``: see output.progress.Phases; ``on_optimum(result)`` is called as soon as the main optimum
     is known, before the alternatives are computed (the command line prints it then). ``scenarios``: also
     a robust design over that many scenarios of [uncertain] (optimizer.design.robust), verified on
-    ``verify_samples`` fresh samples."""
+    ``verify_samples`` fresh samples. When the radial criterion warns at the optimum (or ``radial_tighten``
+    asks), the 2-D model checks it (optimizer.design.radial_check); ``radial_tighten`` re-optimises with the
+    hot-spot limit tightened until the 2-D hot spot meets it."""
     from tubewright.optimizer.design.alternatives import multistart, pareto_front, rank_standard_tubes
     from tubewright.optimizer.design.ideal import ideal_bound
     from tubewright.optimizer.design.optimise import optimise
@@ -74,6 +91,11 @@ def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0
     res.case = case
     if on_optimum is not None:
         on_optimum(res)
+    from tubewright.optimizer.design.radial_check import radial_design_check
+
+    radial = radial_design_check(res, radial_tighten, progress)
+    if radial is not None:
+        extras["radial_check"] = radial
     if ideal and res.ok:
         if progress is not None:
             progress("ideal bound (free temperature profile)")

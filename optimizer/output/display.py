@@ -41,9 +41,9 @@ BY_FIELD = {
     "heat_removed_W": power,
     "steam_raised_kg_s": mass_flow,
     "coolant_flow_kg_s": mass_flow,
-    "max_temperature_difference_K": lambda v: f"{_g(v)} K",
 }
-BY_SUFFIX = (("_mol_s", lambda v: f"{_g(v)} mol/s"), ("_K", temperature), ("_Pa", pressure), ("_W", power),
+BY_SUFFIX = (("_mol_s", lambda v: f"{_g(v)} mol/s"), ("_difference_K", lambda v: f"{_g(v)} K"),
+             ("_K", temperature), ("_Pa", pressure), ("_W", power),
              ("_kg_s", mass_flow), ("_m", length), ("_s", lambda v: f"{_g(v)} s"),
              ("_m_s", lambda v: f"{_g(v)} m/s"))
 # a limit's dimension -> formatter of its value and bound (models.limits rows)

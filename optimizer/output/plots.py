@@ -50,6 +50,41 @@ def plot_profiles(case, result, path: Path, limits=None) -> Path:
     return finish(fig, path, top=0.95 if not result.ok else 0.97)
 
 
+def plot_radial(case, check, out: Path) -> dict:
+    """The 2-D model: the temperature map T(z, r) and the centre-line, mixing-cup mean and wall profiles
+    beside the 1-D profile(s). Returns {label: path}."""
+    res = check.result
+    cols = res.columns
+    z = cols["z_m"]
+    title = plain(case.title) + ("" if res.ok else "\n" + plain(f"2-D SIMULATION STOPPED: {res.reason}"))
+    fig = new_figure((7.0, 4.2))
+    ax = fig.subplots()
+    mesh = ax.pcolormesh(z, res.radius_m * 1e3, res.temperature_map_K.T, shading="gouraud", cmap="inferno")
+    fig.colorbar(mesh, ax=ax, label="temperature [K]")
+    ax.set_xlabel("axial position z [m]")
+    ax.set_ylabel("radius r [mm] (axis at 0, wall at the top)")
+    ax.set_title(title, fontsize=8)
+    paths = {"temperature_map_png": str(finish(fig, out / "temperature-map.png"))}
+    fig = new_figure((7.0, 4.4))
+    ax = fig.subplots()
+    ax.plot(z, cols["T_centre_K"], label="2-D centre line")
+    ax.plot(z, cols["T_mean_K"], label="2-D mixing-cup mean")
+    ax.plot(z, cols["T_wall_K"], ":", label="2-D at the wall")
+    for label, one in (("1-D (this case)", check.one_d), ("1-D (U lumped from the radial data)", check.lumped)):
+        if one is not None and one.columns:
+            ax.plot(one.columns["z_m"], one.columns["T_K"], "--", lw=1.0, label=label)
+    if case.coolant.kind.exchanges_heat:
+        ax.plot(z, cols["Tc_K"], color="gray", lw=0.8, label="coolant")
+    if case.limits.get("max_temperature") is not None:
+        ax.axhline(case.limits["max_temperature"], color="red", lw=0.8, ls=":", label="temperature limit")
+    ax.set_xlabel("axial position z [m]")
+    ax.set_ylabel("temperature [K]")
+    ax.legend(loc="best", fontsize=7)
+    ax.set_title(title, fontsize=8)
+    paths["radial_profiles_png"] = str(finish(fig, out / "radial-profiles.png"))
+    return paths
+
+
 def plot_front(case, front: dict, path: Path) -> Path:
     """The cost-selectivity front: converged points joined, points that did not converge left out (listed
     in the report)."""

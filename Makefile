@@ -41,6 +41,7 @@ bench: $(STAMP)
 	$(BIN)/python tests/benchmarks/bench_linear_solver.py --quick
 	$(BIN)/python tests/benchmarks/bench_fit.py
 	$(BIN)/python tests/benchmarks/bench_robust.py
+	$(BIN)/python tests/benchmarks/bench_radial.py
 	$(BIN)/python tests/benchmarks/bench_screen.py
 	$(BIN)/python tests/benchmarks/bench_study.py
 	$(BIN)/python tests/benchmarks/fuzz_cases.py 800

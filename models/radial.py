@@ -77,43 +77,47 @@ def radial_rhs(case, grid):
     """f(z, y) of the radial model (trailing axes of y broadcast, as for the axial model)."""
     layout = RadialLayout(len(case.species), grid.n + 1)
     w, K = grid.mean, grid.stiffness
+    w_col = w[:, None]
     tube, mode = case.tube, case.coolant.kind
     radius = tube.inner_diameter / 2.0
     i_p, i_tc = layout.tail_index("P"), layout.tail_index("Tc")
 
     def rhs(z, y):
         extra = y.shape[1:]
-        wj = w.reshape(-1, *([1] * len(extra)))
-        F = layout.flows(y)
+        y2 = y.reshape(layout.size, -1)  # the trailing axes as one: matrix products over the nodes
+        F = layout.flows(y2)  # (species, nodes, m)
         F = np.where(F.real < 0.0, 0.0 * F, F)
-        T = layout.temperatures(y)
-        P, Tc = y[i_p], y[i_tc]
+        T = layout.temperatures(y2)  # (nodes, m)
+        P, Tc = y2[i_p], y2[i_tc]
         local, src, gen = reaction_sources(NUMPY, case, list(F), T, P[None])
-        gen = np.broadcast_to(gen, T.shape)
         C = local.cp_molar_flow
-        mean_F = [np.tensordot(w, f, axes=(0, 0)) for f in F]
-        t_mix = np.tensordot(w, C * T, axes=(0, 0)) / np.tensordot(w, C, axes=(0, 0))
+        mean_F = list(w @ F)
+        t_mix = (w @ (C * T)) / (w @ C)
         mean = local_properties(NUMPY, case, mean_F, t_mix, P)
         tr = radial_transport(NUMPY, case, mean)
         disp = tr.dispersion / (mean.mass_flow / (tube.area * mean.density) * radius**2)  # 1/m
-        spread = [disp * np.tensordot(K, f, axes=(1, 0)) for f in F]  # (nodes, ...) per species
-        dF = [s - d / wj for s, d in zip(src, spread)]
+        spread = disp * (K @ F)  # (species, nodes, m)
+        dF = -spread / w_col
+        for i, s_i in enumerate(src):
+            dF[i] += s_i
         to_coolant = math.pi * tube.inner_diameter * tr.wall_u * (T[-1] - Tc)  # W/m per tube
         if mode.holds_temperature:
             dT = 0.0 * T
-            dQ = tube.count * np.tensordot(w, gen, axes=(0, 0))
+            dQ = tube.count * (w @ np.broadcast_to(gen, T.shape))
         else:
-            conduct = math.pi * tr.lambda_er * np.tensordot(K, T, axes=(1, 0))
+            conduct = math.pi * tr.lambda_er * (K @ T)
             conduct[-1] = conduct[-1] + to_coolant
             carried = 0.0
+            both = np.concatenate([T, t_mix[None]])  # one enthalpy call per species for nodes and mean
             for sp, d in zip(case.species, spread):
-                carried = carried + (sp.enthalpy(NUMPY, T) - sp.enthalpy(NUMPY, t_mix)) * d
-            dT = (gen + (carried - conduct) / wj) / C
+                h = sp.enthalpy(NUMPY, both)
+                carried = carried + (h[:-1] - h[-1]) * d
+            dT = (gen + (carried - conduct) / w_col) / C
             dQ = tube.count * to_coolant
-        out = np.concatenate([np.reshape(np.asarray(dF), (-1, *extra)), dT, [
-            np.broadcast_to(pressure_gradient(NUMPY, case, mean), extra),
-            np.broadcast_to(coolant_gradient(case, to_coolant, Tc), extra),
-            np.broadcast_to(dQ, extra), np.broadcast_to(residence_gradient(case, mean), extra)]])
+        ones = np.ones_like(Tc)
+        out = np.concatenate([dF.reshape(-1, dF.shape[-1]), dT, [
+            pressure_gradient(NUMPY, case, mean) * ones, coolant_gradient(case, to_coolant, Tc) * ones,
+            dQ * ones, residence_gradient(case, mean) * ones]]).reshape(layout.size, *extra)
         rhs.last = out
         return out
 
@@ -131,6 +135,7 @@ def radial_initial_state(case, layout: RadialLayout, coolant_start=None) -> np.n
 
 
 def integrate_radial(case, grid, coolant_start=None, dense=True):
+    """solve_ivp of the radial model with the case's method and tolerances (models.simulator.run_ivp)."""
     rhs = radial_rhs(case, grid)
     layout = rhs.layout
     events = stop_events(case, lambda y: y[layout.tail_index("P")], lambda y: np.max(layout.temperatures(y)))

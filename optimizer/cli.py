@@ -480,10 +480,13 @@ def cmd_screen(args) -> int:
         warnings.simplefilter("ignore", UserWarning)  # SALib's power-of-two warning: such counts are refused
         res = verbs.screen(case, args.method, args.samples, args.seed, args.policy, reoptimise=args.reoptimise,
                            batched=not args.no_batch, workers=args.workers, progress=progress,
-                           max_hours=None if args.yes else args.max_hours)
+                           max_hours=None if args.yes else args.max_hours, radial=args.radial)
     progress.close()
     answer = as_json(res)
     answer.update(case=case.source, title=case.title, caution=CAUTION)
+    model = (f"two-dimensional ({case.radial.points} radial points; max_temperature_K is the largest 2-D "
+             "temperature)" if args.radial else "one-dimensional")
+    answer["model"] = model
     if args.out:
         answer["files"] = write_files(res, Path(args.out))
         if not res.interrupted and not args.reoptimise:
@@ -510,6 +513,7 @@ def cmd_screen(args) -> int:
           f"in {t['evaluate_s']:.1f} s ({t['evaluations_per_s']:.0f}/s), seed {res.seed}, failure policy "
           f"{res.policy}; {t['stopped_samples']} samples stopped"
           + (f", {t['handed_over']} simulated on their own" if t.get("handed_over") else ""))
+    print(f"  model: {model}")
     for name, label in (("passes_hot_spot_limit", "the hot-spot limit"), ("passes_limits", "every limit")):
         if name not in res.probability_of_passing:
             continue
@@ -674,6 +678,9 @@ def build_parser() -> argparse.ArgumentParser:
                      "count and list the failed samples")
     scr.add_argument("--reoptimise", action="store_true", help="re-optimise the design for each sample")
     scr.add_argument("--no-batch", action="store_true", help="simulate one sample at a time")
+    scr.add_argument("--radial", action="store_true", help="evaluate every sample with the two-dimensional model "
+                     "([radial]): its hot spot is the 2-D one; one sample at a time on one process, about ten "
+                     "times slower than the 1-D batches")
     scr.add_argument("--workers", type=int, default=min(2, os.cpu_count() or 1),
                      help="processes for the batches (default: up to 2, the cores of the reference machine)")
     scr.add_argument("--max-hours", type=float, default=verbs.DEFAULT_MAX_HOURS, metavar="H",

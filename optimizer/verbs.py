@@ -150,8 +150,9 @@ def pareto(case, points: int) -> dict:
 
 def screen(case, method: str = "morris", samples: int | None = None, seed: int = 0, policy: str = "censor",
            reoptimise: bool = False, batched: bool = True, workers: int = 1, progress=None,
-           max_hours: float | None = DEFAULT_MAX_HOURS):
-    """Rank the [uncertain] quantities of a case: a ScreeningResult. ``samples`` defaults to
+           max_hours: float | None = DEFAULT_MAX_HOURS, radial: bool = False):
+    """Rank the [uncertain] quantities of a case: a ScreeningResult. ``radial``: the outputs of every sample
+    from the two-dimensional model (the case needs [radial]; one sample at a time, slower). ``samples`` defaults to
     DEFAULT_SAMPLES[method] (Morris trajectories or Sobol base samples) for every caller and is checked by
     the method's rules. A screening whose estimated time (a timed probe of a few samples, extrapolated)
     passes ``max_hours`` is refused before it starts; ``max_hours=None`` accepts any time."""
@@ -165,6 +166,13 @@ def screen(case, method: str = "morris", samples: int | None = None, seed: int =
         raise option_error("--policy", f"{policy!r} is not allowed; allowed: {', '.join(POLICIES)}")
     if workers < 1:
         raise option_error("--workers", f"must be at least 1, got {workers}")
+    if radial and reoptimise:
+        raise option_error("--radial", "does not combine with --reoptimise (the design model is one-dimensional)")
+    if radial and case.radial is None:
+        from tubewright.models.errors import CaseError
+
+        raise CaseError(case.source, "radial", "missing: screening with the two-dimensional model needs the "
+                        "[radial] table")
     n = DEFAULT_SAMPLES[method] if samples is None else samples
     problem = check_samples(method, n)
     if problem:
@@ -172,16 +180,17 @@ def screen(case, method: str = "morris", samples: int | None = None, seed: int =
     if max_hours is not None:
         items = read_uncertain(case)
         rows = rows_for(salib_problem(items), method, n)
-        hours = estimated_hours(case, items, rows, reoptimise, batched, workers)
+        hours = estimated_hours(case, items, rows, reoptimise, batched, workers, radial)
         if hours > max_hours:
             raise option_error("--samples", f"{rows} evaluations would take about {hours:.2g} h (estimated from a "
                                f"timed probe), more than the budget of {max_hours:g} h: use fewer samples, or "
                                "raise the budget (--max-hours H, or --yes to accept any time)")
     return _screen(case, method, n, seed, policy, batched=batched, progress=progress, reoptimise=reoptimise,
-                   workers=workers)
+                   workers=workers, radial=radial)
 
 
-def estimated_hours(case, items, rows: int, reoptimise: bool, batched: bool, workers: int) -> float:
+def estimated_hours(case, items, rows: int, reoptimise: bool, batched: bool, workers: int,
+                    radial: bool = False) -> float:
     """Hours for ``rows`` evaluations, from timing a probe (skipped for screenings below a few hundred
     evaluations, which take seconds). A probe costs at most a few seconds."""
     import time
@@ -189,7 +198,7 @@ def estimated_hours(case, items, rows: int, reoptimise: bool, batched: bool, wor
     import numpy as np
     from tubewright.optimizer.screening.evaluation import evaluate
 
-    if rows <= PROBE_FREE_ROWS:
+    if rows <= (PROBE_FREE_ROWS // 10 if radial else PROBE_FREE_ROWS):
         return 0.0
     probe = np.random.default_rng(0).uniform(0.05, 0.95, size=(PROBE_ROWS, len(items)))
     t0 = time.perf_counter()
@@ -198,6 +207,9 @@ def estimated_hours(case, items, rows: int, reoptimise: bool, batched: bool, wor
 
         reoptimise_evaluator(case, items)(probe[:2])
         per_row = (time.perf_counter() - t0) / 2
+    elif radial:  # one process, one sample at a time
+        evaluate(case, items, probe[:4], radial=True)
+        per_row = (time.perf_counter() - t0) / 4
     else:
         evaluate(case, items, probe, batched=batched)
         per_row = (time.perf_counter() - t0) / PROBE_ROWS / max(1, min(workers, 2) * 0.9)

@@ -366,3 +366,31 @@ def test_simulate_radial_refusals(capsys):
     assert main(["simulate", str(DEMO / "oxidation.toml"), "--radial-points", "4"]) == 2
     assert "--radial-points" in capsys.readouterr().err
     assert main(["simulate", str(DEMO / "oxidation.toml"), "--radial", "--radial-points", "30"]) == 2
+
+
+def test_screen_with_the_2d_model_takes_its_hot_spot(capsys):
+    # The same Sobol rows evaluated in 1-D and 2-D: the 2-D hot spot of every sample is the 2-D model's
+    # (checked against simulate_radial on sample 0) and lies above the 1-D one at this coolant.
+    from tubewright.models.parameters import apply
+    from tubewright.optimizer.screening.evaluation import evaluate
+    from tubewright.optimizer.screening.sampling import to_parameters
+    from tubewright.optimizer.screening.uncertain import read_uncertain
+
+    case = load_case(DEMO / "oxidation-screen.toml", DEMO_RADIAL)
+    items = read_uncertain(case)
+    unit_x = np.random.default_rng(3).uniform(0.1, 0.9, size=(3, len(items)))
+    two = evaluate(case, items, unit_x, radial=True)
+    one = evaluate(case, items, unit_x)
+    values = {p: float(v[0]) for p, v in to_parameters(items, unit_x[:1]).items()}
+    alone = simulate_radial(apply(case, values))
+    assert alone.ok
+    assert two.outputs["max_temperature_K"][0] == pytest.approx(alone.summary["max_temperature_K"], rel=1e-9)
+    assert np.all(two.outputs["max_temperature_K"] > one.outputs["max_temperature_K"] + 5.0)
+    from tubewright.optimizer import verbs
+    from tubewright.optimizer.cli import main
+
+    with pytest.raises(Exception, match="--reoptimise"):
+        verbs.screen(case, "morris", 4, reoptimise=True, radial=True)
+    assert main(["screen", str(DEMO / "oxidation-screen.toml"), "--radial", "--samples", "4", "--set",
+                 'coolant.pressure="80 bar"']) == 0
+    assert "model: two-dimensional (6 radial points" in capsys.readouterr().out

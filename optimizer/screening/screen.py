@@ -13,9 +13,9 @@ SCREENED_OUTPUTS = ("max_temperature_K", "conversion", "product_selectivity", "p
 
 def screen(case, method: str = "morris", n: int = 16, seed: int = 0, policy: str = "censor",
            batched: bool = True, batch_size: int = 500, progress=None, reoptimise: bool = False,
-           workers: int = 1) -> ScreeningResult:
+           workers: int = 1, radial: bool = False) -> ScreeningResult:
     """Screen the [uncertain] quantities of a case for the reactor outputs (SCREENED_OUTPUTS), or with
-    ``reoptimise`` for the optimal goal and design."""
+    ``reoptimise`` for the optimal goal and design; ``radial`` evaluates the samples with the 2-D model."""
     items = read_uncertain(case)
     if reoptimise:  # the design problem needs Pyomo and IPOPT: imported only when asked for
         from tubewright.optimizer.screening.reoptimise import reoptimise_evaluator
@@ -24,6 +24,6 @@ def screen(case, method: str = "morris", n: int = 16, seed: int = 0, policy: str
 
     def evaluator(unit_x):
         return evaluate(case, items, unit_x, batch_size=batch_size, batched=batched, progress=progress,
-                        workers=workers)
+                        workers=workers, radial=radial)
 
     return run(items, evaluator, method, n, seed, policy, SCREENED_OUTPUTS)

@@ -17,10 +17,11 @@ def _state(case):
     return F, case.feed.temperature + 25.0, case.feed.pressure * 0.95, (case.coolant.temperature or 300.0) + 3.0
 
 
-@pytest.mark.parametrize("name", ["oxidation.toml", "coil.toml"])
-def test_numpy_and_pyomo_backends_agree(name):
+@pytest.mark.parametrize("name, overrides", [("oxidation.toml", {}), ("coil.toml", {}),
+                                             ("oxidation.toml", {"heat_transfer.inside": "radial_lumped"})])
+def test_numpy_and_pyomo_backends_agree(name, overrides):
     pyo = pytest.importorskip("pyomo.environ")
-    case = load_case(DEMO / name)
+    case = load_case(DEMO / name, overrides)
     F, T, P, Tc = _state(case)
     ref = axial_derivatives(NUMPY, case, F, T, P, Tc)
     model = pyo.ConcreteModel()

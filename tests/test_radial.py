@@ -196,6 +196,28 @@ def test_demo_runaway_in_2d_is_reported_as_stopped():
     assert simulate(case, checks=False).summary["max_temperature_K"] < 640.0
 
 
+@pytest.mark.parametrize("coolant", [{"mode": "adiabatic"},
+                                     {"mode": "cocurrent", "temperature": "345 K", "mass_flow": "0.02 kg/s",
+                                      "cp": "4180 J/kg/K"}])
+def test_adiabatic_equals_1d_and_cocurrent_closes_the_coolant_balance(coolant):
+    # Adiabatic: no wall flux, so the radial profile stays flat and the 2-D model is the 1-D one (analytic).
+    # Co-current: the coolant's temperature rise carries the heat removed (its balance, exactly).
+    changes = {"chemistry.reactions.r1.k_ref": "0.2 1/s", "tube.inner_diameter": "50 mm", "tube.length": "3 m",
+               "radial": {"lambda_er": "2 W/m/K", "alpha_w": "400 W/m^2/K"}, "coolant": coolant}
+    if coolant["mode"] != "adiabatic":
+        changes["heat_transfer"] = {"overall": "150 W/m^2/K"}
+    case = make(liquid_case(**changes))
+    two, one = simulate_radial(case), simulate(case, checks=False)
+    assert two.ok and one.ok
+    if coolant["mode"] == "adiabatic":
+        assert two.summary["centre_hot_spot_K"] == pytest.approx(one.summary["max_temperature_K"], abs=1e-6)
+        assert two.summary["hot_spot_radial_difference_K"] == pytest.approx(0.0, abs=1e-8)
+    else:
+        rise = two.summary["coolant_outlet_temperature_K"] - 345.0
+        assert rise * 0.02 * 4180.0 == pytest.approx(two.summary["heat_removed_W"], rel=1e-9)
+        assert two.summary["centre_hot_spot_K"] > one.summary["max_temperature_K"]
+
+
 def test_countercurrent_and_isothermal_modes():
     base = liquid_case(**{"chemistry.reactions.r1.k_ref": "0.2 1/s", "tube.inner_diameter": "50 mm",
                           "radial": {"lambda_er": "2 W/m/K", "alpha_w": "400 W/m^2/K"}})

@@ -338,6 +338,14 @@ def cmd_optimize(args) -> int:
 
             files["case_toml"] = str(write_optimum_case(out / "optimum.toml", res.case, res.design,
                                                         overrides, f"Optimum of: {case.title}"))
+        tightened = extras.get("radial_check", {}).get("tightened", {})
+        if "design" in tightened:  # the design that keeps the limit in 2-D, with the 1-D data it was found with
+            from tubewright.optimizer.output.casewriter import write_optimum_case
+
+            more = {"heat_transfer.inside": "radial_lumped"} if tightened["inside"] == "radial_lumped" else {}
+            files["radial_case_toml"] = str(write_optimum_case(
+                out / "optimum-2d-checked.toml", res.case, tightened["design"], {**overrides, **more},
+                f"Optimum keeping its hot-spot limit in 2-D: {case.title}"))
         if "pareto" in extras:
             from tubewright.optimizer.output.plots import plot_front
 

@@ -343,18 +343,26 @@ def test_optimize_without_radial_warning_or_request_skips_the_2d_check():
 
 
 @pytest.mark.slow
-def test_demo_optimum_fails_in_2d_and_the_lumped_pass_fixes_it(capsys):
+def test_demo_optimum_fails_in_2d_and_the_lumped_pass_fixes_it(capsys, tmp_path):
     # The demo's 1-D optimum uses Leva's bed-to-wall coefficient; with the radial data (correlations of
     # models.correlations) the 2-D model runs away at that design. The first tightening pass re-optimises
-    # with the coefficient lumped from the radial data and keeps the limit in 2-D.
+    # with the coefficient lumped from the radial data and keeps the limit in 2-D; the case file written
+    # for that design reproduces its 2-D hot spot.
+    import json
+
     from tubewright.optimizer.cli import main
 
-    code = main(["optimize", str(DEMO / "oxidation-design.toml"), "--radial-tighten"])
+    code = main(["optimize", str(DEMO / "oxidation-design.toml"), "--radial-tighten", "--out", str(tmp_path)])
     out = capsys.readouterr().out
     assert code == 0
     assert "THE 1-D OPTIMUM VIOLATES THE HOT-SPOT LIMIT IN 2-D" in out
     assert "pass 1 (1-D heat transfer lumped from the radial data" in out
     assert "within the limit after 1 pass(es)" in out
+    check = json.loads((tmp_path / "optimum.json").read_text())["radial_check"]
+    hot = check["passes"][-1]["hot_spot_2d_K"]
+    assert hot <= check["limit_K"]
+    again = simulate_radial(load_case(tmp_path / "optimum-2d-checked.toml"))
+    assert again.summary["centre_hot_spot_K"] == pytest.approx(hot, abs=1e-3)
 
 
 def test_simulate_radial_cli_answer_and_files(tmp_path, capsys):

@@ -39,7 +39,9 @@ class Local:
     cp_mass: object  # J/(kg K)
 
 
-def local_properties(m, case, F, T, P) -> Local:
+def local_properties(m, case, F, T, P, compositions: bool = True) -> Local:
+    """The local properties at the state (F, T, P); ``compositions=False`` leaves out the concentrations and
+    partial pressures (what the rates need, not the flow figures)."""
     species = case.species
     total = 0.0
     mass = 0.0
@@ -54,8 +56,8 @@ def local_properties(m, case, F, T, P) -> Local:
     else:
         density = case.feed.density
         vdot = mass / density
-    conc = {sp.name: f / vdot for sp, f in zip(species, F)}
-    pp = {sp.name: f * P / total for sp, f in zip(species, F)} if case.phase == "gas" else {}
+    conc = {sp.name: f / vdot for sp, f in zip(species, F)} if compositions else {}
+    pp = {sp.name: f * P / total for sp, f in zip(species, F)} if case.phase == "gas" and compositions else {}
     return Local(total, mass, density, vdot, conc, pp, cpf, cpf / mass)
 
 

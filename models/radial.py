@@ -93,7 +93,7 @@ def radial_rhs(case, grid):
         C = local.cp_molar_flow
         mean_F = list(w @ F)
         t_mix = (w @ (C * T)) / (w @ C)
-        mean = local_properties(NUMPY, case, mean_F, t_mix, P)
+        mean = local_properties(NUMPY, case, mean_F, t_mix, P, compositions=False)
         tr = radial_transport(NUMPY, case, mean)
         disp = tr.dispersion / (mean.mass_flow / (tube.area * mean.density) * radius**2)  # 1/m
         spread = disp * (K @ F)  # (species, nodes, m)
@@ -107,11 +107,9 @@ def radial_rhs(case, grid):
         else:
             conduct = math.pi * tr.lambda_er * (K @ T)
             conduct[-1] = conduct[-1] + to_coolant
-            carried = 0.0
             both = np.concatenate([T, t_mix[None]])  # one enthalpy call per species for nodes and mean
-            for sp, d in zip(case.species, spread):
-                h = sp.enthalpy(NUMPY, both)
-                carried = carried + (h[:-1] - h[-1]) * d
+            h = np.stack([sp.enthalpy(NUMPY, both) for sp in case.species])  # (species, nodes + 1, m)
+            carried = np.einsum("inm,inm->nm", h[:, :-1] - h[:, -1:], spread)
             dT = (gen + (carried - conduct) / w_col) / C
             dQ = tube.count * to_coolant
         ones = np.ones_like(Tc)

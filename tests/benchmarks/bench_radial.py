@@ -1,8 +1,9 @@
 """Benchmark (a script, not a test): the two-dimensional model against the one-dimensional one.
 
 1. One simulation of the 2-D demo case (oxidation-radial.toml, coolant at 80 bar) at 3, 6 and 12 radial
-   points: median time, ratio to the 1-D simulation of the same case (target at 6 points: <= 10), and the
-   hot spot (its change with the grid).
+   points: median time, the ratio to the 1-D simulation of the same case (without its checks, and with them as
+   simulate runs it) over interleaved pairs (target at 6 points: <= 10), and the hot spot (its change with the
+   grid).
 2. Screening: seconds per sample of the 1-D model in one batch against the 2-D model one sample at a time
    (optimizer.screening.evaluation.evaluate), on the same 32 rows of the demo's uncertain inputs.
 
@@ -23,27 +24,32 @@ from tubewright.optimizer.screening.uncertain import read_uncertain
 DEMO = Path(__file__).resolve().parents[2] / "studies" / "demo"
 
 
-def timed(fn, repeat=11):
-    values = []
+def paired(fn_a, fn_b, repeat=15):
+    """Median times of a and b and the median and quartiles of the ratio b/a over interleaved pairs: the
+    machine's speed drifts by tens of per cent between runs, which separate medians would put in the ratio."""
+    a, b, r = [], [], []
     for _ in range(repeat):
         t = time.perf_counter()
-        fn()
-        values.append(time.perf_counter() - t)
-    return statistics.median(values)
+        fn_a()
+        a.append(time.perf_counter() - t)
+        t = time.perf_counter()
+        fn_b()
+        b.append(time.perf_counter() - t)
+        r.append(b[-1] / a[-1])
+    q1, _, q3 = statistics.quantiles(r, n=4)
+    return statistics.median(a), statistics.median(b), statistics.median(r), q1, q3
 
 
 def main():
     case = load_case(DEMO / "oxidation-radial.toml")
-    one = timed(lambda: simulate(case, checks=False))
-    checked = timed(lambda: simulate(case))
-    print(f"1-D simulation: {one:.4f} s ({checked:.4f} s with its checks, as simulate prints it), hot spot "
-          f"{simulate(case, checks=False).summary['max_temperature_K']:.4f} K")
-    print(f"{'radial points':>14}{'2-D [s]':>10}{'ratio to 1-D':>14}{'to 1-D + checks':>17}"
+    print(f"1-D hot spot {simulate(case, checks=False).summary['max_temperature_K']:.4f} K")
+    print(f"{'radial points':>14}{'1-D [s]':>9}{'2-D [s]':>9}{'ratio (quartiles)':>24}{'to 1-D + checks':>17}"
           f"{'centre hot spot [K]':>21}")
     for n in (3, 6, 12):
-        t = timed(lambda n=n: simulate_radial(case, n))
+        one, two, ratio, q1, q3 = paired(lambda: simulate(case, checks=False), lambda n=n: simulate_radial(case, n))
+        checked, _, to_checked, _, _ = paired(lambda: simulate(case), lambda n=n: simulate_radial(case, n), 5)
         hot = simulate_radial(case, n).summary["centre_hot_spot_K"]
-        print(f"{n:>14}{t:>10.3f}{t / one:>14.1f}{t / checked:>17.2f}{hot:>21.6f}")
+        print(f"{n:>14}{one:>9.4f}{two:>9.3f}{ratio:>8.1f} ({q1:.1f}-{q3:.1f}){to_checked:>17.2f}{hot:>21.6f}")
     screen = load_case(DEMO / "oxidation-screen.toml", {"coolant.pressure": "80 bar"})
     items = read_uncertain(screen)
     rows = np.random.default_rng(0).uniform(0.05, 0.95, size=(32, len(items)))

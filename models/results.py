@@ -55,16 +55,17 @@ def hot_spot_position(sol, z, T, i_t: int) -> float:
     return float(best.x) if best.success and -best.fun >= T[i] else float(z[i])
 
 
-def build_result(case, sol, status: Status, code: Reason, reason: str, t0: float) -> SimulationResult:
+def build_result(case, sol, status: Status, code: Reason, reason: str, t0: float, points=()) -> SimulationResult:
     """The result from a solve_ivp solution (dense when available): summary on a fine grid, profile
-    columns on PROFILE_POINTS points plus the hot spot."""
+    columns on PROFILE_POINTS points plus the hot spot and the given ``points`` [m] (those reached)."""
     elapsed = time.perf_counter() - t0
     if sol is None or getattr(sol, "t", None) is None or len(sol.t) < 2:
         return SimulationResult(status, reason, {}, {}, [], {"simulate_s": elapsed}, code)
     layout = StateLayout.of(case)
     z_end = float(sol.t[-1])
+    exact = np.asarray([p for p in points if 0.0 <= p <= z_end], dtype=float)
     if sol.sol is not None:
-        z = np.union1d(np.linspace(0.0, z_end, 2001), sol.t)
+        z = np.union1d(np.union1d(np.linspace(0.0, z_end, 2001), sol.t), exact)
         y = sol.sol(z)
         i_t = layout.index("T")
         z_hot = hot_spot_position(sol, z, y[i_t], i_t)
@@ -80,5 +81,7 @@ def build_result(case, sol, status: Status, code: Reason, reason: str, t0: float
     summary["reason_code"] = code
     pick = np.unique(np.searchsorted(z, np.linspace(0.0, z_end, PROFILE_POINTS)).clip(0, z.size - 1))
     pick = np.union1d(pick, [int(np.argmax(layout.get(y, "T")))])
+    if exact.size and sol.sol is not None:
+        pick = np.union1d(pick, np.searchsorted(z, exact))
     columns = profile_columns(case, z[pick], y[:, pick])
     return SimulationResult(status, reason, summary, columns, [], {"simulate_s": elapsed}, code)

@@ -171,10 +171,11 @@ def shoot_countercurrent(case, guess: float | None = None, integrator=None, tc_i
 
 
 
-def simulate(case, checks: bool = True, coolant_guess: float | None = None) -> SimulationResult:
+def simulate(case, checks: bool = True, coolant_guess: float | None = None, points=()) -> SimulationResult:
     """Simulate one case. ``checks`` adds the validity and safety findings (which re-simulate for the
     runaway sensitivities). ``coolant_guess``: a starting guess of the counter-current coolant outlet
-    temperature [K] (for re-simulations of a nearby case)."""
+    temperature [K] (for re-simulations of a nearby case). ``points``: axial positions [m] the profile
+    columns hold exactly (from the dense solution; thermocouples of a kinetics fit)."""
     t0 = time.perf_counter()
     tc_start = None
     if case.coolant.kind.enters_at == "outlet":
@@ -185,7 +186,7 @@ def simulate(case, checks: bool = True, coolant_guess: float | None = None) -> S
                                 f"counter-current shooting failed: {why}", t0)
     sol = integrate(case, tc_start)
     status, code, reason = stop_reason(case, sol)
-    result = build_result(case, sol, status, code, reason, t0)
+    result = build_result(case, sol, status, code, reason, t0, points)
     if checks and result.summary:
         t1 = time.perf_counter()
         result.findings = run_checks(case, result, partial(simulate, checks=False))

@@ -263,3 +263,54 @@ def test_differential_runs_fit_the_rate_law_without_a_tube(tmp_path):
     assert np.array(list(out.estimates.values())) == pytest.approx(ref, rel=1e-6)
     lo, hi = out.statistics.intervals[2]
     assert lo < true_n < hi
+
+
+def test_axial_temperatures_recover_the_kinetics(tmp_path):
+    # Thermocouples along a cooled tube: data simulated by the adaptive integrator with known k and E_a (no
+    # noise), fitted by the collocation estimator from another start; the two discretisations agree, so the
+    # known values come back to the collocation error (20 elements). Invented test data.
+    from tubewright.models.casefile import load_case
+    from tubewright.models.simulator import simulate
+
+    thermocouples = {"TC1": 0.3, "TC2": 0.8, "TC3": 1.5}
+    fit_section = {"parameters": {"r1": {"k_ref": True, "activation_energy": True}},
+                   "errors": {"axial_temperature": "0.2 K", "conversion": 0.01},
+                   "thermocouples": {k: f"{v} m" for k, v in thermocouples.items()}}
+    data = liquid_case(**{"tube.length": "2 m", "numerics.finite_elements": 20, "fit": fit_section,
+                          "coolant": {"mode": "constant", "temperature": "345 K"},
+                          "heat_transfer": {"overall": "120 W/m^2/K"}, "feed.molar_flows.A": "0.03 mol/s"})
+    data["chemistry"]["reactions"]["r1"].update(k_ref="0.02 1/s", activation_energy="60 kJ/mol")  # the truth
+    (tmp_path / "true.toml").write_text(toml_text(data))
+    rows = ["feed.temperature [K],measured.conversion," + ",".join(f"measured.axial_temperature.{k} [K]"
+                                                                    for k in thermocouples)]
+    for t_feed in (335.0, 345.0, 355.0):
+        sim = simulate(load_case(tmp_path / "true.toml", {"feed.temperature": f"{t_feed} K"}), checks=False,
+                       points=list(thermocouples.values()))
+        temps = [float(np.interp(z, sim.columns["z_m"], sim.columns["T_K"])) for z in thermocouples.values()]
+        assert max(temps) - t_feed > 2.0  # the thermocouples see the reaction heat
+        rows.append(",".join(repr(float(v)) for v in [t_feed, sim.summary["conversion"], *temps]))
+    (tmp_path / "runs.csv").write_text("\n".join(rows) + "\n")
+    data["chemistry"]["reactions"]["r1"].update(k_ref="0.012 1/s", activation_energy="50 kJ/mol")  # the start
+    (tmp_path / "lab.toml").write_text(toml_text(data))
+    out = fit(tmp_path / "lab.toml", tmp_path / "runs.csv")
+    assert out.status == Status.OK, out.message
+    assert out.case_values["r1"]["k_ref"] == pytest.approx(0.02, rel=1e-3)
+    assert out.case_values["r1"]["activation_energy"] == pytest.approx(60_000.0, rel=1e-3)
+    temps = [r for r in out.residuals if r["quantity"].startswith("axial_temperature.")]
+    assert len(temps) == 9 and max(abs(r["fitted"] - r["measured"]) for r in temps) < 0.01
+
+
+def test_axial_temperature_columns_are_checked(tmp_path):
+    from tubewright.models.errors import CaseError
+    from tubewright.optimizer.fitting.data import read_runs
+
+    data = liquid_case(**{"tube.length": "2 m"})
+    (tmp_path / "lab.toml").write_text(toml_text(data))
+    (tmp_path / "runs.csv").write_text("feed.temperature [K],measured.axial_temperature.TC9 [K]\n350,351\n")
+    with pytest.raises(CaseError, match="thermocouple of \\[fit.thermocouples\\]") as err:
+        read_runs(tmp_path / "runs.csv", tmp_path / "lab.toml", {"TC1": 0.5})
+    assert err.value.key == "measured.axial_temperature.TC9"
+    (tmp_path / "runs.csv").write_text("feed.temperature [K],measured.axial_temperature.TC1 [K]\n350,351\n")
+    with pytest.raises(CaseError, match="outside this run's tube") as err:
+        read_runs(tmp_path / "runs.csv", tmp_path / "lab.toml", {"TC1": 2.5})
+    assert "row 1" in str(err.value)

@@ -124,6 +124,22 @@ def build_tube_model(case, spec, nfe: int = 40, ncp: int = 3, block=None, kineti
     return m, pcase
 
 
+def collocation_value(m, var, xi: float):
+    """The value at the normalised position ``xi`` of a state ``var`` indexed by m.xi, as its collocation
+    polynomial gives it: in the finite element holding xi, the Lagrange polynomial through the element's
+    start and its Radau points (a linear expression in the state variables; the exact node where xi is
+    one)."""
+    points = sorted(m.xi)
+    bounds = sorted(m.xi.get_finite_elements())
+    k = max(0, min(int(np.searchsorted(bounds, xi, side="left")) - 1, len(bounds) - 2))
+    start, end = bounds[k], bounds[k + 1]
+    nodes = [start] + [p for p in points if start < p <= end]
+    x = np.asarray(nodes)
+    weights = [float(np.prod([(xi - x[j]) / (x[i] - x[j]) for j in range(len(x)) if j != i]))
+               for i in range(len(x))]
+    return sum(w * var[t] for w, t in zip(weights, nodes) if w != 0.0)
+
+
 def initialise_from_simulation(m, case, result):
     """Set every state and derivative variable from an adaptive-integrator solution of the same design."""
     cols = result.columns

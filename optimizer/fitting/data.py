@@ -10,6 +10,8 @@ quantity under ``measured.``:
     measured.outlet_mole_fraction.SPECIES  (unit "-" or none)
     measured.rate.SPECIES [mol/kg/s]     (a differential run: the net formation rate at the feed conditions,
                                           per catalyst mass or per volume as the species' reactions are)
+    measured.axial_temperature.NAME [K]  (the fluid temperature at thermocouple NAME, whose position from the
+                                          tube inlet [fit.thermocouples] gives; within every run's tube)
 
 A quantity with a dimension needs its unit in the header; temperatures in the header are absolute (a lone
 degC means a temperature, not a difference). Every run is validated as a case (the base case with the
@@ -25,12 +27,13 @@ from pathlib import Path
 
 from tubewright.models.errors import CaseError, suggest
 
-MEASURED = {  # name -> (pint unit of its SI value, needs a species)
-    "conversion": ("", False),
-    "outlet_temperature": ("K", False),
-    "outlet_flow": ("mol/s", True),
-    "outlet_mole_fraction": ("", True),
-    "rate": (None, True),  # mol/kg/s or mol/m^3/s: the basis of the species' reactions (balances.rate_basis)
+MEASURED = {  # name -> (pint unit of its SI value, what follows the name: None, "species" or "thermocouple")
+    "conversion": ("", None),
+    "outlet_temperature": ("K", None),
+    "outlet_flow": ("mol/s", "species"),
+    "outlet_mole_fraction": ("", "species"),
+    "rate": (None, "species"),  # mol/kg/s or mol/m^3/s: the basis of the species' reactions (balances.rate_basis)
+    "axial_temperature": ("K", "thermocouple"),
 }
 RATE_UNITS = {"catalyst_mass": "mol/kg/s", "volume": "mol/m^3/s"}
 _HEADER = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_.\-]*)\s*(?:\[([^\]]*)\])?\s*$")
@@ -62,19 +65,21 @@ def parse_header(name: str, source: str) -> Column:
     return Column(match.group(1), (match.group(2) or "").strip())
 
 
-def _measured_si(column: Column, value: float, source: str, case) -> tuple[str, float]:
+def _measured_si(column: Column, value: float, source: str, case, thermocouples: dict) -> tuple[str, float]:
     parts = column.key.split(".")
     kind = parts[1] if len(parts) > 1 else ""
     if kind not in MEASURED:
         raise CaseError(source, column.key, f'unknown measured quantity "{kind}"{suggest(kind, MEASURED)}; '
                         f"allowed: {', '.join('measured.' + k for k in MEASURED)}")
-    unit, needs_species = MEASURED[kind]
-    species = list(case.names)
-    if needs_species:
-        if len(parts) != 3 or parts[2] not in species:
+    unit, needs = MEASURED[kind]
+    if needs:
+        names = list(case.names) if needs == "species" else list(thermocouples)
+        if len(parts) != 3 or parts[2] not in names:
             given = parts[2] if len(parts) > 2 else ""
-            raise CaseError(source, column.key, f'"measured.{kind}" needs a species of the case after it '
-                            f"(measured.{kind}.SPECIES){suggest(given, species)}; species: {', '.join(species)}")
+            where = "of the case" if needs == "species" else "of [fit.thermocouples]"
+            raise CaseError(source, column.key, f'"measured.{kind}" needs a {needs} {where} after it '
+                            f"(measured.{kind}.{needs.upper()}){suggest(given, names)}; {needs}s: "
+                            f"{', '.join(names) or 'none'}")
     elif len(parts) != 2:
         raise CaseError(source, column.key, f'"measured.{kind}" takes no species')
     name = ".".join(parts[1:])
@@ -115,8 +120,9 @@ def read_table(path):
     return [str(c) for c in rows[0]], rows[1:]
 
 
-def read_runs(data_path, case_path) -> list[Run]:
-    """Read and validate every run of ``data_path`` against the base case ``case_path``."""
+def read_runs(data_path, case_path, thermocouples: dict | None = None) -> list[Run]:
+    """Read and validate every run of ``data_path`` against the base case ``case_path``; ``thermocouples``
+    (name -> position from the tube inlet [m]) are the positions measured.axial_temperature.NAME may name."""
     from tubewright.models.casefile import load_case
 
     source = str(data_path)
@@ -137,7 +143,7 @@ def read_runs(data_path, case_path) -> list[Run]:
     for number, values in enumerate(rows, start=1):
         where = f"{source}, row {number}"
         try:
-            runs.append(_run(number, values, columns, where, case_path, base))
+            runs.append(_run(number, values, columns, where, case_path, base, thermocouples or {}))
         except CaseError as err:
             problems.append(err)
     if problems:
@@ -148,7 +154,7 @@ def read_runs(data_path, case_path) -> list[Run]:
     return runs
 
 
-def _run(number, values, columns, where, case_path, base) -> Run:
+def _run(number, values, columns, where, case_path, base, thermocouples) -> Run:
     from tubewright.models.casefile import load_case
 
     overrides, measured = {}, {}
@@ -162,7 +168,7 @@ def _run(number, values, columns, where, case_path, base) -> Run:
         if not math.isfinite(number_value):
             raise CaseError(where, column.key, f"{value} is not a finite number")
         if column.is_measured:
-            name, si = _measured_si(column, number_value, where, base)
+            name, si = _measured_si(column, number_value, where, base, thermocouples)
             measured[name] = si
         else:
             overrides[column.key] = f"{number_value!r} {column.unit}" if column.unit else number_value
@@ -171,4 +177,9 @@ def _run(number, values, columns, where, case_path, base) -> Run:
     except CaseError as err:
         column = err.key if err.key in overrides else ""
         raise CaseError(where, column, err.detail if column else str(err)) from None
+    for name in measured:
+        kind, _, tc = name.partition(".")
+        if kind == "axial_temperature" and not 0.0 < thermocouples[tc] <= case.tube.length:
+            raise CaseError(where, f"measured.{name}", f"thermocouple {tc} at {thermocouples[tc]:g} m lies outside "
+                            f"this run's tube (length {case.tube.length:g} m)")
     return Run(number, overrides, case, measured)

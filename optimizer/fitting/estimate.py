@@ -96,14 +96,16 @@ def start_values(case, spec, t_fit) -> np.ndarray:
     return np.asarray(values, dtype=float)
 
 
-def predicted(case, name: str, f_in, f_out, T_out, n_tubes):
-    """A measured quantity from the inlet and outlet flows per tube and the outlet temperature (any
-    backend: numbers or Pyomo expressions)."""
+def predicted(case, name: str, f_in, f_out, T_out, n_tubes, temperature_at=None):
+    """A measured quantity from the inlet and outlet flows per tube, the outlet temperature and
+    ``temperature_at(thermocouple)`` for the axial temperatures (any backend: numbers or Pyomo expressions)."""
     kind, _, species = name.partition(".")
     if kind == "conversion":
         return conversion(case, f_in, f_out)
     if kind == "outlet_temperature":
         return T_out
+    if kind == "axial_temperature":
+        return temperature_at(species)
     k = case.index(species)
     if kind == "outlet_flow":
         return n_tubes * f_out[k]
@@ -128,21 +130,29 @@ def sigma_of(spec, name: str, measured: float) -> float:
     return value if how == "absolute" else value * max(abs(measured), 1e-300)
 
 
-def simulate_predictions(run_case, names):
-    """The measured quantities of one run: outlet quantities from the adaptive integrator (None where it
-    stops early), formation rates at the feed conditions."""
+def simulate_predictions(run_case, names, thermocouples=None):
+    """The measured quantities of one run: outlet quantities and the temperatures at the thermocouples
+    (name -> position [m]) from the adaptive integrator (None where it stops early), formation rates at the
+    feed conditions."""
     from tubewright.models.simulator import simulate
 
     if all(is_rate(q) for q in names):
         return [float(predicted_rate(NUMPY, run_case, q)) for q in names], None
-    sim = simulate(replace(run_case, numerics=replace(run_case.numerics, rtol=JACOBIAN_RTOL)), checks=False)
+    thermocouples = thermocouples or {}
+    points = [thermocouples[q.partition(".")[2]] for q in names if q.startswith("axial_temperature.")]
+    sim = simulate(replace(run_case, numerics=replace(run_case.numerics, rtol=JACOBIAN_RTOL)), checks=False,
+                   points=points)
     if not sim.ok:
         return None, sim
     cols, n = sim.columns, run_case.tube.count
     f_in = [cols[f"F_{s}_mol_s"][0] / n for s in run_case.names]
     f_out = [cols[f"F_{s}_mol_s"][-1] / n for s in run_case.names]
+
+    def temperature_at(tc):  # a profile point: exact from the dense solution (simulate's points)
+        return float(np.interp(thermocouples[tc], cols["z_m"], cols["T_K"]))
+
     return [float(predicted_rate(NUMPY, run_case, q) if is_rate(q) else
-                  predicted(run_case, q, f_in, f_out, cols["T_K"][-1], n)) for q in names], sim
+                  predicted(run_case, q, f_in, f_out, cols["T_K"][-1], n, temperature_at)) for q in names], sim
 
 
 def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) -> FitOutcome:
@@ -152,6 +162,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     from tubewright.models.simulator import simulate
     from tubewright.optimizer.design.collocation import (
         build_tube_model,
+        collocation_value,
         initialise_from_simulation,
         state_scaling,
         tube_scale_factors,
@@ -162,7 +173,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     t0 = time.perf_counter()
     base = load_case(case_path)
     spec = read_fit(base)
-    runs = read_runs(data_path, case_path)
+    runs = read_runs(data_path, case_path, spec.thermocouples)
     for run in runs:
         for name in run.measured:
             if name.partition(".")[0] not in spec.errors:
@@ -226,7 +237,9 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
             if is_rate(name):
                 expr = predicted_rate(pyomo_backend(), with_kinetics(run.case, kinetics), name)
             else:
-                expr = predicted(run.case, name, f_in, f_out, b.T[1.0], pcase.tube.count)
+                expr = predicted(run.case, name, f_in, f_out, b.T[1.0], pcase.tube.count,
+                                 lambda tc, b=b, L=run.case.tube.length: collocation_value(
+                                     b, b.T, spec.thermocouples[tc] / L))
             terms.append(((expr - y) / sigma) ** 2)
             observations.append((run, name, y, sigma))
     m.objective = pyo.Objective(expr=0.5 * sum(terms))
@@ -348,7 +361,7 @@ def _residuals_and_jacobian(usable, observations, spec, t_fit, theta):
         for run, _ in usable:
             names = list(run.measured)
             case = with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, values, NUMPY))
-            pred, _ = simulate_predictions(case, names)
+            pred, _ = simulate_predictions(case, names, spec.thermocouples)
             if pred is None:
                 return None, run.row
             r.extend((p - run.measured[q]) / sigma_of(spec, q, run.measured[q]) for p, q in zip(pred, names))

@@ -16,6 +16,9 @@ the reference temperature of the Arrhenius laws.
     outlet_temperature = "1.5 K"      # absolute with a unit (a temperature difference), or
     outlet_flow = "3 %"               # relative to the measured value
     rate = "5 %"                      # formation rates of differential runs (or absolute, "2e-6 mol/kg/s")
+    axial_temperature = "1 K"         # thermocouples along the tube (absolute, a temperature difference)
+    [fit.thermocouples]               # positions from the tube inlet of measured.axial_temperature.NAME
+    TC1 = "0.4 m"
 
 Fitted are k at the reference temperature (not k_ref at the case's own T_ref) and E_a: about the runs' own
 mean reciprocal temperature the two are nearly uncorrelated (optimizer.fitting.statistics)."""
@@ -31,7 +34,8 @@ from tubewright.optimizer.fitting.data import MEASURED
 
 KINDS = ("k_ref", "activation_energy", "orders")
 DEFAULT_WITHIN = 100.0
-ERROR_DIMENSIONS = {"outlet_temperature": "temperature_difference", "outlet_flow": "molar_flow"}
+ERROR_DIMENSIONS = {"outlet_temperature": "temperature_difference", "outlet_flow": "molar_flow",
+                    "axial_temperature": "temperature_difference"}
 
 
 @dataclass(frozen=True)
@@ -55,6 +59,7 @@ class FitSpec:
     reference_temperature: float | None  # None: from the runs
     starts: int = 1
     seed: int = 0
+    thermocouples: dict = None  # name -> position from the tube inlet [m]
 
 
 def read_fit(case) -> FitSpec:
@@ -62,7 +67,7 @@ def read_fit(case) -> FitSpec:
     if "fit" not in case.raw:
         raise CaseError(source, "fit", "missing: the case needs a [fit] section naming the free parameters")
     t = Table(case.raw["fit"], source, "fit",
-              {"error_model", "reference_temperature", "parameters", "errors", "starts", "seed"})
+              {"error_model", "reference_temperature", "parameters", "errors", "starts", "seed", "thermocouples"})
     error_model = t.choice("error_model", ("stated", "estimated"), default="stated")
     t_ref = t.quantity("reference_temperature", "temperature", required=False, minimum=100.0, maximum=5000.0)
     names = [rx.name for rx in case.reactions]
@@ -94,8 +99,13 @@ def read_fit(case) -> FitSpec:
         errors[kind] = _error(value, kind, source, et.key(kind))
     starts = t.number("starts", default=1, low=1, high=100, integer=True)
     seed = t.number("seed", default=0, low=0, high=2**31 - 1, integer=True)
+    thermocouples = {}
+    tt = t.sub("thermocouples", required=False)
+    if tt is not None:
+        for name in tt.data:
+            thermocouples[name] = tt.quantity(name, "length", maximum=1e4)
     t.finish()
-    return FitSpec(tuple(params), errors, error_model, t_ref, starts, seed)
+    return FitSpec(tuple(params), errors, error_model, t_ref, starts, seed, thermocouples)
 
 
 def _parameter(rt: Table, kind: str, rname: str, j: int, rx) -> FitParameter:

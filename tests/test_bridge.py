@@ -185,3 +185,45 @@ def test_compact_derivatives_against_finite_differences():
     _derivatives_match(red.n, red.m, red.objective, red.gradient, red.constraints, red.jacobian,
                        (red.jac_rows, red.jac_cols), red.hessian, (red.hess_rows, red.hess_cols),
                        np.array([0.7, -1.3]), np.array([0.8, 1.3]), 0.6, abs_tol=(1e-12, 1e-8, 1e-6))
+
+
+def _blocks(constants=(2.0, 2.0, 2.0)):
+    """Three blocks built by one function, differing in a mutable Param (and in the constant ``c`` of their
+    first constraint when asked), sharing the variable z: min sum_i (x_i - p_i)^2 + z^2 with c x_i y_i = 1."""
+    m = pyo.ConcreteModel()
+    m.z = pyo.Var(initialize=0.5)
+    m.b = pyo.Block(range(3))
+    for i, c in enumerate(constants):
+        b = m.b[i]
+        b.p = pyo.Param(mutable=True, initialize=1.0 + i)
+        b.x = pyo.Var(initialize=1.0, bounds=(0.1, 10))
+        b.y = pyo.Var(initialize=1.0, bounds=(0.1, 10))
+        b.first = pyo.Constraint(expr=c * b.x * b.y == 1.0)
+        b.second = pyo.Constraint(expr=b.y + m.z >= 0.2 * b.p)
+    m.obj = pyo.Objective(expr=sum((m.b[i].x - m.b[i].p) ** 2 for i in range(3)) + m.z**2)
+    return m
+
+
+def test_replicated_blocks_compile_to_the_same_problem():
+    # One block printed for three: the same variables, Jacobian and Hessian structures, derivatives (checked
+    # by finite differences) and optimum as printing every block.
+    full, rep = _blocks(), _blocks()
+    a = CompiledNLP(full, compact=False)
+    b = CompiledNLP(rep, compact=False, replicas=[[rep.b[i] for i in range(3)]])
+    assert a.times["replicated_blocks"] == 0 and b.times["replicated_blocks"] == 2
+    assert [v.name for v in a.variables] == [v.name for v in b.variables]
+    assert np.array_equal(a.jac_rows, b.jac_rows) and np.array_equal(a.jac_cols, b.jac_cols)
+    assert np.array_equal(a.hess_rows, b.hess_rows) and np.array_equal(a.hess_cols, b.hess_cols)
+    _fd_check(b, np.linspace(0.3, 1.7, b.n))
+    out_a, out_b = a.solve(), b.solve()
+    assert out_b.success and out_b.objective == pytest.approx(out_a.objective, rel=1e-12)
+    assert out_b.x == pytest.approx(out_a.x, rel=1e-10)
+
+
+def test_a_replica_whose_numbers_differ_is_printed():
+    # The third block's first constraint carries another constant: the check prints it in full.
+    m = _blocks((2.0, 2.0, 3.0))
+    nlp = CompiledNLP(m, compact=False, replicas=[[m.b[i] for i in range(3)]])
+    assert nlp.times["replicated_blocks"] == 1
+    out = nlp.solve()
+    assert out.success and pyo.value(3.0 * m.b[2].x * m.b[2].y) == pytest.approx(1.0, rel=1e-8)

@@ -162,3 +162,21 @@ def test_robust_section_is_checked():
         with pytest.raises(CaseError) as info:
             read_robust(make(liquid_case(robust=robust)))
         assert info.value.key == key
+
+
+def test_scenario_blocks_compile_once_when_only_parameters_differ():
+    # k_ref scenarios reach the model as mutable Params: one scenario block is printed, the others are
+    # replicas (same optimum as the analytic test above). An order reaches it as a number: no replicas,
+    # the scenarios are printed and solved all the same.
+    from tubewright.optimizer.design.problem import DesignProblem
+
+    case = uncertain_k_case()
+    _, scenarios = draw_scenarios(case, 4, seed=3)
+    p = DesignProblem(case, scenarios=scenarios).build()
+    assert p.nlp.times["replicated_blocks"] == 3
+    out = p.solve_nlp()
+    slowest = min([0.01] + [s[K_PATH] for s in scenarios])
+    assert out.success and p.design_values()["length"] == pytest.approx(length_for(slowest), rel=1e-4)
+    orders = [{"chemistry.reactions.r1.orders.A": v} for v in (0.9, 1.0, 1.1)]
+    q = DesignProblem(case, scenarios=orders).build()
+    assert q.nlp.times["replicated_blocks"] == 0 and q.solve_nlp().success

@@ -106,13 +106,24 @@ class DesignProblem:
         if modify is not None:
             modify(m)
         self.say("compiling the NLP for IPOPT")
-        self.nlp = CompiledNLP(m)
+        self.nlp = CompiledNLP(m, replicas=[[b for b, *_ in self.scenario_blocks]] if self._replicable() else ())
         if self.progress is not None:
             self.nlp.on_iteration = getattr(self.progress, "iteration", None)
         self._scales = state_scaling(m, start_case, sim)
         self.obj_scale = 1.0 / max(abs(pyo.value(m.goal)), 1e-12)
         self.build_s = time.perf_counter() - t0
         return self
+
+    def _replicable(self) -> bool:
+        """The scenario blocks differ in mutable Param values only (every scenario path is a rate constant, an
+        activation energy or the U multiplier: collocation.parametrised_case), so the bridge may compile one
+        block for all; other paths (orders, heats of reaction) reach the expressions as numbers."""
+        def param(path):
+            parts = path.split(".")
+            kinetic = len(parts) == 4 and parts[:2] == ["chemistry", "reactions"]
+            return path == "heat_transfer.multiplier" or (kinetic and parts[3] in ("k_ref", "activation_energy"))
+
+        return len(self.scenario_blocks) > 1 and all(param(p) for values in self.scenarios for p in values)
 
     def _scenario_blocks(self, m, start: dict, nominal_sim):
         """A robust design: one tube block per scenario (the case with the scenario's parameter values),

@@ -224,9 +224,14 @@ class SolveOutcome:
 class CompiledNLP:
     """A Pyomo model compiled once for IPOPT. ``solve()`` reads inputs and bounds anew each time."""
 
-    def __init__(self, model, compact: bool = True):
+    def __init__(self, model, compact: bool = True, replicas=()):
         """``compact``: eliminate the variables that linear equalities define explicitly before IPOPT sees
-        the problem (nlp.presolve); the solution and every multiplier are reported for the whole model."""
+        the problem (nlp.presolve); the solution and every multiplier are reported for the whole model.
+        ``replicas``: lists of blocks built by the same code from data that differ only in mutable Param
+        values (the scenarios of a robust design). The first block of a list is printed; the others take its
+        forms with their own variables and inputs, matched by their order in component_data_objects, so that
+        compiling grows with the forms, not with the blocks. The first and last constraints of every replica
+        are printed as a check; a replica that fails it is printed in full."""
         t0 = time.perf_counter()
         install_rules()
         self.model = model
@@ -254,10 +259,21 @@ class CompiledNLP:
             return (global_indices(printer.vars, var_ids, self.variables),
                     global_indices(printer.inputs, input_ids, self.inputs))
 
+        mapped = self._replica_maps(replicas)
+        printed = {}  # id(template constraint) -> (form text, printer)
         for row, con in enumerate(self.constraints):
-            printer = _Printer()
-            key = source = printer.source("value", [con.body])
-            vrows, prow = register(printer)
+            entry = mapped.get(id(con))
+            if entry is None:
+                printer = _Printer()
+                key = source = printer.source("value", [con.body])
+                printed[id(con)] = (key, printer)
+                vrows, prow = register(printer)
+            else:
+                template, var_map, input_map = entry
+                key, printer = printed[id(template)]
+                source = key
+                vrows = global_indices([var_map.get(id(v), v) for v in printer.vars], var_ids, self.variables)
+                prow = global_indices([input_map.get(id(p), p) for p in printer.inputs], input_ids, self.inputs)
             group = groups.get(key)
             if group is None:
                 groups[key] = [con.body, printer, source, [row], [vrows], [prow]]
@@ -280,11 +296,53 @@ class CompiledNLP:
             self.compact = None
         self.times = {"compile_s": time.perf_counter() - t0, "differentiate_s": t_compact - t_forms,
                       "presolve_s": time.perf_counter() - t_compact, "forms": len(self.forms),
+                      "replicated_blocks": self.replicated,
                       "ipopt_variables": self.compact.n if self.compact else self.n,
                       "ipopt_constraints": self.compact.m if self.compact else self.m}
         self._warm = None
         self._deriv_key, self._deriv_values = None, {}
         self._bound_exprs = None
+
+    def _replica_maps(self, replicas) -> dict:
+        """{id(replica constraint): (template constraint, {id(template var): var}, {id(template input): input})}
+        for the replicas that pass the check (see __init__); the others are left to be printed."""
+        from pyomo.core.base.param import Param
+        from pyomo.core.base.var import Var
+
+        def parts(block):
+            return (list(block.component_data_objects(Constraint, active=True, descend_into=True)),
+                    list(block.component_data_objects(Var, descend_into=True)),
+                    list(block.component_data_objects(Param, descend_into=True)))
+
+        def form(con):
+            return _Printer().source("value", [con.body])
+
+        out = {}
+        self.replicated = 0
+        for blocks in replicas:
+            if len(blocks) < 2:
+                continue
+            t_cons, t_vars, t_params = parts(blocks[0])
+            if not t_cons:
+                continue
+            def constants(params):  # immutable Params are printed as numbers: they must agree
+                return [p.value for p in params if not p.parent_component().mutable]
+
+            t_fixed, t_constants = [v.fixed for v in t_vars], constants(t_params)
+            ends = (form(t_cons[0]), form(t_cons[-1]))
+            for block in blocks[1:]:
+                cons, variables, params = parts(block)
+                if (len(cons), len(variables), len(params)) != (len(t_cons), len(t_vars), len(t_params)):
+                    continue
+                if ([v.fixed for v in variables] != t_fixed or constants(params) != t_constants
+                        or (form(cons[0]), form(cons[-1])) != ends):
+                    continue
+                var_map = {id(a): b for a, b in zip(t_vars, variables)}
+                input_map = {**var_map, **{id(a): b for a, b in zip(t_params, params)}}
+                for a, b in zip(t_cons, cons):
+                    out[id(b)] = (a, var_map, input_map)
+                self.replicated += 1
+        return out
 
     def _structure(self):
         jr, jc = [], []
@@ -294,15 +352,16 @@ class CompiledNLP:
             jc.append(f.var_index.reshape(-1))
         self.jac_rows = np.concatenate(jr) if jr else np.zeros(0, dtype=np.int64)
         self.jac_cols = np.concatenate(jc) if jc else np.zeros(0, dtype=np.int64)
-        coords = []
+        keys = []  # (row, column) of the lower triangle as one integer, row * n + column: a 1-D unique is fast
+        n = max(len(self.variables), 1)
         for f in [*self.forms, self.objective_form]:
             for a, b in f.pairs:
                 i, j = f.var_index[:, a], f.var_index[:, b]
-                coords.append(np.stack([np.maximum(i, j), np.minimum(i, j)], axis=1))
-        allc = np.concatenate(coords) if coords else np.zeros((0, 2), dtype=np.int64)
-        unique, self._hess_inverse = np.unique(allc, axis=0, return_inverse=True)
+                keys.append(np.maximum(i, j) * n + np.minimum(i, j))
+        allk = np.concatenate(keys) if keys else np.zeros(0, dtype=np.int64)
+        unique, self._hess_inverse = np.unique(allk, return_inverse=True)
         self._hess_inverse = self._hess_inverse.reshape(-1)
-        self.hess_rows, self.hess_cols = unique[:, 0], unique[:, 1]
+        self.hess_rows, self.hess_cols = unique // n, unique % n
 
     # --- evaluation -------------------------------------------------------------------------------------
     def _args(self, form, x):

@@ -183,11 +183,18 @@ def _build_form(rep_expr, printer: _Printer, value_source: str, members, var_row
     deriv_source = printer.source("derivatives", list(grad_list) + (second or [0.0]))
     if len(printer.vars) != nx or len(printer.inputs) != npar:
         raise RuntimeError("a derivative introduced a variable or input absent from its expression")
-    return _Form(members, np.asarray(var_rows, dtype=np.int64).reshape(len(members), nx),
-                 np.asarray(input_rows, dtype=np.int64).reshape(len(members), npar),
+    return _Form(members, _stacked(var_rows, len(members), nx), _stacked(input_rows, len(members), npar),
                  _compile_function("value", value_source, nx, npar),
                  _compile_function("derivatives", deriv_source, nx, npar), len(grad_list), pairs,
                  [float(g) if g.__class__ in EXPR.native_numeric_types else None for g in grads])
+
+
+def _stacked(chunks, members: int, width: int) -> np.ndarray:
+    """The (members, width) index matrix from chunks of rows: lists of one member's indices, or 2-D arrays of
+    several members' (a replicated block's members of one form)."""
+    if width == 0:
+        return np.zeros((members, 0), dtype=np.int64)
+    return np.concatenate([np.asarray(c, dtype=np.int64).reshape(-1, width) for c in chunks])
 
 
 def _rows(values, members: int) -> np.ndarray:
@@ -259,28 +266,45 @@ class CompiledNLP:
             return (global_indices(printer.vars, var_ids, self.variables),
                     global_indices(printer.inputs, input_ids, self.inputs))
 
-        mapped = self._replica_maps(replicas)
-        printed = {}  # id(template constraint) -> (form text, printer)
-        for row, con in enumerate(self.constraints):
-            entry = mapped.get(id(con))
-            if entry is None:
-                printer = _Printer()
-                key = source = printer.source("value", [con.body])
-                printed[id(con)] = (key, printer)
-                vrows, prow = register(printer)
-            else:
-                template, var_map, input_map = entry
-                key, printer = printed[id(template)]
-                source = key
-                vrows = global_indices([var_map.get(id(v), v) for v in printer.vars], var_ids, self.variables)
-                prow = global_indices([input_map.get(id(p), p) for p in printer.inputs], input_ids, self.inputs)
+        def add(key, body, printer, rows, vrows, prows):
             group = groups.get(key)
             if group is None:
-                groups[key] = [con.body, printer, source, [row], [vrows], [prow]]
-            else:
-                group[3].append(row)
-                group[4].append(vrows)
-                group[5].append(prow)
+                groups[key] = group = [body, printer, key, [], [], []]
+            group[3].extend(rows)
+            group[4].append(vrows)
+            group[5].append(prows)
+
+        replicas = self._replica_pairs(replicas)  # [(template constraints, replica rows, var pairs, input pairs)]
+        deferred = {id(c) for _, cons, _, _ in replicas for c in cons}
+        printed = {}  # id(constraint) -> (form text, printer, its global variable and input indices)
+        for row, con in enumerate(self.constraints):
+            if id(con) in deferred:
+                continue
+            printer = _Printer()
+            key = printer.source("value", [con.body])
+            vrows, prows = register(printer)
+            printed[id(con)] = (key, printer, vrows, prows)
+            add(key, con.body, printer, [row], vrows, prows)
+        row_of = {id(c): r for r, c in enumerate(self.constraints)} if replicas else {}
+        for t_cons, cons, var_pairs, input_pairs in replicas:
+            # a replica's components take the global indices of their template's, mapped by position
+            vmap = np.arange(len(self.variables))
+            imap = np.arange(len(self.inputs))
+            for pool, ids, remap, pairs in ((self.variables, var_ids, vmap, var_pairs),
+                                            (self.inputs, input_ids, imap, input_pairs)):
+                for a, b in pairs:
+                    g = ids.get(id(a))
+                    if g is not None:  # only what the template's constraints use
+                        remap[g] = global_indices([b], ids, pool)[0]
+            by_form: dict = {}
+            for t, c in zip(t_cons, cons):
+                key = printed[id(t)][0]
+                by_form.setdefault(key, []).append((row_of[id(c)], t))
+            for key, members in by_form.items():
+                _, printer, _, _ = printed[id(members[0][1])]
+                t_v = np.array([printed[id(t)][2] for _, t in members], dtype=np.int64).reshape(len(members), -1)
+                t_p = np.array([printed[id(t)][3] for _, t in members], dtype=np.int64).reshape(len(members), -1)
+                add(key, None, printer, [r for r, _ in members], vmap[t_v], imap[t_p])
         obj_printer = _Printer()
         obj_source = obj_printer.source("value", [self.objective.expr])
         ovars, oinputs = register(obj_printer)
@@ -303,9 +327,9 @@ class CompiledNLP:
         self._deriv_key, self._deriv_values = None, {}
         self._bound_exprs = None
 
-    def _replica_maps(self, replicas) -> dict:
-        """{id(replica constraint): (template constraint, {id(template var): var}, {id(template input): input})}
-        for the replicas that pass the check (see __init__); the others are left to be printed."""
+    def _replica_pairs(self, replicas) -> list:
+        """For every replica that passes the check (see __init__): (its template's constraints, its own in the
+        same order, (template var, var) pairs, (template input, input) pairs). Counted in self.replicated."""
         from pyomo.core.base.param import Param
         from pyomo.core.base.var import Var
 
@@ -317,7 +341,10 @@ class CompiledNLP:
         def form(con):
             return _Printer().source("value", [con.body])
 
-        out = {}
+        def constants(params):  # immutable Params are printed as numbers: they must agree
+            return [p.value for p in params if not p.parent_component().mutable]
+
+        out = []
         self.replicated = 0
         for blocks in replicas:
             if len(blocks) < 2:
@@ -325,9 +352,6 @@ class CompiledNLP:
             t_cons, t_vars, t_params = parts(blocks[0])
             if not t_cons:
                 continue
-            def constants(params):  # immutable Params are printed as numbers: they must agree
-                return [p.value for p in params if not p.parent_component().mutable]
-
             t_fixed, t_constants = [v.fixed for v in t_vars], constants(t_params)
             ends = (form(t_cons[0]), form(t_cons[-1]))
             for block in blocks[1:]:
@@ -337,10 +361,8 @@ class CompiledNLP:
                 if ([v.fixed for v in variables] != t_fixed or constants(params) != t_constants
                         or (form(cons[0]), form(cons[-1])) != ends):
                     continue
-                var_map = {id(a): b for a, b in zip(t_vars, variables)}
-                input_map = {**var_map, **{id(a): b for a, b in zip(t_params, params)}}
-                for a, b in zip(t_cons, cons):
-                    out[id(b)] = (a, var_map, input_map)
+                var_pairs = list(zip(t_vars, variables))
+                out.append((t_cons, cons, var_pairs, var_pairs + list(zip(t_params, params))))
                 self.replicated += 1
         return out
 

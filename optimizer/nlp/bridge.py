@@ -276,14 +276,16 @@ class CompiledNLP:
 
         replicas = self._replica_pairs(replicas)  # [(template constraints, replica rows, var pairs, input pairs)]
         deferred = {id(c) for _, cons, _, _ in replicas for c in cons}
-        printed = {}  # id(constraint) -> (form text, printer, its global variable and input indices)
+        templates = {id(c) for t_cons, _, _, _ in replicas for c in t_cons}
+        printed = {}  # id(template constraint) -> (form text, printer, its global variable and input indices)
         for row, con in enumerate(self.constraints):
             if id(con) in deferred:
                 continue
             printer = _Printer()
             key = printer.source("value", [con.body])
             vrows, prows = register(printer)
-            printed[id(con)] = (key, printer, vrows, prows)
+            if id(con) in templates:
+                printed[id(con)] = (key, printer, vrows, prows)
             add(key, con.body, printer, [row], vrows, prows)
         row_of = {id(c): r for r, c in enumerate(self.constraints)} if replicas else {}
         for t_cons, cons, var_pairs, input_pairs in replicas:

@@ -61,6 +61,7 @@ class Reason(_Word):
     FITTED = "fitted"  # a kinetics fit converged and its statistics were computed
     TOO_FEW_MEASUREMENTS = "too_few_measurements"  # a fit with no more usable measurements than parameters
     RUN_NOT_SIMULATED = "run_not_simulated"  # a laboratory run cannot be simulated at the fitted parameters
+    RADIAL_DATA = "radial_data"  # the radial data cannot reproduce the given overall U (2-D model not run)
 
 
 # The statuses after which a study task is not run again unless asked to (--retry-failed).

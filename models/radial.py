@@ -91,9 +91,8 @@ def radial_rhs(case, grid):
         P, Tc = y2[i_p], y2[i_tc]
         local, src, gen = reaction_sources(NUMPY, case, list(F), T, P[None])
         C = local.cp_molar_flow
-        mean_F = list(w @ F)
-        t_mix = (w @ (C * T)) / (w @ C)
-        mean = local_properties(NUMPY, case, mean_F, t_mix, P, compositions=False)
+        mean_F, t_mix = cross_section_mean(w, F, T, C)
+        mean = local_properties(NUMPY, case, list(mean_F), t_mix, P, compositions=False)
         tr = radial_transport(NUMPY, case, mean)
         disp = tr.dispersion / (mean.mass_flow / (tube.area * mean.density) * radius**2)  # 1/m
         spread = disp * (K @ F)  # (species, nodes, m)
@@ -163,6 +162,12 @@ class RadialResult:
         return self.status == Status.OK
 
 
+def cross_section_mean(w, F, T, C):
+    """The cross-section mean flows sum_j w_j F_ij and the mixing-cup temperature sum_j w_j C_j T_j /
+    sum_j w_j C_j (C_j = sum_i F_ij cp_i(T_j)): F is (species, nodes, ...), T and C (nodes, ...)."""
+    return w @ F, (w @ (C * T)) / (w @ C)
+
+
 def _mean_state(case, layout, grid, y):
     """The axial model's state (models.state) of the cross-section mean: mean flows, mixing-cup T."""
     F = layout.flows(y)
@@ -170,9 +175,7 @@ def _mean_state(case, layout, grid, y):
     s = StateLayout.of(case)
     out = np.empty((s.size, *y.shape[1:]))
     local = local_properties(NUMPY, case, list(F), T, y[layout.tail_index("P")][None])
-    C = local.cp_molar_flow
-    out[s.flows] = np.tensordot(grid.mean, F, axes=(0, 1))
-    out[s.index("T")] = np.tensordot(grid.mean, C * T, axes=(0, 0)) / np.tensordot(grid.mean, C, axes=(0, 0))
+    out[s.flows], out[s.index("T")] = cross_section_mean(grid.mean, F, T, local.cp_molar_flow)
     for state in ("P", "Tc", "Q", "tau"):
         out[s.index(state)] = y[layout.tail_index(state)]
     return out
@@ -190,13 +193,12 @@ def simulate_radial(case, points: int | None = None, coolant_guess: float | None
     layout = RadialLayout(len(case.species), grid.n + 1)
     mean0 = local_properties(NUMPY, case, [f / case.tube.count for f in case.feed.molar_flows],
                              case.feed.temperature, case.feed.pressure)
-    wall_u = radial_transport(NUMPY, case, mean0).wall_u
-    if case.coolant.kind.exchanges_heat and not (np.isfinite(wall_u) and wall_u > 0):
-        lam = radial_transport(NUMPY, case, mean0).lambda_er
+    inlet = radial_transport(NUMPY, case, mean0)
+    if case.coolant.kind.exchanges_heat and not (np.isfinite(inlet.wall_u) and inlet.wall_u > 0):
         return RadialResult(Status.FAILED, f"the given heat_transfer.overall is above what radial conduction can "
-                            f"carry (8 lambda_er/d_t = {8 * lam / case.tube.inner_diameter:.4g} W/(m^2 K)): no "
-                            "positive wall coefficient makes the 2-D model consistent with it",
-                            Reason.INTEGRATOR_ERROR, grid.n, timings={"simulate_s": time.perf_counter() - t0})
+                            f"carry (8 lambda_er/d_t = {8 * inlet.lambda_er / case.tube.inner_diameter:.4g} "
+                            "W/(m^2 K)): no positive wall coefficient makes the 2-D model consistent with it",
+                            Reason.RADIAL_DATA, grid.n, timings={"simulate_s": time.perf_counter() - t0})
     tc_start = None
     if case.coolant.kind.enters_at == "outlet":
         tc_start, why = shoot_countercurrent(
@@ -244,16 +246,15 @@ def simulate_radial(case, points: int | None = None, coolant_guess: float | None
         "hot_spot_radial_difference_K": float(hot_profile[0] - hot_profile[-1]),
         "max_wall_temperature_K": float(np.max(T_nodes[-1])),
     })
-    mean_cols = mean_y
     s = StateLayout.of(case)
     pick = np.unique(np.concatenate([np.searchsorted(z, np.linspace(0.0, z_end, 201)).clip(0, z.size - 1),
                                      [int(np.argmin(np.abs(z - z_hot)))]]))
     key = case.index(case.key_reactant)
     result.columns = {
-        "z_m": z[pick], "T_centre_K": t_centre[pick], "T_mean_K": mean_cols[s.index("T"), pick],
+        "z_m": z[pick], "T_centre_K": t_centre[pick], "T_mean_K": mean_y[s.index("T"), pick],
         "T_wall_K": T_nodes[-1, pick], "Tc_K": y[layout.tail_index("Tc"), pick],
         "P_Pa": y[layout.tail_index("P"), pick],
-        "conversion": 1.0 - mean_cols[key, pick] * case.tube.count / case.feed.molar_flows[key],
+        "conversion": 1.0 - mean_y[key, pick] * case.tube.count / case.feed.molar_flows[key],
     }
     result.summary = summary
     result.radius_m = x * radius

@@ -39,12 +39,10 @@ class BatchResult:
     reason_code: np.ndarray = None  # Reason per sample
 
 
-def batch_rhs(case, n: int):
-    """The balances of ``n`` samples on one flat state vector. The vector is sample-major (sample 0's
-    states, then sample 1's, ...) so that the Jacobian is block-diagonal with contiguous blocks; the
-    physics (models.simulator.state_rhs) takes the (state, sample) view."""
-    ns = StateLayout.of(case).size
-    physics = state_rhs(case)
+def batch_rhs(physics, ns: int, n: int):
+    """The balances ``physics(z, y)`` (y of shape (ns, samples)) of ``n`` samples on one flat state vector.
+    The vector is sample-major (sample 0's states, then sample 1's, ...) so that the Jacobian is
+    block-diagonal with contiguous blocks."""
 
     def rhs(z, y):
         return physics(z, y.reshape(n, ns).T).T.ravel()
@@ -53,9 +51,8 @@ def batch_rhs(case, n: int):
     return rhs
 
 
-def block_jacobian(case, rhs, n: int):
+def block_jacobian(rhs, ns: int, n: int):
     """The sparse block-diagonal Jacobian of ``batch_rhs``, one complex-step block per sample."""
-    ns = StateLayout.of(case).size
     i, kk, s = np.meshgrid(np.arange(ns), np.arange(ns), np.arange(n), indexing="ij")
     rows = (s * ns + i).ravel()
     cols = (s * ns + kk).ravel()
@@ -65,6 +62,43 @@ def block_jacobian(case, rhs, n: int):
         return csc_matrix((d.ravel(), (rows, cols)), shape=(ns * n, ns * n))
 
     return jac
+
+
+@dataclass(frozen=True)
+class BatchModel:
+    """What the batch integration needs of a model: the axial one (AXIAL) or the radial one (radial_model)."""
+
+    size: int  # states per sample
+    physics: object  # case -> f(z, y) for y of shape (size, samples)
+    initial: object  # (case, samples) -> (size, samples)
+    hottest: object  # y (size, samples) -> its largest temperature per sample (the trap)
+    axial: object  # (case, Y (size, samples, points)) -> the axial model's state of Y (models.state) and
+    #                the largest temperature per point (the hot spot: the fluid's, or the 2-D model's)
+    single: object  # case -> the one-sample result (SimulationResult or models.radial.RadialResult)
+
+
+def axial_model(base) -> BatchModel:
+    layout = StateLayout.of(base)
+    i_t = layout.index("T")
+    return BatchModel(layout.size, state_rhs, lambda case, n: layout.initial(case, samples=n),
+                      lambda y: y[i_t], lambda case, Y: (Y, Y[i_t]), lambda case: simulate(case, checks=False))
+
+
+def radial_model(base, points: int | None = None) -> BatchModel:
+    from .radial import RadialLayout, mean_state, radial_initial_state, radial_rhs, simulate_radial
+    from .radial_grid import radial_grid
+
+    grid = radial_grid(points or base.radial.points)
+    layout = RadialLayout(len(base.species), grid.n + 1)
+
+    def axial(case, Y):
+        T = layout.temperatures(Y)  # (nodes, samples, points)
+        return mean_state(case, layout, grid, Y), np.maximum(np.max(T, axis=0), np.tensordot(grid.centre, T, 1))
+
+    return BatchModel(layout.size, lambda case: radial_rhs(case, grid),
+                      lambda case, n: radial_initial_state(case, layout, samples=n),
+                      lambda y: np.max(layout.temperatures(y), axis=0), axial,
+                      lambda case: simulate_radial(case, grid.n))
 
 
 def block_bdf(block: int):
@@ -96,23 +130,27 @@ def block_bdf(block: int):
     return BlockBDF
 
 
-def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> BatchResult:
+def simulate_batch(base, values: dict, n: int, trap: float | None = None, model: BatchModel | None = None
+                   ) -> BatchResult:
     """Integrate ``n`` samples of ``base`` with parameters ``values`` (path -> array of n, see
-    models.parameters) together. A sample whose temperature passes ``trap`` [K] is taken out of the batch
-    (a steep runaway would dictate tiny steps to all) and simulated on its own with the adaptive simulator;
-    so are all samples if the batch integration fails. Results equal one-at-a-time simulation within the
-    integrator tolerance."""
+    models.parameters) together, with the axial model or the given ``model`` (radial_model). A sample whose
+    temperature passes ``trap`` [K] is taken out of the batch (a steep runaway would dictate tiny steps to
+    all) and simulated on its own; so are all samples if the batch integration fails. Results equal
+    one-at-a-time simulation within the integrator tolerance and the GRID's resolution of the hot spot."""
     t0 = time.perf_counter()
+    model = model or axial_model(base)
     layout = StateLayout.of(base)
-    ns, i_t = layout.size, layout.index("T")
+    ns = model.size
     num = base.numerics
     trap = num.temperature_ceiling if trap is None else min(trap, num.temperature_ceiling)
     length = base.tube.length
     case = apply(base, values)
-    y = layout.initial(case, samples=n)
+    y = model.initial(case, n)
     atol_all = num.atol * np.maximum(np.abs(y), 1.0)
-    i_tc = layout.index("Tc")
-    maxima = pointwise_maxima(case, y[i_t][None], y[i_tc][None])  # the inlet, until the first segment
+    y1, hot = model.axial(case, y[:, :, None])
+    maxima = pointwise_maxima(case, layout.get(y1, "T").T, layout.get(y1, "Tc").T)  # the inlet, until a segment
+    fluid_max = maxima["max_temperature_K"].copy()  # of the axial (or mean) temperature: locates the hot spot
+    maxima["max_temperature_K"] = np.array(hot[:, 0], dtype=float)  # a copy: hot may be a view of y
     pos = np.zeros(n)
     end = np.full((ns, n), np.nan)
     handover = np.zeros(n, dtype=bool)
@@ -122,15 +160,15 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> Bat
     while active.size:
         sub = apply(base, {p: (v[active] if np.ndim(v) else v) for p, v in values.items()})
         m = active.size
-        rhs = batch_rhs(sub, m)
+        rhs = batch_rhs(model.physics(sub), ns, m)
 
         def passed_trap(z, yy, m=m):
-            return trap - np.max(yy.reshape(m, ns)[:, i_t])
+            return trap - np.max(model.hottest(yy.reshape(m, ns).T))
 
         passed_trap.terminal, passed_trap.direction = True, -1
         try:
             sol = solve_ivp(rhs, (z0, length), y[:, active].T.ravel(), method=block_bdf(ns),
-                            jac=block_jacobian(sub, rhs, m),
+                            jac=block_jacobian(rhs, ns, m),
                             rtol=num.rtol, atol=atol_all[:, active].T.ravel(), dense_output=True,
                             events=[passed_trap], first_step=first_step)
         except (ValueError, ArithmeticError, np.linalg.LinAlgError):
@@ -140,12 +178,16 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> Bat
             break
         z_end = float(sol.t[-1])
         grid = np.linspace(z0, z_end, max(int(GRID * (z_end - z0) / length), 3))
-        Yg = sol.sol(grid).reshape(m, ns, grid.size)
-        T, Tc = Yg[:, i_t].T, Yg[:, i_tc].T  # (grid, sample)
+        Yg = np.moveaxis(sol.sol(grid).reshape(m, ns, grid.size), 1, 0)  # (state, sample, grid)
+        ya, hottest = model.axial(sub, Yg)
+        T, Tc = layout.get(ya, "T").T, layout.get(ya, "Tc").T  # (grid, sample)
         i_max = np.argmax(T, axis=0)
-        better = T[i_max, np.arange(m)] > maxima["max_temperature_K"][active]
+        better = T[i_max, np.arange(m)] > fluid_max[active]
         pos[active[better]] = grid[i_max][better]
+        fluid_max[active] = np.fmax(fluid_max[active], T[i_max, np.arange(m)])
         for name, value in pointwise_maxima(sub, T, Tc).items():
+            if name == "max_temperature_K":
+                value = np.max(hottest, axis=1)  # (sample, grid): the hot spot of the model
             maxima[name][active] = np.fmax(maxima[name][active], value)
         last = sol.y[:, -1].reshape(m, ns).T
         y[:, active] = last
@@ -154,7 +196,7 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> Bat
             break
         # hand over, with the sample that reached the trap, those close behind it: each hand-over restarts
         # the batch integration, and a sample this hot is likely to reach the trap soon
-        over = last[i_t] >= trap - TRAP_BAND
+        over = model.hottest(last) >= trap - TRAP_BAND
         handover[active[over]] = True
         active = active[~over]
         if sol.t.size > 2:
@@ -166,11 +208,14 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None) -> Bat
     status = np.array([Status.OK] * n, dtype=object)
     codes = np.array([Reason.INTEGRATED] * n, dtype=object)
     reason = ["integrated to the tube outlet"] * n
-    figures = outlet_figures(case, layout.initial(case, samples=n), np.nan_to_num(end), maxima, pos)
+    with np.errstate(all="ignore"):  # samples handed over carry zeros here; their figures are replaced below
+        y_in, _ = model.axial(case, model.initial(case, n)[:, :, None])
+        y_out, _ = model.axial(case, np.nan_to_num(end)[:, :, None])
+    figures = outlet_figures(case, y_in[..., 0], y_out[..., 0], maxima, pos)
     outputs = {key: np.array(np.broadcast_to(figures[key], (n,)), dtype=float) for key in OUTPUTS if key in figures}
     censored = {key: v.copy() for key, v in outputs.items()}
     for j in np.flatnonzero(handover):
-        single = simulate(apply(base, {p: (v[j] if np.ndim(v) else v) for p, v in values.items()}), checks=False)
+        single = model.single(apply(base, {p: (v[j] if np.ndim(v) else v) for p, v in values.items()}))
         status[j], reason[j], codes[j] = single.status, single.reason, single.reason_code
         for target, flag in ((outputs, False), (censored, True)):
             for key, val in single_outputs(single, flag).items():

@@ -77,17 +77,17 @@ def radial_rhs(case, grid):
     """f(z, y) of the radial model (trailing axes of y broadcast, as for the axial model)."""
     layout = RadialLayout(len(case.species), grid.n + 1)
     w, K = grid.mean, grid.stiffness
-    w_col = w[:, None]
     tube, mode = case.tube, case.coolant.kind
     radius = tube.inner_diameter / 2.0
     i_p, i_tc = layout.tail_index("P"), layout.tail_index("Tc")
 
     def rhs(z, y):
-        extra = y.shape[1:]
-        y2 = y.reshape(layout.size, -1)  # the trailing axes as one: matrix products over the nodes
-        F = layout.flows(y2)  # (species, nodes, m)
+        y2 = y if y.ndim > 1 else y[:, None]  # trailing axes: samples, the complex step's columns
+        extra = y2.shape[1:]
+        wj = w.reshape(-1, *([1] * len(extra)))
+        F = layout.flows(y2)  # (species, nodes, ...)
         F = np.where(F.real < 0.0, 0.0 * F, F)
-        T = layout.temperatures(y2)  # (nodes, m)
+        T = layout.temperatures(y2)  # (nodes, ...)
         P, Tc = y2[i_p], y2[i_tc]
         local, src, gen = reaction_sources(NUMPY, case, list(F), T, P[None])
         C = local.cp_molar_flow
@@ -95,26 +95,26 @@ def radial_rhs(case, grid):
         mean = local_properties(NUMPY, case, list(mean_F), t_mix, P, compositions=False)
         tr = radial_transport(NUMPY, case, mean)
         disp = tr.dispersion / (mean.mass_flow / (tube.area * mean.density) * radius**2)  # 1/m
-        spread = disp * (K @ F)  # (species, nodes, m)
-        dF = -spread / w_col
+        spread = disp * over_nodes(K, F, 1)  # (species, nodes, ...)
+        dF = -spread / wj
         for i, s_i in enumerate(src):
             dF[i] += s_i
         to_coolant = math.pi * tube.inner_diameter * tr.wall_u * (T[-1] - Tc)  # W/m per tube
         if mode.holds_temperature:
             dT = 0.0 * T
-            dQ = tube.count * (w @ np.broadcast_to(gen, T.shape))
+            dQ = tube.count * over_nodes(w, np.broadcast_to(gen, T.shape), 0)
         else:
-            conduct = math.pi * tr.lambda_er * (K @ T)
+            conduct = math.pi * tr.lambda_er * over_nodes(K, T, 0)
             conduct[-1] = conduct[-1] + to_coolant
             both = np.concatenate([T, t_mix[None]])  # one enthalpy call per species for nodes and mean
-            h = np.stack([sp.enthalpy(NUMPY, both) for sp in case.species])  # (species, nodes + 1, m)
-            carried = np.einsum("inm,inm->nm", h[:, :-1] - h[:, -1:], spread)
-            dT = (gen + (carried - conduct) / w_col) / C
+            h = np.stack([sp.enthalpy(NUMPY, both) for sp in case.species])  # (species, nodes + 1, ...)
+            carried = np.sum((h[:, :-1] - h[:, -1:]) * spread, axis=0)
+            dT = (gen + (carried - conduct) / wj) / C
             dQ = tube.count * to_coolant
         ones = np.ones_like(Tc)
-        out = np.concatenate([dF.reshape(-1, dF.shape[-1]), dT, [
+        out = np.concatenate([dF.reshape(-1, *extra), dT, [
             pressure_gradient(NUMPY, case, mean) * ones, coolant_gradient(case, to_coolant, Tc) * ones,
-            dQ * ones, residence_gradient(case, mean) * ones]]).reshape(layout.size, *extra)
+            dQ * ones, residence_gradient(case, mean) * ones]]).reshape(y.shape)
         rhs.last = out
         return out
 
@@ -123,12 +123,12 @@ def radial_rhs(case, grid):
     return rhs
 
 
-def radial_initial_state(case, layout: RadialLayout, coolant_start=None) -> np.ndarray:
-    """The flat inlet: every node at the feed state (the axial model's inlet, models.state)."""
-    y1 = StateLayout.of(case).initial(case, coolant_start)
-    n = layout.nodes
-    s = layout.species
-    return np.concatenate([np.repeat(y1[:s], n), np.full(n, y1[s]), y1[s + 1:s + 5]])
+def radial_initial_state(case, layout: RadialLayout, coolant_start=None, samples: int | None = None) -> np.ndarray:
+    """The flat inlet: every node at the feed state (the axial model's inlet, models.state); shape (size,) or
+    (size, samples) for a case carrying arrays of samples."""
+    y1 = StateLayout.of(case).initial(case, coolant_start, samples)
+    n, s = layout.nodes, layout.species
+    return np.concatenate([np.repeat(y1[:s], n, axis=0), np.repeat(y1[s:s + 1], n, axis=0), y1[s + 1:s + 5]])
 
 
 def integrate_radial(case, grid, coolant_start=None, dense=True):
@@ -162,14 +162,28 @@ class RadialResult:
         return self.status == Status.OK
 
 
+def over_nodes(M, a, axis: int):
+    """M (weights (nodes,) or a matrix (nodes, nodes)) applied along the node axis ``axis`` of ``a``; the
+    result keeps a's other axes in place. A batched matrix product when one axis follows the nodes (one
+    state or one batch: the fast case), tensordot otherwise (the complex step's columns of a batch)."""
+    if a.ndim - axis == 2:
+        return M @ a
+    out = np.tensordot(M, a, axes=(M.ndim - 1, axis))
+    return np.moveaxis(out, 0, axis) if M.ndim == 2 else out
+
+
 def cross_section_mean(w, F, T, C):
     """The cross-section mean flows sum_j w_j F_ij and the mixing-cup temperature sum_j w_j C_j T_j /
     sum_j w_j C_j (C_j = sum_i F_ij cp_i(T_j)): F is (species, nodes, ...), T and C (nodes, ...)."""
-    return w @ F, (w @ (C * T)) / (w @ C)
+    return over_nodes(w, F, 1), over_nodes(w, C * T, 0) / over_nodes(w, C, 0)
 
 
-def _mean_state(case, layout, grid, y):
-    """The axial model's state (models.state) of the cross-section mean: mean flows, mixing-cup T."""
+def mean_state(case, layout, grid, y):
+    """The axial model's state (models.state) of the cross-section mean: mean flows, mixing-cup T; y may carry
+    any trailing axes (points, samples)."""
+    if y.ndim > 2:
+        flat = mean_state(case, layout, grid, y.reshape(y.shape[0], -1))
+        return flat.reshape(flat.shape[0], *y.shape[1:])
     F = layout.flows(y)
     T = layout.temperatures(y)
     s = StateLayout.of(case)
@@ -230,8 +244,8 @@ def simulate_radial(case, points: int | None = None, coolant_guess: float | None
                                options={"xatol": 1e-10 * max(z_end, 1.0)})
         if best.success and -best.fun >= t_centre[i]:
             z_hot = float(best.x)
-    mean_y = _mean_state(case, layout, grid, y)
-    summary = summarise(case, z, mean_y, _mean_state(case, layout, grid, sol.y[:, -1:])[:, 0])
+    mean_y = mean_state(case, layout, grid, y)
+    summary = summarise(case, z, mean_y, mean_state(case, layout, grid, sol.y[:, -1:])[:, 0])
     radius = case.tube.inner_diameter / 2.0
     x = np.linspace(0.0, 1.0, MAP_POINTS)
     to_x = grid.interpolation(x**2)  # the radial polynomial on evenly spaced radii, the axis first

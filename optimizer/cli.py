@@ -27,7 +27,7 @@ from tubewright.models.limits import LIMITS
 from tubewright.models.outcomes import Status
 from tubewright.optimizer import verbs
 from tubewright.optimizer.design.goals import GOALS
-from tubewright.optimizer.design.spec import DESIGN_FIELDS, read_design
+from tubewright.optimizer.design.spec import read_design, values_by_key
 from tubewright.optimizer.output import display
 from tubewright.optimizer.output.caution import CAUTION
 from tubewright.optimizer.output.jsonsafe import finite
@@ -330,7 +330,7 @@ def cmd_optimize(args) -> int:
 
             files["profiles_csv"] = str(out / "optimal_profiles.csv")
             safe_frame(res.simulation.profiles).to_csv(files["profiles_csv"], index=False)
-            best = design_case(res.case, _design_values(res))
+            best = design_case(res.case, values_by_key(res.design))
             files["plot_png"] = str(plot_profiles(best, res.simulation, out / "optimal_profiles.png",
                                                   limits=res.limits))
         if res.ok:
@@ -470,11 +470,6 @@ def robust_lines(r: dict) -> list[str]:
     else:
         lines.append(f"  scenario guarantee: {g['note']}")
     return lines
-
-
-def _design_values(res) -> dict:
-    back = {field: key for key, field in DESIGN_FIELDS.items()}
-    return {back[k]: v for k, v in res.design.items()}
 
 
 def cmd_screen(args) -> int:
@@ -687,8 +682,7 @@ def build_parser() -> argparse.ArgumentParser:
     scr.add_argument("--reoptimise", action="store_true", help="re-optimise the design for each sample")
     scr.add_argument("--no-batch", action="store_true", help="simulate one sample at a time")
     scr.add_argument("--radial", action="store_true", help="evaluate every sample with the two-dimensional model "
-                     "([radial]): its hot spot is the 2-D one; one sample at a time on one process, about ten "
-                     "times slower than the 1-D batches")
+                     "([radial]): its hot spot is the 2-D one; batched like the 1-D model, about three times slower")
     scr.add_argument("--workers", type=int, default=min(2, os.cpu_count() or 1),
                      help="processes for the batches (default: up to 2, the cores of the reference machine)")
     scr.add_argument("--max-hours", type=float, default=verbs.DEFAULT_MAX_HOURS, metavar="H",

@@ -152,10 +152,11 @@ def screen(case, method: str = "morris", samples: int | None = None, seed: int =
            reoptimise: bool = False, batched: bool = True, workers: int = 1, progress=None,
            max_hours: float | None = DEFAULT_MAX_HOURS, radial: bool = False):
     """Rank the [uncertain] quantities of a case: a ScreeningResult. ``radial``: the outputs of every sample
-    from the two-dimensional model (the case needs [radial]; one sample at a time, slower). ``samples`` defaults to
-    DEFAULT_SAMPLES[method] (Morris trajectories or Sobol base samples) for every caller and is checked by
-    the method's rules. A screening whose estimated time (a timed probe of a few samples, extrapolated)
-    passes ``max_hours`` is refused before it starts; ``max_hours=None`` accepts any time."""
+    from the two-dimensional model (the case needs [radial]; batched like the 1-D model, about 3x slower).
+    ``samples`` defaults to DEFAULT_SAMPLES[method] (Morris trajectories or Sobol base samples) for every
+    caller and is checked by the method's rules. A screening whose estimated time (a timed probe of a few
+    samples, extrapolated) passes ``max_hours`` is refused before it starts; ``max_hours=None`` accepts any
+    time."""
     from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES, METHODS, POLICIES, check_samples, rows_for
     from tubewright.optimizer.screening.screen import screen as _screen
     from tubewright.optimizer.screening.uncertain import read_uncertain, salib_problem
@@ -198,7 +199,7 @@ def estimated_hours(case, items, rows: int, reoptimise: bool, batched: bool, wor
     import numpy as np
     from tubewright.optimizer.screening.evaluation import evaluate
 
-    if rows <= (PROBE_FREE_ROWS // 10 if radial else PROBE_FREE_ROWS):
+    if rows <= PROBE_FREE_ROWS:
         return 0.0
     probe = np.random.default_rng(0).uniform(0.05, 0.95, size=(PROBE_ROWS, len(items)))
     t0 = time.perf_counter()
@@ -207,10 +208,7 @@ def estimated_hours(case, items, rows: int, reoptimise: bool, batched: bool, wor
 
         reoptimise_evaluator(case, items)(probe[:2])
         per_row = (time.perf_counter() - t0) / 2
-    elif radial:  # one process, one sample at a time
-        evaluate(case, items, probe[:4], radial=True)
-        per_row = (time.perf_counter() - t0) / 4
     else:
-        evaluate(case, items, probe, batched=batched)
+        evaluate(case, items, probe, batched=batched, radial=radial)
         per_row = (time.perf_counter() - t0) / PROBE_ROWS / max(1, min(workers, 2) * 0.9)
     return per_row * rows / 3600.0

@@ -36,10 +36,9 @@ def _hot_spot_limit(res):
 def _check(case, res):
     from tubewright.models.radial import radial_check
     from tubewright.optimizer.design.problem import design_case
-    from tubewright.optimizer.design.spec import DESIGN_FIELDS
+    from tubewright.optimizer.design.spec import values_by_key
 
-    back = {f: k for k, f in DESIGN_FIELDS.items()}
-    best = design_case(case, {back[k]: v for k, v in res.design.items()})
+    best = design_case(case, values_by_key(res.design))
     return radial_check(best, one_d=res.simulation, grid_check=False)
 
 

@@ -116,19 +116,18 @@ def robust_design(case, k: int, seed: int = 0, samples: int = DEFAULT_VERIFY_SAM
     scenarios with the limits they bind, both designs verified on fresh samples, and the scenario
     guarantee."""
     from tubewright.optimizer.design.optimise import optimise
-    from tubewright.optimizer.design.spec import DESIGN_FIELDS, read_design
+    from tubewright.optimizer.design.spec import read_design, values_by_key
 
     items, scenarios = draw_scenarios(case, k, seed)
     if nominal is None:
         nominal = optimise(case, progress=progress)
     if progress is not None:
         progress(f"robust design: {k} scenarios")
-    key_of = {field: key for key, field in DESIGN_FIELDS.items()}
     start = None
     if nominal.ok:  # from the nominal optimum: the scenarios then move it only as far as they must
         free = read_design(case).free
-        start = {key_of[f]: min(max(v, free[key_of[f]].lower), free[key_of[f]].upper)
-                 for f, v in nominal.design.items() if key_of[f] in free}
+        start = {k: min(max(v, free[k].lower), free[k].upper)
+                 for k, v in values_by_key(nominal.design).items() if k in free}
     shells = nominal.extras.get("shells", {}).get("count") if nominal.ok else None
     robust = optimise(case, progress=progress, scenarios=scenarios, start=start, shells=shells,
                       scenario_goal=goal if goal != "mix" else ("mix", nominal_weight))
@@ -144,7 +143,7 @@ def robust_design(case, k: int, seed: int = 0, samples: int = DEFAULT_VERIFY_SAM
     verification = {}
     for label, res in (("nominal", nominal), ("robust", robust)):
         if res.ok:
-            values = {key_of[f]: v for f, v in res.design.items()}
+            values = values_by_key(res.design)
             verification[label] = verify_design(case, items, values, samples, seed)
     out["verification"] = verification
     out["guarantee"] = scenario_guarantee(k + 1, len(read_design(case).free))  # the nominal case is a scenario too

@@ -33,6 +33,13 @@ DESIGN_FIELDS = {"length": "length_m", "inner_diameter": "inner_diameter_m", "tu
                  "inlet_temperature": "inlet_temperature_K", "inlet_pressure": "inlet_pressure_Pa",
                  "coolant_flow": "coolant_flow_kg_s", "coolant_temperature": "coolant_temperature_K",
                  "coolant_pressure": "coolant_pressure_Pa"}
+KEY_OF_FIELD = {field: key for key, field in DESIGN_FIELDS.items()}
+
+
+def values_by_key(design: dict) -> dict:
+    """A reported design ({field with unit: value}, as OptimizationResult.design) by design key (SI), the
+    form design_case and the starts take."""
+    return {KEY_OF_FIELD[f]: v for f, v in design.items()}
 
 @dataclass(frozen=True)
 class FreeVariable:

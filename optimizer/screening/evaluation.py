@@ -13,7 +13,7 @@ from dataclasses import dataclass
 from functools import partial
 
 import numpy as np
-from tubewright.models.batch import OUTPUTS, simulate_batch, single_outputs
+from tubewright.models.batch import OUTPUTS, radial_model, simulate_batch, single_outputs
 from tubewright.models.limits import LIMITS
 from tubewright.models.outcomes import Reason, Status
 from tubewright.models.parameters import apply
@@ -36,8 +36,8 @@ class Evaluations:
 
 
 def _batch_task(args):
-    case, chunk, size, trap = args
-    return simulate_batch(case, chunk, size, trap=trap)
+    case, chunk, size, trap, radial = args
+    return simulate_batch(case, chunk, size, trap=trap, model=radial_model(case) if radial else None)
 
 
 def _worker_start():
@@ -62,9 +62,9 @@ def evaluate(case, items, unit_x, batch_size: int = 500, batched: bool = True, p
     """Simulate every sample: in batches (stacked states) or one at a time, on ``workers`` processes.
     Counter-current coolant is always one at a time (a shooting per sample). ``trap``: see models.batch
     (default ``_trap(case)``). A batch whose process fails is recorded as failed samples with the reason.
-    ``radial``: every sample with the two-dimensional model (models.radial), one at a time on this process;
-    the outputs are its cross-section figures and its hot spot the largest 2-D temperature (about ten times
-    the cost of a 1-D sample and without the batching)."""
+    ``radial``: every sample with the two-dimensional model (models.radial), batched as the 1-D model is
+    (models.batch.radial_model); the outputs are its cross-section figures and its hot spot the largest 2-D
+    temperature."""
     t0 = time.perf_counter()
     trap = _trap(case) if trap is None else trap
     values = to_parameters(items, unit_x)
@@ -75,7 +75,7 @@ def evaluate(case, items, unit_x, batch_size: int = 500, batched: bool = True, p
     codes = np.array([Reason.INTEGRATED] * n, dtype=object)
     reason = [""] * n
     handed = 0
-    if not case.coolant.kind.batchable or radial:
+    if not case.coolant.kind.batchable:
         batched = False
     one = simulate_radial if radial else partial(simulate, checks=False)
     done = 0
@@ -100,7 +100,7 @@ def evaluate(case, items, unit_x, batch_size: int = 500, batched: bool = True, p
     try:
         if batched:
             slices = even_slices(n, batch_size, workers)
-            tasks = [(case, {p: v[s] for p, v in values.items()}, s.stop - s.start, trap) for s in slices]
+            tasks = [(case, {p: v[s] for p, v in values.items()}, s.stop - s.start, trap, radial) for s in slices]
             if workers > 1 and len(tasks) > 1:
                 _on_pool(tasks, slices, workers, store, status, codes, reason, evaluated)
             else:

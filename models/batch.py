@@ -4,7 +4,8 @@ evaluated once for all of them (numpy broadcasting), and the Jacobian is block-d
 
 A sample that passes a trap temperature leaves the batch (its steep runaway would set tiny steps for all)
 and is simulated on its own; the others go on from where they are. Counter-current coolant needs a
-shooting per sample and is not batched (the screening falls back to one-at-a-time simulation).
+shooting per sample and is not batched (the screening falls back to one-at-a-time simulation). The same
+integration carries the axial model (axial_model) or the two-dimensional one (radial_model).
 """
 
 from __future__ import annotations
@@ -66,7 +67,8 @@ def block_jacobian(rhs, ns: int, n: int):
 
 @dataclass(frozen=True)
 class BatchModel:
-    """What the batch integration needs of a model: the axial one (AXIAL) or the radial one (radial_model)."""
+    """What the batch integration needs of a model: the axial one (axial_model) or the radial one
+    (radial_model)."""
 
     size: int  # states per sample
     physics: object  # case -> f(z, y) for y of shape (size, samples)
@@ -78,6 +80,7 @@ class BatchModel:
 
 
 def axial_model(base) -> BatchModel:
+    """The axial model (models.simulator.state_rhs); its state is already the axial state."""
     layout = StateLayout.of(base)
     i_t = layout.index("T")
     return BatchModel(layout.size, state_rhs, lambda case, n: layout.initial(case, samples=n),
@@ -85,6 +88,8 @@ def axial_model(base) -> BatchModel:
 
 
 def radial_model(base, points: int | None = None) -> BatchModel:
+    """The two-dimensional model (models.radial) on ``points`` radial nodes (default [radial] points): its
+    axial state is the cross-section mean, its hot spot the largest node or axis temperature."""
     from .radial import RadialLayout, mean_state, radial_initial_state, radial_rhs, simulate_radial
     from .radial_grid import radial_grid
 

@@ -505,7 +505,8 @@ def _dies_on_the_doomed_batch(args):
 
     from tubewright.models.batch import simulate_batch
 
-    case, chunk, size, trap = args
+    case, chunk, size, trap, radial = args  # the task of optimizer.screening.evaluation._batch_task
+    assert not radial  # this test screens with the axial model
     if float(next(iter(chunk.values()))[0]) == _DOOMED["value"]:
         os._exit(1)
     return simulate_batch(case, chunk, size, trap=trap)

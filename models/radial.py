@@ -195,6 +195,13 @@ def mean_state(case, layout, grid, y):
     return out
 
 
+def inlet_transport(case):
+    """lambda_er, alpha_w, D_er and the wall coefficient (balances.RadialTransport) at the feed state."""
+    feed = local_properties(NUMPY, case, [f / case.tube.count for f in case.feed.molar_flows],
+                            case.feed.temperature, case.feed.pressure)
+    return radial_transport(NUMPY, case, feed)
+
+
 def simulate_radial(case, points: int | None = None, coolant_guess: float | None = None) -> RadialResult:
     """Simulate the case with the two-dimensional model (``points`` interior radial nodes; default
     [radial] points). Never raises for a physical failure: the status and reason say what happened."""
@@ -205,9 +212,7 @@ def simulate_radial(case, points: int | None = None, coolant_guess: float | None
         raise ValueError(f"{case.source}: the case has no [radial] table (the data of the two-dimensional model)")
     grid = _points(case, points)
     layout = RadialLayout(len(case.species), grid.n + 1)
-    mean0 = local_properties(NUMPY, case, [f / case.tube.count for f in case.feed.molar_flows],
-                             case.feed.temperature, case.feed.pressure)
-    inlet = radial_transport(NUMPY, case, mean0)
+    inlet = inlet_transport(case)
     if case.coolant.kind.exchanges_heat and not (np.isfinite(inlet.wall_u) and inlet.wall_u > 0):
         return RadialResult(Status.FAILED, f"the given heat_transfer.overall is above what radial conduction can "
                             f"carry (8 lambda_er/d_t = {8 * inlet.lambda_er / case.tube.inner_diameter:.4g} "
@@ -334,9 +339,7 @@ def radial_check(case, points: int | None = None, grid_check: bool = True, one_d
     lumped = lumped_case(case)
     lumped_result = simulate(lumped, checks=False) if lumped is not case else None
     grid = simulate_radial(case, 2 * result.points) if grid_check and result.summary else None
-    mean0 = local_properties(NUMPY, case, [f / case.tube.count for f in case.feed.molar_flows],
-                             case.feed.temperature, case.feed.pressure)
-    t = radial_transport(NUMPY, case, mean0)
+    t = inlet_transport(case)
     transport = {"lambda_er_W_m_K": float(t.lambda_er), "alpha_w_W_m2_K": float(t.alpha_w),
                  "dispersion_m2_s": float(t.dispersion), "wall_u_W_m2_K": float(t.wall_u)}
     return RadialCheck(result, one_d, lumped_result, grid, transport)

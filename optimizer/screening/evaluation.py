@@ -10,15 +10,12 @@ from __future__ import annotations
 import signal
 import time
 from dataclasses import dataclass
-from functools import partial
 
 import numpy as np
-from tubewright.models.batch import OUTPUTS, radial_model, simulate_batch, single_outputs
+from tubewright.models.batch import OUTPUTS, axial_model, radial_model, simulate_batch, single_outputs
 from tubewright.models.limits import LIMITS
 from tubewright.models.outcomes import Reason, Status
 from tubewright.models.parameters import apply
-from tubewright.models.radial import simulate_radial
-from tubewright.models.simulator import simulate
 from tubewright.optimizer.processes import process_context
 from tubewright.optimizer.screening.sampling import to_parameters
 
@@ -77,7 +74,7 @@ def evaluate(case, items, unit_x, batch_size: int = 500, batched: bool = True, p
     handed = 0
     if not case.coolant.kind.batchable:
         batched = False
-    one = simulate_radial if radial else partial(simulate, checks=False)
+    one = (radial_model(case) if radial else axial_model(case)).single  # the one-sample simulation
     done = 0
     evaluated = np.zeros(n, dtype=bool)
 

@@ -119,6 +119,16 @@ def test_import_is_light_and_changes_nothing_global():
     assert out == "False True"
 
 
+def test_pyomo_import_leaves_scipy_stats_unexecuted_until_used():
+    # Pyomo imports scipy.stats whenever scipy is imported (0.5-0.8 s); tubewright defers it to first use
+    out = _run("import sys, tubewright.optimizer.design.optimise, tubewright.models.simulator; "
+               "print('scipy.stats._stats_py' in sys.modules, 'scipy.spatial._qhull' in sys.modules); "
+               "import scipy.stats as st; from scipy.stats import qmc; from scipy import stats; "
+               "print(round(float(st.norm.ppf(0.975)), 4), stats is sys.modules['scipy.stats'], "
+               "qmc.Sobol(2, seed=1).random(2).shape)")
+    assert out.split("\n") == ["False False", "1.96 True (2, 2)"]
+
+
 def test_version_is_read_from_the_distribution():
     import importlib.metadata
 

@@ -50,12 +50,14 @@ class _Printer:
     and the inputs in order of first appearance: they become the placeholders x0.. and p0.."""
 
     def __init__(self):
+        self.fold = False  # fold the numbers 0 and 1 (see _folded): on for the derivatives, which abound in them
         self.vars: list = []
         self.inputs: list = []
         self._var_slot: dict = {}
         self._input_slot: dict = {}
         self._lines: list[str] = []
         self._memo: dict = {}
+        self._text: dict = {}  # right-hand side -> its name: equal subtrees built apart are evaluated once
         self._keep: list = []  # holds printed nodes so that their ids stay unique while memoised
 
     def leaf(self, node) -> str:
@@ -85,7 +87,7 @@ class _Printer:
     def source(self, name: str, exprs) -> str:
         """Source of ``def name(x0.., p0..): ...; return [values of exprs]``; placeholders are numbered
         across calls, so call ``source`` for the value first."""
-        self._lines, self._memo, self._keep = [], {}, []
+        self._lines, self._memo, self._text, self._keep = [], {}, {}, []
         outs = [self.atom(e) for e in exprs]
         return "\n".join(self._lines + [f"return [{', '.join(outs)}]"])
 
@@ -105,9 +107,16 @@ class _Printer:
         if name is not None:
             return name
         args = [self.atom(a) for a in node.args]
-        name = f"t{len(self._lines)}"
         fmt = _FORMATS.get(cls) or _FORMATS.setdefault(cls, _format_of(node))
-        self._lines.append(f"{name} = {fmt(node, args)}")
+        rhs = _folded(node, args) if self.fold else None
+        if rhs is None:
+            rhs = fmt(node, args)
+            name = self._text.get(rhs)
+        else:
+            name = rhs if _is_atom(rhs) else self._text.get(rhs)
+        if name is None:
+            name = self._text[rhs] = f"t{len(self._lines)}"
+            self._lines.append(f"{name} = {rhs}")
         self._memo[id(node)] = name
         self._keep.append(node)
         return name
@@ -141,6 +150,70 @@ def _format_of(node):
     if isinstance(node, EXPR.UnaryFunctionExpression):
         return lambda n, a: f"np.{n.getname()}({a[0]})"
     raise TypeError(f"the bridge cannot print expressions of type {type(node).__name__}")
+
+
+def _literal(text: str):
+    """The number a printed atom stands for, or None for a placeholder or temporary."""
+    if text[0] not in "0123456789.-":
+        return None
+    try:
+        return float(text)
+    except ValueError:
+        return None
+
+
+def _is_atom(text: str) -> bool:
+    """A placeholder, a temporary or a number: used as it is, without a line of its own."""
+    return text.isidentifier() or _literal(text) is not None
+
+
+def _folded(node, args):
+    """The simpler right-hand side of an operation whose arguments include the numbers 0 or 1 (Pyomo's
+    symbolic derivatives are full of them), or its value when every argument is a number; None when nothing
+    folds. Folding 0 * x to 0 drops a NaN or an infinity that x might carry, as automatic differentiation
+    tools do."""
+    numbers = [_literal(a) for a in args]
+    kind = _FOLD_KINDS.get(node.__class__)
+    if kind is None:
+        return None
+    if all(v is not None for v in numbers) and kind != "where":
+        try:
+            v = (sum(numbers) if kind == "sum" else numbers[0] * numbers[1] if kind == "product" else
+                 numbers[0] / numbers[1] if kind == "division" else -numbers[0] if kind == "negation" else
+                 numbers[0] ** numbers[1] if kind == "power" else None)
+        except (ArithmeticError, ValueError):
+            return None
+        return None if v is None or not np.isfinite(v) or isinstance(v, complex) else repr(float(v))
+    if kind == "sum":
+        terms = [a for a, v in zip(args, numbers) if v != 0.0]
+        if len(terms) == len(args):
+            return None
+        return " + ".join(terms) if terms else "0.0"
+    if kind == "product":
+        if 0.0 in numbers:
+            return "0.0"
+        if numbers[0] == 1.0:
+            return args[1]
+        if numbers[1] == 1.0:
+            return args[0]
+    elif kind == "division":
+        if numbers[0] == 0.0:
+            return "0.0"
+        if numbers[1] == 1.0:
+            return args[0]
+    elif kind == "negation" and numbers[0] == 0.0:
+        return "0.0"
+    elif kind == "power":
+        if numbers[1] == 1.0:
+            return args[0]
+        if numbers[1] == 0.0:
+            return "1.0"
+    return None
+
+
+_FOLD_KINDS = {EXPR.SumExpression: "sum", EXPR.LinearExpression: "sum", EXPR.ProductExpression: "product",
+               EXPR.MonomialTermExpression: "product", EXPR.DivisionExpression: "division",
+               EXPR.NegationExpression: "negation", EXPR.PowExpression: "power"}
 
 
 @dataclass
@@ -180,6 +253,7 @@ def _build_form(rep_expr, printer: _Printer, value_source: str, members, var_row
             pairs.append((a, b))
             second.append(h)
     grad_list = grads or [0.0]
+    printer.fold = True
     deriv_source = printer.source("derivatives", list(grad_list) + (second or [0.0]))
     if len(printer.vars) != nx or len(printer.inputs) != npar:
         raise RuntimeError("a derivative introduced a variable or input absent from its expression")
@@ -250,7 +324,7 @@ class CompiledNLP:
         self.variables: list = []
         self.inputs: list = []
         var_ids, input_ids = {}, {}
-        groups: dict[str, list] = {}
+        groups: dict[tuple, list] = {}
 
         def global_indices(components, ids, pool):
             out = []
@@ -266,10 +340,12 @@ class CompiledNLP:
             return (global_indices(printer.vars, var_ids, self.variables),
                     global_indices(printer.inputs, input_ids, self.inputs))
 
-        def add(key, body, printer, rows, vrows, prows):
+        def add(source, body, printer, rows, vrows, prows):
+            # folding may leave a variable unused in the text: the counts belong to the form too
+            key = (source, len(printer.vars), len(printer.inputs))
             group = groups.get(key)
             if group is None:
-                groups[key] = group = [body, printer, key, [], [], []]
+                groups[key] = group = [body, printer, source, [], [], []]
             group[3].extend(rows)
             group[4].append(vrows)
             group[5].append(prows)
@@ -300,9 +376,9 @@ class CompiledNLP:
                         remap[g] = global_indices([b], ids, pool)[0]
             by_form: dict = {}
             for t, c in zip(t_cons, cons):
-                key = printed[id(t)][0]
-                by_form.setdefault(key, []).append((row_of[id(c)], t))
-            for key, members in by_form.items():
+                key, _, t_vars, t_inputs = printed[id(t)]
+                by_form.setdefault((key, len(t_vars), len(t_inputs)), []).append((row_of[id(c)], t))
+            for (key, _, _), members in by_form.items():
                 _, printer, _, _ = printed[id(members[0][1])]
                 t_v = np.array([printed[id(t)][2] for _, t in members], dtype=np.int64).reshape(len(members), -1)
                 t_p = np.array([printed[id(t)][3] for _, t in members], dtype=np.int64).reshape(len(members), -1)
@@ -341,7 +417,8 @@ class CompiledNLP:
                     list(block.component_data_objects(Param, descend_into=True)))
 
         def form(con):
-            return _Printer().source("value", [con.body])
+            printer = _Printer()
+            return printer.source("value", [con.body]), len(printer.vars), len(printer.inputs)
 
         def constants(params):  # immutable Params are printed as numbers: they must agree
             return [p.value for p in params if not p.parent_component().mutable]

@@ -15,7 +15,7 @@ from .elements import molar_mass as formula_mass
 from .elements import parse_formula
 from .errors import CaseError, suggest
 from .limits import LIMITS, PAIRS
-from .reactions import Adsorption, Reaction, parse_equation, rate_units
+from .reactions import Adsorption, Reaction, adsorption_units, parse_equation, rate_units
 from .thermo import ConstantCp, Nasa7, Shomate, Species, cp_problem
 from .units import DIMENSIONS, LARGEST, quantity, to_si
 
@@ -444,8 +444,7 @@ def _reactions(table: Table, species, phase, has_bed, source):
             if s not in smap:
                 raise CaseError(source, a.key("species"), f'unknown species "{s}"{suggest(s, names)}')
             n = a.number("exponent", default=1.0, low=0.0, high=10.0)
-            unit = ("mol/m^3" if driving == "concentration" else "Pa")
-            ads.append(Adsorption(s, to_si(a.raw("k_ref", required=True), f"1/({unit})**{n!r}", source,
+            ads.append(Adsorption(s, to_si(a.raw("k_ref", required=True), adsorption_units(driving, n), source,
                                            a.key("k_ref")),
                                   a.quantity("heat", "molar_energy", default=0.0, positive=False, minimum=-1e8,
                                              maximum=1e8), n))

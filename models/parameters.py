@@ -2,6 +2,7 @@
 
 Supported paths:
     chemistry.reactions.NAME.k_ref | .activation_energy | .heat_of_reaction | .orders.SPECIES
+    chemistry.reactions.NAME.adsorption.SPECIES.k_ref | .heat   (a term of the reaction's LHHW denominator)
     heat_transfer.multiplier
     feed.temperature | feed.pressure | feed.molar_flows.SPECIES
     coolant.temperature | coolant.mass_flow | coolant.pressure  (only those the coolant mode reads; the
@@ -19,7 +20,7 @@ import numpy as np
 from .backend import NUMPY
 from .correlations import water_saturation_temperature
 from .errors import CaseError, suggest
-from .reactions import heat_of_reaction, rate_units
+from .reactions import adsorption_units, heat_of_reaction, rate_units
 from .thermo import T_STD
 
 SIMPLE = {
@@ -30,7 +31,8 @@ SIMPLE = {
     "coolant.mass_flow": "kg/s",
     "coolant.pressure": "Pa",
 }
-REACTION_FIELDS = ("k_ref", "activation_energy", "heat_of_reaction", "orders")
+REACTION_FIELDS = ("k_ref", "activation_energy", "heat_of_reaction", "orders", "adsorption")
+ADSORPTION_FIELDS = ("k_ref", "heat")
 
 
 def si_unit(case, path: str, source: str, key: str) -> str:
@@ -58,6 +60,13 @@ def si_unit(case, path: str, source: str, key: str) -> str:
                 raise CaseError(source, key, f'"{path}": name the species, e.g. ...orders.A')
             _species(case, parts[4], source, key)
             return ""
+        if field == "adsorption":
+            ads = _adsorption_term(rx, parts, path, source, key)
+            if parts[5] == "heat":
+                return "J/mol"
+            return adsorption_units(rx.driving, ads.exponent)
+        if len(parts) != 4:
+            raise CaseError(source, key, f'"{path}": nothing follows {field}')
         if field == "k_ref":
             return rate_units(rx.basis, rx.driving, sum(rx.orders.values()))
         return "J/mol"
@@ -65,6 +74,30 @@ def si_unit(case, path: str, source: str, key: str) -> str:
                                                               for r in case.reactions for f in REACTION_FIELDS]
     raise CaseError(source, key, f'unknown parameter "{path}"{suggest(path, allowed)}; allowed: '
                     f"{', '.join(allowed)}")
+
+
+def _adsorption_term(rx, parts, path, source, key):
+    terms = {a.species: a for a in rx.adsorption}
+    if len(parts) != 6 or parts[5] not in ADSORPTION_FIELDS:
+        raise CaseError(source, key, f'"{path}": name the species and k_ref or heat, e.g. ...adsorption.A.k_ref')
+    if parts[4] not in terms:
+        raise CaseError(source, key, f'"{path}": reaction {rx.name} has no adsorption term for "{parts[4]}"; '
+                        f"its terms: {', '.join(terms) or 'none'}")
+    return terms[parts[4]]
+
+
+def temperature_law(case, path: str):
+    """For a constant with a temperature law (a rate constant's k_ref, an adsorption constant's k_ref):
+    (the reaction's T_ref, the path of the law's energy: the activation energy or the heat of adsorption,
+    the case's value of that energy); None for any other path."""
+    parts = path.split(".")
+    if not (path.startswith("chemistry.reactions.") and parts[-1] == "k_ref"):
+        return None
+    rx = next(r for r in case.reactions if r.name == parts[2])
+    if parts[3] == "adsorption":
+        ads = next(a for a in rx.adsorption if a.species == parts[4])
+        return rx.t_ref, ".".join(parts[:-1] + ["heat"]), ads.heat
+    return rx.t_ref, ".".join(parts[:-1] + ["activation_energy"]), rx.activation_energy
 
 
 def _reaction(case, name, source, key):
@@ -90,6 +123,8 @@ def base_value(case, path: str):
     rx = next(r for r in case.reactions if r.name == parts[2])
     if parts[3] == "orders":
         return rx.orders.get(parts[4], 0.0)
+    if parts[3] == "adsorption":
+        return getattr(next(a for a in rx.adsorption if a.species == parts[4]), parts[5])
     if parts[3] == "heat_of_reaction":
         return rx.heat_given if rx.heat_given is not None else float(heat_of_reaction(NUMPY, rx, case.species_map,
                                                                                       T_STD))
@@ -119,6 +154,9 @@ def apply(case, values: dict):
                 reactions[rx.name] = replace(rx, orders={**rx.orders, parts[4]: v})
             elif parts[3] == "heat_of_reaction":
                 reactions[rx.name] = replace(rx, heat_given=v)
+            elif parts[3] == "adsorption":
+                terms = tuple(replace(a, **{parts[5]: v}) if a.species == parts[4] else a for a in rx.adsorption)
+                reactions[rx.name] = replace(rx, adsorption=terms)
             else:
                 reactions[rx.name] = replace(rx, **{parts[3]: v})
     feed = replace(feed, molar_flows=tuple(flows))

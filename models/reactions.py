@@ -31,12 +31,25 @@ def rate_units(basis: str, driving: str, order: float) -> str:
     accepts, so that it can be shown as an example and written back."""
     powers = {"mol": 1.0, "m": -3.0 if basis == "volume" else 0.0, "kg": 0.0 if basis == "volume" else -1.0,
               "s": -1.0, "Pa": 0.0}
+    return _plain_powers(_per_drive(powers, driving, order))
+
+
+def adsorption_units(driving: str, exponent: float) -> str:
+    """The SI unit (pint string) of an adsorption constant K_s of a term K_s drive^exponent: 1/drive^exponent,
+    as plain powers ("m^3/mol", "1/Pa^0.5")."""
+    return _plain_powers(_per_drive({"mol": 0.0, "m": 0.0, "kg": 0.0, "s": 0.0, "Pa": 0.0}, driving, exponent))
+
+
+def _per_drive(powers: dict, driving: str, order: float) -> dict:
     if driving == "concentration":
         powers["mol"] -= order
         powers["m"] += 3.0 * order
     else:
         powers["Pa"] -= order
+    return powers
 
+
+def _plain_powers(powers: dict) -> str:
     def power(unit, p):
         return unit if p == 1.0 else f"{unit}^{int(p)}" if float(p).is_integer() else f"{unit}^{p!r}"
 

@@ -158,6 +158,9 @@ def test_estimated_error_model_scales_the_covariance_by_the_residual_variance(tm
     ({"parameters": {"r1": {"k_ref": {"within": 0.5}}}, "errors": {"conversion": SIGMA}}, "within"),
     ({"parameters": {"r1": {"orders": True}}, "errors": {"conversion": SIGMA}}, "fit.parameters.r1.orders"),
     ({"parameters": {}, "errors": {"conversion": SIGMA}}, "fit.parameters"),
+    # the liquid case's r1 has no adsorption term: one must be in the case before it can be freed
+    ({"parameters": {"r1": {"adsorption": {"A": True}}}, "errors": {"conversion": SIGMA}},
+     "fit.parameters.r1.adsorption.A"),
 ])
 def test_bad_fit_sections_are_refused_with_their_key(tmp_path, section, key):
     from tubewright.models import CaseError
@@ -314,3 +317,93 @@ def test_axial_temperature_columns_are_checked(tmp_path):
     with pytest.raises(CaseError, match="outside this run's tube") as err:
         read_runs(tmp_path / "runs.csv", tmp_path / "lab.toml", {"TC1": 2.5})
     assert "row 1" in str(err.value)
+
+
+def test_adsorption_constants_are_fitted_and_handed_over(tmp_path):
+    # Langmuir-Hinshelwood rate r_A = -k(T) c_A / (1 + K_A(T) c_A), K_A(T) = K_ref exp(-dH_ads/R (1/T - 1/T_ref))
+    # (Hougen and Watson form, e.g. Froment, Bischoff and De Wilde 2011, ch. 2): measured rates at the feed
+    # conditions, compared with scipy least_squares on the analytic rate law; fitted.toml and the design case
+    # carry the adsorption term, and screening reads its K back at the case's T_ref.
+    true_k, true_ka, true_heat = 0.02, 0.004, -40_000.0  # 1/s and m^3/mol at 350 K, J/mol
+    rng = np.random.default_rng(8)
+    observed = []
+    for t in (330.0, 340.0, 350.0, 360.0, 370.0):
+        for fa in (0.01, 0.003, 0.001):
+            q = (0.1 * fa + 0.018 * 0.5) / 1000.0
+            c = fa / q
+            k = true_k * math.exp(-TRUE_E / R * (1 / t - 1 / T_REF))
+            ka = true_ka * math.exp(-true_heat / R * (1 / t - 1 / T_REF))
+            observed.append((t, fa, c, -k * c / (1.0 + ka * c) * (1.0 + rng.normal(0, 0.02))))
+    section = {"parameters": {"r1": {"k_ref": True, "activation_energy": True, "adsorption": {"A": True}}},
+               "errors": {"rate": "2 %", "conversion": SIGMA}}
+    data = liquid_case(**{"tube.length": "2 m", "numerics.finite_elements": 20, "fit": section})
+    data["chemistry"]["reactions"]["r1"].update(k_ref="0.01 1/s", activation_energy="60 kJ/mol", adsorption=[
+        {"species": "A", "k_ref": "0.001 m^3/mol", "heat": "-20 kJ/mol"}])  # the start
+    case = tmp_path / "lab.toml"
+    case.write_text(toml_text(data))
+    runs = tmp_path / "runs.csv"
+    runs.write_text("\n".join(["feed.temperature [K],feed.molar_flows.A [mol/s],measured.rate.A [mol/m^3/s]"]
+                              + [f"{t!r},{fa!r},{r!r}" for t, fa, c, r in observed]) + "\n")
+    out = fit(case, runs)
+    assert out.status == Status.OK, out.message
+    assert list(out.estimates) == ["r1.k_ref", "r1.activation_energy", "r1.adsorption.A.k_ref",
+                                   "r1.adsorption.A.heat"]
+    t_fit = out.reference_temperature
+
+    def residuals(p):
+        return np.array([(-p[0] * math.exp(-p[1] / R * (1 / t - 1 / t_fit)) * c
+                          / (1.0 + p[2] * math.exp(-p[3] / R * (1 / t - 1 / t_fit)) * c) - r) / (0.02 * abs(r))
+                         for t, fa, c, r in observed])
+
+    ref = least_squares(residuals, [0.02, 5e4, 0.003, -3e4], x_scale=[1e-2, 5e4, 1e-3, 3e4], xtol=1e-15,
+                        ftol=1e-15, gtol=1e-15)
+    theta = np.array(list(out.estimates.values()))
+    assert theta == pytest.approx(ref.x, rel=1e-5)
+    assert out.statistics.covariance == pytest.approx(np.linalg.inv(ref.jac.T @ ref.jac), rel=0.05)
+    lo, hi = out.statistics.intervals[3]
+    assert lo < true_heat < hi
+
+    from tubewright.models import load_case
+    from tubewright.optimizer.cli import main
+    from tubewright.optimizer.screening.uncertain import read_uncertain
+
+    out_dir = tmp_path / "o"
+    assert main(["fit", str(case), "--data", str(runs), "--out", str(out_dir), "--design", str(case)]) == 0
+    k_at_case_ref = theta[2] * math.exp(-theta[3] / R * (1 / T_REF - 1 / t_fit))
+    (term,) = load_case(out_dir / "fitted.toml").reactions[0].adsorption
+    assert (term.species, term.k_ref, term.heat) == ("A", pytest.approx(k_at_case_ref, rel=1e-12),
+                                                     pytest.approx(theta[3], rel=1e-12))
+    design = load_case(out_dir / "design-fitted.toml")
+    items = read_uncertain(design)
+    assert [u.path for u in items][2:] == ["chemistry.reactions.r1.adsorption.A.k_ref",
+                                           "chemistry.reactions.r1.adsorption.A.heat"]
+    at_mean = items[0].joint.case_values(np.zeros((1, 4)))
+    assert float(at_mean["chemistry.reactions.r1.adsorption.A.k_ref"][0]) == pytest.approx(k_at_case_ref, rel=1e-9)
+
+
+@pytest.mark.parametrize("entry,key,words", [
+    ("3", "fit.parameters.r1.adsorption.A", "must be true or a table"),
+    ({"heat": {"min": "0 kJ/mol", "max": "-10 kJ/mol"}}, "fit.parameters.r1.adsorption.A.heat", "must be below"),
+    ({"k_ref": {"within": 0.5}}, "fit.parameters.r1.adsorption.A.k_ref.within", ""),
+    ({"entropy": True}, "fit.parameters.r1.adsorption.A", "entropy"),
+])
+def test_bad_adsorption_entries_are_refused_with_their_key(tmp_path, entry, key, words):
+    from tubewright.models import load_case
+    from tubewright.models.errors import CaseError
+    from tubewright.models.parameters import si_unit
+    from tubewright.optimizer.fitting.spec import read_fit
+
+    data = liquid_case(fit={"parameters": {"r1": {"adsorption": {"A": entry}}}, "errors": {"conversion": SIGMA}})
+    data["chemistry"]["reactions"]["r1"]["adsorption"] = [{"species": "A", "k_ref": "0.001 m^3/mol"}]
+    (tmp_path / "lab.toml").write_text(toml_text(data))
+    case = load_case(tmp_path / "lab.toml")
+    with pytest.raises(CaseError) as info:
+        read_fit(case)
+    assert key in str(info.value) and words in str(info.value)
+    # the same term as an uncertain or swept parameter path
+    assert si_unit(case, "chemistry.reactions.r1.adsorption.A.k_ref", "f", "k") == "m^3/mol"
+    for path, words in (("chemistry.reactions.r1.adsorption.B.k_ref", "no adsorption term"),
+                        ("chemistry.reactions.r1.adsorption.A", "name the species and k_ref or heat"),
+                        ("chemistry.reactions.r1.k_ref.x", "nothing follows")):
+        with pytest.raises(CaseError, match=words):
+            si_unit(case, path, "f", "k")

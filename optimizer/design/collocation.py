@@ -78,6 +78,26 @@ def parametrised_case(model, case, spec, kinetics=None, shared=None):
     return replace(case, tube=tube, feed=feed, coolant=coolant, reactions=reactions, heat_transfer=heat)
 
 
+def replica_key(case) -> str:
+    """What the printed forms of a tube block depend on beyond its inputs and its constraint bounds: the case
+    with every quantity that ``parametrised_case`` turns into a Pyomo component (design quantities, wall
+    thickness, k_ref, E_a, U multiplier) and the feed flows (the bounds of the inlet constraints) set to one
+    neutral value. Blocks built by build_tube_model from cases with equal keys, at the same mesh and with
+    the same shared kinetics, differ only in input values and bounds: the bridge may compile them as
+    replicas (CompiledNLP(replicas=...)) instead of printing each."""
+    one = 1.0
+    coolant = case.coolant
+    coolant = replace(coolant, **{k: one for k in ("temperature", "pressure", "mass_flow")
+                                  if getattr(coolant, k) is not None})
+    neutral = replace(
+        case, source="", raw={},
+        tube=replace(case.tube, length=one, inner_diameter=one, count=1, wall_thickness=one),
+        feed=replace(case.feed, temperature=one, pressure=one, molar_flows=(0.0,) * len(case.feed.molar_flows)),
+        coolant=coolant, heat_transfer=replace(case.heat_transfer, multiplier=one),
+        reactions=tuple(replace(rx, k_ref=one, activation_energy=one) for rx in case.reactions))
+    return repr(neutral)
+
+
 def build_tube_model(case, spec, nfe: int = 40, ncp: int = 3, block=None, kinetics=None, shared=None):
     """The discretised Pyomo model (without objective or limits), built into ``block`` if given (a fit
     builds one block per run, a robust design one per scenario), else into a new model. Returns (model,

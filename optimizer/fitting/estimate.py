@@ -41,7 +41,8 @@ class FitOutcome:
     reference_temperature: float = math.nan
     parameters: list = field(default_factory=list)  # names
     estimates: dict = field(default_factory=dict)  # name -> value (k at T_fit, E_a)
-    case_values: dict = field(default_factory=dict)  # reaction -> {"k_ref", "activation_energy", "t_ref", "orders"}
+    # reaction -> {"k_ref", "activation_energy", "t_ref", "orders", "adsorption": {species: {"k_ref", "heat"}}}
+    case_values: dict = field(default_factory=dict)
     statistics: object = None  # FitStatistics
     lack_of_fit: dict | None = None
     residuals: list = field(default_factory=list)  # per observation: row, quantity, measured, fitted, sigma
@@ -71,8 +72,13 @@ def kinetics_at(case, spec, t_fit, values, backend):
         e_act = entry.get("activation_energy", rx.activation_energy)
         k_fit = entry.get("k_ref", arrhenius(NUMPY, rx.k_ref, rx.activation_energy, rx.t_ref, t_fit))
         orders = {s: entry.get(f"orders.{s}", o) for s, o in rx.orders.items()}
+        terms = []
+        for a in rx.adsorption:  # K at T_fit and the heat of adsorption, like k and E_a
+            heat = entry.get(f"adsorption.{a.species}.heat", a.heat)
+            k_ads = entry.get(f"adsorption.{a.species}.k_ref", arrhenius(NUMPY, a.k_ref, a.heat, rx.t_ref, t_fit))
+            terms.append(replace(a, k_ref=arrhenius(backend, k_ads, heat, t_fit, rx.t_ref), heat=heat))
         kinetics[j] = {"k_ref": arrhenius(backend, k_fit, e_act, t_fit, rx.t_ref), "activation_energy": e_act,
-                       "orders": orders}
+                       "orders": orders, "adsorption": tuple(terms)}
     return kinetics
 
 
@@ -91,6 +97,10 @@ def start_values(case, spec, t_fit) -> np.ndarray:
             values.append(rx.activation_energy)
         elif p.kind.startswith("orders."):
             values.append(rx.orders[p.kind.split(".", 1)[1]])
+        elif p.kind.startswith("adsorption."):
+            _, species, field = p.kind.split(".")
+            a = next(a for a in rx.adsorption if a.species == species)
+            values.append(a.heat if field == "heat" else arrhenius(NUMPY, a.k_ref, a.heat, rx.t_ref, t_fit))
         else:
             values.append(arrhenius(NUMPY, rx.k_ref, rx.activation_energy, rx.t_ref, t_fit))
     return np.asarray(values, dtype=float)
@@ -164,6 +174,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
         build_tube_model,
         collocation_value,
         initialise_from_simulation,
+        replica_key,
         state_scaling,
         tube_scale_factors,
     )
@@ -182,8 +193,8 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
                                 'relative as "2 %")')
     t_fit = spec.reference_temperature or arrhenius_reference_temperature([r.case.feed.temperature for r in runs])
     theta0 = start_values(base, spec, t_fit)
-    lower = np.array([p.lower * s if p.kind == "k_ref" else p.lower for p, s in zip(spec.parameters, theta0)])
-    upper = np.array([p.upper * s if p.kind == "k_ref" else p.upper for p, s in zip(spec.parameters, theta0)])
+    lower = np.array([p.lower * s if p.is_constant else p.lower for p, s in zip(spec.parameters, theta0)])
+    upper = np.array([p.upper * s if p.is_constant else p.upper for p, s in zip(spec.parameters, theta0)])
     names = [p.name for p in spec.parameters]
     out = FitOutcome(Status.FAILED, Reason.SOLVER_FAILED, "", t_fit, names)
 
@@ -212,7 +223,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
         return out
 
     # IPOPT works on ln k (rate constants span decades; k = exp(ln k) stays positive) and on E_a
-    is_k = np.array([p.kind == "k_ref" for p in spec.parameters])
+    is_k = np.array([p.is_constant for p in spec.parameters])
     internal0, low_i, up_i = (on_rate_constants(a, is_k, np.log) for a in (theta0, lower, upper))
     m = pyo.ConcreteModel(name="fit")
     m.theta = pyo.Var(range(len(names)), bounds=lambda m, i: (low_i[i], up_i[i]), initialize=lambda m, i: internal0[i])
@@ -243,7 +254,13 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
             terms.append(((expr - y) / sigma) ** 2)
             observations.append((run, name, y, sigma))
     m.objective = pyo.Objective(expr=0.5 * sum(terms))
-    nlp = CompiledNLP(m)
+    # runs that differ only in what their blocks hold as inputs or bounds share the printed forms
+    alike: dict = {}
+    for i, (run, sim) in enumerate(usable):
+        if sim is not None:
+            mesh = (int(nfe or run.case.numerics.finite_elements), int(ncp or run.case.numerics.collocation_points))
+            alike.setdefault((*mesh, replica_key(run.case)), []).append(m.run[i])
+    nlp = CompiledNLP(m, replicas=[blocks for blocks in alike.values() if len(blocks) > 1])
     for k, v in enumerate(m.theta.values()):
         x_scale[id(v)] = 1.0 / max(abs(internal0[k]), 1.0)
     scaling = (1.0 / max(pyo.value(m.objective), 1.0), np.array([x_scale.get(id(v), 1.0) for v in nlp.variables]),
@@ -256,7 +273,8 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
         solved = _more_starts(m, nlp, usable, spec, t_fit, (low_i, up_i, is_k), solved, opts, scaling, out)
     theta = np.array([pyo.value(v) for v in values])
     out.solver = {**solved.as_dict(), "variables": nlp.n, "ipopt_variables": nlp.times["ipopt_variables"],
-                  "forms": nlp.times["forms"], "runs": len(usable), **out.solver}
+                  "forms": nlp.times["forms"], "replicated_runs": nlp.times["replicated_blocks"],
+                  "compile_s": nlp.times["compile_s"], "runs": len(usable), **out.solver}
     if not solved.success:
         out.message = f"IPOPT did not converge: {solved.status_name} ({solved.message})"
         return out
@@ -280,11 +298,11 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
                             f"p = {out.lack_of_fit['p_value']:.2g}): the model misses systematic features of the data")
     out.estimates = dict(zip(names, map(float, theta)))
     kin = kinetics_at(base, spec, t_fit, theta, NUMPY)
-    out.case_values = {base.reactions[j].name: {"k_ref": float(e["k_ref"]),
-                                                "activation_energy": float(e["activation_energy"]),
-                                                "t_ref": float(base.reactions[j].t_ref),
-                                                "orders": {s: float(o) for s, o in e["orders"].items()}}
-                       for j, e in kin.items()}
+    out.case_values = {base.reactions[j].name: {
+        "k_ref": float(e["k_ref"]), "activation_energy": float(e["activation_energy"]),
+        "t_ref": float(base.reactions[j].t_ref), "orders": {s: float(o) for s, o in e["orders"].items()},
+        "adsorption": {a.species: {"k_ref": float(a.k_ref), "heat": float(a.heat)} for a in e["adsorption"]}}
+        for j, e in kin.items()}
     scale = math.sqrt(stats.residual_variance) if spec.error_model == "estimated" else 1.0
     out.residuals = [{"row": run.row, "quantity": name, "measured": y, "sigma": sigma * scale,
                       "fitted": y + r * sigma} for (run, name, y, sigma), r in zip(observations, residuals)]

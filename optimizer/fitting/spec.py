@@ -11,6 +11,9 @@ the reference temperature of the Arrhenius laws.
     k_ref = { within = 100 }          # free within start/100 .. start*100 (start: the case's value)
     activation_energy = { min = "40 kJ/mol", max = "200 kJ/mol" }   # or true: 0.2x .. 5x the start
     orders = { A = { min = 0.5, max = 2 } }                          # or A = true: start -+ 1 (>= 0)
+    adsorption = { A = { k_ref = { within = 100 }, heat = { min = "-150 kJ/mol", max = "0 kJ/mol" } } }
+                                      # a term of the reaction's LHHW denominator; A = true frees both
+                                      # (k_ref within 100x, heat start -+ 100 kJ/mol)
     [fit.errors]                      # one per measured quantity of the data
     conversion = 0.01                 # absolute (dimensionless), or
     outlet_temperature = "1.5 K"      # absolute with a unit (a temperature difference), or
@@ -21,7 +24,8 @@ the reference temperature of the Arrhenius laws.
     TC1 = "0.4 m"
 
 Fitted are k at the reference temperature (not k_ref at the case's own T_ref) and E_a: about the runs' own
-mean reciprocal temperature the two are nearly uncorrelated (optimizer.fitting.statistics)."""
+mean reciprocal temperature the two are nearly uncorrelated (optimizer.fitting.statistics). Adsorption
+constants likewise: K at the reference temperature, with the heat of adsorption as their energy."""
 
 from __future__ import annotations
 
@@ -32,8 +36,9 @@ from tubewright.models.errors import CaseError, suggest
 from tubewright.models.units import quantity
 from tubewright.optimizer.fitting.data import MEASURED
 
-KINDS = ("k_ref", "activation_energy", "orders")
+KINDS = ("k_ref", "activation_energy", "orders", "adsorption")
 DEFAULT_WITHIN = 100.0
+DEFAULT_HEAT_SPAN = 1.0e5  # J/mol either side of the start of a free heat of adsorption
 ERROR_DIMENSIONS = {"outlet_temperature": "temperature_difference", "outlet_flow": "molar_flow",
                     "axial_temperature": "temperature_difference"}
 
@@ -42,7 +47,13 @@ ERROR_DIMENSIONS = {"outlet_temperature": "temperature_difference", "outlet_flow
 class FitParameter:
     reaction: str
     index: int  # of the reaction in the case
-    kind: str  # "k_ref" (k at the reference temperature), "activation_energy" or "orders.SPECIES"
+    kind: str  # "k_ref" (k at the reference temperature), "activation_energy", "orders.SPECIES",
+    #            "adsorption.SPECIES.k_ref" (K at the reference temperature) or "adsorption.SPECIES.heat"
+
+    @property
+    def is_constant(self) -> bool:
+        """A rate or adsorption constant: fitted on a log scale, as a factor range of its start."""
+        return self.kind.endswith("k_ref")
     lower: float
     upper: float
 
@@ -85,11 +96,14 @@ def read_fit(case) -> FitSpec:
                 continue
             if kind == "orders":
                 params.extend(_orders(rt, rname, j, rx))
+            elif kind == "adsorption":
+                params.extend(_adsorption(rt, rname, j, rx))
             else:
                 params.append(_parameter(rt, kind, rname, j, rx))
         rt.finish()
     if not params:
-        raise CaseError(source, "fit.parameters", "names no free parameter (k_ref or activation_energy of a reaction)")
+        raise CaseError(source, "fit.parameters", "names no free parameter (k_ref, activation_energy, orders or "
+                        "adsorption of a reaction)")
     errors = {}
     et = t.sub("errors")
     for kind, value in et.data.items():
@@ -117,9 +131,7 @@ def _parameter(rt: Table, kind: str, rname: str, j: int, rx) -> FitParameter:
         raise CaseError(rt.source, key, "must be true or a table ({ within = 100 } for k_ref, { min = ..., "
                         "max = ... } for activation_energy)")
     if kind == "k_ref":
-        sub = Table(spec, rt.source, key, {"within"})
-        within = sub.number("within", default=DEFAULT_WITHIN, low=1.0 + 1e-9, high=1e12)
-        sub.finish()
+        within = _within(rt, kind)
         return FitParameter(rname, j, kind, 1.0 / within, within)  # factors of the start value
     sub = Table(spec, rt.source, key, {"min", "max"})
     start = rx.activation_energy
@@ -129,6 +141,57 @@ def _parameter(rt: Table, kind: str, rname: str, j: int, rx) -> FitParameter:
     if not lo < hi:
         raise CaseError(rt.source, key, f"min ({lo:g} J/mol) must be below max ({hi:g} J/mol)")
     return FitParameter(rname, j, kind, lo, hi)
+
+
+def _adsorption(rt: Table, rname: str, j: int, rx) -> list[FitParameter]:
+    at = rt.sub("adsorption")
+    terms = {a.species: a for a in rx.adsorption}
+    out = []
+    for species, spec in at.data.items():
+        key = at.key(species)
+        if species not in terms:
+            raise CaseError(rt.source, key, f"the reaction has no adsorption term for {species}; its terms: "
+                            f"{', '.join(terms) or 'none'} (give it one in the case's adsorption list to free it)")
+        if spec is True:
+            spec = {"k_ref": True, "heat": True}
+        if not isinstance(spec, dict):
+            raise CaseError(rt.source, key, "must be true or a table { k_ref = { within = 100 }, heat = { min = "
+                            '"-150 kJ/mol", max = "0 kJ/mol" } }')
+        sub = Table(spec, rt.source, key, {"k_ref", "heat"})
+        if sub.has("k_ref"):
+            within = _within(sub, "k_ref")
+            out.append(FitParameter(rname, j, f"adsorption.{species}.k_ref", 1.0 / within, within))
+        if sub.has("heat"):
+            heat = sub.raw("heat")
+            heat = {} if heat is True else heat
+            if not isinstance(heat, dict):
+                raise CaseError(rt.source, sub.key("heat"), 'must be true or a table { min = ..., max = ... }')
+            ht = Table(heat, rt.source, sub.key("heat"), {"min", "max"})
+            start = terms[species].heat
+            lo = ht.quantity("min", "molar_energy", default=start - DEFAULT_HEAT_SPAN, positive=False,
+                             minimum=-1e8, maximum=1e8)
+            hi = ht.quantity("max", "molar_energy", default=start + DEFAULT_HEAT_SPAN, positive=False,
+                             minimum=-1e8, maximum=1e8)
+            ht.finish()
+            if not lo < hi:
+                raise CaseError(rt.source, sub.key("heat"), f"min ({lo:g} J/mol) must be below max ({hi:g} J/mol)")
+            out.append(FitParameter(rname, j, f"adsorption.{species}.heat", lo, hi))
+        if not sub.data:
+            raise CaseError(rt.source, key, "frees nothing: give k_ref, heat or both")
+        sub.finish()
+    return out
+
+
+def _within(t: Table, key: str) -> float:
+    """The factor range { within = F } of a constant fitted on a log scale (true: the default)."""
+    spec = t.raw(key)
+    spec = {} if spec is True else spec
+    if not isinstance(spec, dict):
+        raise CaseError(t.source, t.key(key), "must be true or a table { within = 100 }")
+    sub = Table(spec, t.source, t.key(key), {"within"})
+    within = sub.number("within", default=DEFAULT_WITHIN, low=1.0 + 1e-9, high=1e12)
+    sub.finish()
+    return within
 
 
 def _orders(rt: Table, rname: str, j: int, rx) -> list[FitParameter]:

@@ -1,5 +1,5 @@
 """The kinetics fit for people and files: the terminal table, the parity and residual plot, and the fitted
-case (the fitting case by include, the fitted k_ref and E_a on top)."""
+case (the fitting case by include, the fitted kinetic parameters on top)."""
 
 from __future__ import annotations
 
@@ -10,7 +10,7 @@ from tubewright.optimizer.output.casewriter import toml_text, toml_value
 
 
 def _shown(name: str, value: float) -> str:
-    if name.endswith("activation_energy"):
+    if name.endswith(("activation_energy", ".heat")):
         return f"{value / 1000:.5g} kJ/mol"
     return f"{value:.5g}"
 
@@ -30,7 +30,8 @@ def fit_lines(out) -> list[str]:
     level = f"{100 * st.level:g} % interval"
     lines.append(f"  {'parameter':<{width}}{'estimate':>16}{'std. error':>16}   {level}")
     for name, est, se, (lo, hi) in zip(st.names, st.estimates, st.standard_errors, st.intervals):
-        label = f"{name} (k at {t_fit:.1f} K)" if name.endswith("k_ref") else name
+        label = (f"{name} ({'K' if '.adsorption.' in name else 'k'} at {t_fit:.1f} K)" if name.endswith("k_ref")
+                 else name)
         lines.append(f"  {label:<{width}}{_shown(name, est):>16}{_shown(name, se):>16}   "
                      f"[{_shown(name, lo)}, {_shown(name, hi)}]")
     lines.append("  correlation:")
@@ -51,6 +52,8 @@ def fit_lines(out) -> list[str]:
                  f"{st.identifiability['condition_number']:.3g}")
     lines.append("  in the case's own terms: " + "; ".join(
         f"{r}: k_ref = {v['k_ref']:.6g} at {v['t_ref']:.2f} K, E_a = {v['activation_energy'] / 1000:.6g} kJ/mol"
+        + "".join(f", K_{s} = {a['k_ref']:.6g}, heat of adsorption {a['heat'] / 1000:.6g} kJ/mol"
+                  for s, a in v.get("adsorption", {}).items())
         for r, v in out.case_values.items()))
     for w in out.warnings:
         lines.append(f"  WARNING: {w}")
@@ -120,15 +123,22 @@ def write_design_case(path: Path, design, out) -> Path:
         raise CaseError(design.source, "chemistry.reactions", f"has no reaction {', '.join(missing)} (fitted in the "
                         "laboratory case): the design case for --design needs the same reactions")
     st = out.statistics
+
+    def at_design(value, energy, v, rx):  # a constant at the lab case's T_ref, carried to the design case's
+        return arrhenius(NUMPY, value, energy, v["t_ref"], rx.t_ref)
+
     reactions = {}
     for name, v in out.case_values.items():
         rx = next(r for r in design.reactions if r.name == name)
-        # the design case's own T_ref: k_ref there follows from k(T_fit) and E_a
-        k_fit = out.estimates.get(f"{name}.k_ref")
-        k_ref = v["k_ref"] if k_fit is None else arrhenius(NUMPY, k_fit, v["activation_energy"],
-                                                             out.reference_temperature, rx.t_ref)
-        reactions[name] = _reaction_table(design, name, k_ref, v)
-    paths = [f"chemistry.reactions.{n.rsplit('.', 1)[0]}.{n.rsplit('.', 1)[1]}" for n in st.names]
+        if {a.species for a in rx.adsorption} != set(v.get("adsorption", {})):
+            raise CaseError(design.source, f"chemistry.reactions.{name}.adsorption", "must name the same adsorption "
+                            f"species as the laboratory case ({', '.join(v.get('adsorption', {})) or 'none'}) to "
+                            "take its fitted kinetics")
+        terms = {s: {**a, "k_ref": float(at_design(a["k_ref"], a["heat"], v, rx))}
+                 for s, a in v.get("adsorption", {}).items()}
+        k_ref = at_design(v["k_ref"], v["activation_energy"], v, rx)
+        reactions[name] = _reaction_table(design, name, k_ref, {**v, "adsorption": terms})
+    paths = [f"chemistry.reactions.{n}" for n in st.names]
     block = {"distribution": "multivariate_normal", "parameters": paths,
              "mean": [float(x) for x in st.estimates], "covariance": [[float(c) for c in row] for row in st.covariance]}
     if any(p.endswith(".k_ref") for p in paths):
@@ -145,8 +155,9 @@ def write_design_case(path: Path, design, out) -> Path:
 
 
 def _reaction_table(case, name: str, k_ref: float, fitted: dict) -> dict:
-    """k_ref (in the unit of the fitted orders), E_a and the orders of one fitted reaction, as case values."""
-    from tubewright.models.reactions import rate_units  # the unit a case file reads k_ref in
+    """k_ref (in the unit of the fitted orders), E_a, the orders and the adsorption terms of one fitted reaction,
+    as case values."""
+    from tubewright.models.reactions import adsorption_units, rate_units  # the units a case file reads
 
     rx = next(r for r in case.reactions if r.name == name)
     orders = {**rx.orders, **fitted.get("orders", {})}
@@ -154,4 +165,10 @@ def _reaction_table(case, name: str, k_ref: float, fitted: dict) -> dict:
              "activation_energy": f"{float(fitted['activation_energy'])!r} J/mol"}
     if orders != dict(rx.orders):
         table["orders"] = {s: float(o) for s, o in orders.items()}
+    fitted_terms = fitted.get("adsorption", {})
+    if fitted_terms:  # the whole list, as the case reads it (an included list is replaced, not merged)
+        table["adsorption"] = [{"species": a.species, "k_ref": f"{float(fitted_terms[a.species]['k_ref'])!r} "
+                                                             f"{adsorption_units(rx.driving, a.exponent)}",
+                                "heat": f"{float(fitted_terms[a.species]['heat'])!r} J/mol", "exponent": a.exponent}
+                               for a in rx.adsorption]
     return table

@@ -22,7 +22,8 @@ Method: sampling in decorrelated coordinates. The set becomes one independent st
 parameter (NAME[1], NAME[2], ...), theta = mean + L z with L the Cholesky factor of the covariance, and the
 factors form one group named NAME, so Morris and Sobol rank the correlated set as a whole: individual
 indices of dependent inputs are not defined without further choices, the group's are. A k_ref entry given at
-a reference temperature is carried to the case's own T_ref through the sampled E_a of the same reaction.
+a reference temperature is carried to the case's own T_ref through the sampled E_a of the same reaction (an
+adsorption constant's through the sampled heat of adsorption of the same term).
 """
 
 from __future__ import annotations
@@ -32,7 +33,7 @@ from dataclasses import dataclass
 import numpy as np
 from tubewright.models.casefile import Table
 from tubewright.models.errors import CaseError
-from tubewright.models.parameters import base_value, si_unit
+from tubewright.models.parameters import base_value, si_unit, temperature_law
 from tubewright.models.units import to_si
 
 ARGUMENTS = {
@@ -53,7 +54,7 @@ class CorrelatedSet:
     mean: np.ndarray
     cholesky: np.ndarray
     reference_temperature: float | None
-    rereference: tuple = ()  # (k_ref path, the case's T_ref, E_a path in the set or the case's E_a)
+    rereference: tuple = ()  # (k_ref path, the case's T_ref, its energy's path in the set or the case's value)
 
     def case_values(self, z: np.ndarray) -> dict:
         """Standard-normal coordinates z (samples x parameters) -> {path: SI values}."""
@@ -189,10 +190,10 @@ def _correlated(case, name, spec) -> list[Uncertain]:
     rereference = []
     if t_ref is not None:
         for p in paths:
-            if p.endswith(".k_ref"):
-                rx = next(r for r in case.reactions if r.name == p.split(".")[2])
-                e_path = p[: -len("k_ref")] + "activation_energy"
-                rereference.append((p, rx.t_ref, e_path if e_path in paths else rx.activation_energy))
+            law = temperature_law(case, p)
+            if law is not None:
+                case_t_ref, e_path, energy = law
+                rereference.append((p, case_t_ref, e_path if e_path in paths else energy))
     joint = CorrelatedSet(name, tuple(paths), mean, chol, t_ref, tuple(rereference))
     return [Uncertain(f"{name}[{k + 1}]", p, "normal", {"mean": 0.0, "std": 1.0}, False, name,
                       float(base_value(case, p)), joint) for k, p in enumerate(paths)]

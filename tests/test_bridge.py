@@ -227,3 +227,33 @@ def test_a_replica_whose_numbers_differ_is_printed():
     assert nlp.times["replicated_blocks"] == 1
     out = nlp.solve()
     assert out.success and pyo.value(3.0 * m.b[2].x * m.b[2].y) == pytest.approx(1.0, rel=1e-8)
+
+
+def test_paused_collection_restores_the_collector_and_leaves_garbage_collectable():
+    import gc
+    import weakref
+
+    from tubewright.optimizer.nlp.garbage_collection import paused_collection
+
+    class Node:
+        pass
+
+    assert gc.isenabled()
+    with paused_collection():
+        assert not gc.isenabled()
+        a, b = Node(), Node()
+        a.other, b.other = b, a  # a reference cycle: only the cyclic collector frees it
+        alive = weakref.ref(a)
+    assert gc.isenabled() and gc.get_freeze_count() == 0
+    del a, b
+    gc.collect()
+    assert alive() is None
+    # a caller's frozen objects stay frozen
+    gc.freeze()
+    try:
+        frozen = gc.get_freeze_count()
+        with paused_collection():
+            Node()
+        assert gc.get_freeze_count() == frozen
+    finally:
+        gc.unfreeze()

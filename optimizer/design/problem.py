@@ -30,6 +30,7 @@ from tubewright.optimizer.design.goals import GOALS
 from tubewright.optimizer.design.outcome import LimitRow
 from tubewright.optimizer.design.spec import DESIGN_KEYS, read_design
 from tubewright.optimizer.nlp.bridge import CompiledNLP
+from tubewright.optimizer.nlp.garbage_collection import paused_collection
 
 
 def design_case(case, values: dict):
@@ -83,6 +84,10 @@ class DesignProblem:
     def build(self, start: dict | None = None, modify=None):
         """Build, initialise from a simulation of the starting design, add goal and limits, compile.
         ``modify(model)`` may change the model (deactivate equations, free profiles) before compilation."""
+        with paused_collection():
+            self._build(start, modify)
+
+    def _build(self, start, modify):
         t0 = time.perf_counter()
         self.say(f"building the collocation model ({self.nfe} elements x {self.ncp} points)")
         start_case = design_case(self.case, start or self.start_values())

@@ -180,6 +180,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     )
     from tubewright.optimizer.design.spec import DesignSpec
     from tubewright.optimizer.nlp.bridge import CompiledNLP
+    from tubewright.optimizer.nlp.garbage_collection import paused_collection
 
     t0 = time.perf_counter()
     base = load_case(case_path)
@@ -225,42 +226,44 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     # IPOPT works on ln k (rate constants span decades; k = exp(ln k) stays positive) and on E_a
     is_k = np.array([p.is_constant for p in spec.parameters])
     internal0, low_i, up_i = (on_rate_constants(a, is_k, np.log) for a in (theta0, lower, upper))
-    m = pyo.ConcreteModel(name="fit")
-    m.theta = pyo.Var(range(len(names)), bounds=lambda m, i: (low_i[i], up_i[i]), initialize=lambda m, i: internal0[i])
-    values = [pyo.exp(m.theta[k]) if is_k[k] else m.theta[k] for k in range(len(names))]
-    m.run = pyo.Block(range(len(usable)))
-    observations, terms, x_scale, g_scale = [], [], {}, {}
-    for i, (run, sim) in enumerate(usable):
-        b = m.run[i]
-        kinetics = kinetics_at(run.case, spec, t_fit, values, pyomo_backend())
-        if sim is not None:  # outlet quantities: the run's tube as a collocation block
-            nfe_i = int(nfe or run.case.numerics.finite_elements)
-            ncp_i = int(ncp or run.case.numerics.collocation_points)
-            _, pcase = build_tube_model(run.case, DesignSpec(), nfe_i, ncp_i, block=b, kinetics=kinetics)
-            initialise_from_simulation(b, run.case, sim)
-            var_s, con_s = tube_scale_factors(b, run.case, state_scaling(b, run.case, sim))
-            x_scale.update(var_s)
-            g_scale.update(con_s)
-            f_in = [b.F[s, 0.0] for s in run.case.names]
-            f_out = [b.F[s, 1.0] for s in run.case.names]
-        for name, y in run.measured.items():
-            sigma = sigma_of(spec, name, y)
-            if is_rate(name):
-                expr = predicted_rate(pyomo_backend(), with_kinetics(run.case, kinetics), name)
-            else:
-                expr = predicted(run.case, name, f_in, f_out, b.T[1.0], pcase.tube.count,
-                                 lambda tc, b=b, L=run.case.tube.length: collocation_value(
-                                     b, b.T, spec.thermocouples[tc] / L))
-            terms.append(((expr - y) / sigma) ** 2)
-            observations.append((run, name, y, sigma))
-    m.objective = pyo.Objective(expr=0.5 * sum(terms))
-    # runs that differ only in what their blocks hold as inputs or bounds share the printed forms
-    alike: dict = {}
-    for i, (run, sim) in enumerate(usable):
-        if sim is not None:
-            mesh = (int(nfe or run.case.numerics.finite_elements), int(ncp or run.case.numerics.collocation_points))
-            alike.setdefault((*mesh, replica_key(run.case)), []).append(m.run[i])
-    nlp = CompiledNLP(m, replicas=[blocks for blocks in alike.values() if len(blocks) > 1])
+    with paused_collection():  # the run blocks and their compilation: see nlp.garbage_collection
+        m = pyo.ConcreteModel(name="fit")
+        m.theta = pyo.Var(range(len(names)), bounds=lambda m, i: (low_i[i], up_i[i]),
+                          initialize=lambda m, i: internal0[i])
+        values = [pyo.exp(m.theta[k]) if is_k[k] else m.theta[k] for k in range(len(names))]
+        m.run = pyo.Block(range(len(usable)))
+        observations, terms, x_scale, g_scale = [], [], {}, {}
+        for i, (run, sim) in enumerate(usable):
+            b = m.run[i]
+            kinetics = kinetics_at(run.case, spec, t_fit, values, pyomo_backend())
+            if sim is not None:  # outlet quantities: the run's tube as a collocation block
+                nfe_i = int(nfe or run.case.numerics.finite_elements)
+                ncp_i = int(ncp or run.case.numerics.collocation_points)
+                _, pcase = build_tube_model(run.case, DesignSpec(), nfe_i, ncp_i, block=b, kinetics=kinetics)
+                initialise_from_simulation(b, run.case, sim)
+                var_s, con_s = tube_scale_factors(b, run.case, state_scaling(b, run.case, sim))
+                x_scale.update(var_s)
+                g_scale.update(con_s)
+                f_in = [b.F[s, 0.0] for s in run.case.names]
+                f_out = [b.F[s, 1.0] for s in run.case.names]
+            for name, y in run.measured.items():
+                sigma = sigma_of(spec, name, y)
+                if is_rate(name):
+                    expr = predicted_rate(pyomo_backend(), with_kinetics(run.case, kinetics), name)
+                else:
+                    expr = predicted(run.case, name, f_in, f_out, b.T[1.0], pcase.tube.count,
+                                     lambda tc, b=b, L=run.case.tube.length: collocation_value(
+                                         b, b.T, spec.thermocouples[tc] / L))
+                terms.append(((expr - y) / sigma) ** 2)
+                observations.append((run, name, y, sigma))
+        m.objective = pyo.Objective(expr=0.5 * sum(terms))
+        # runs that differ only in what their blocks hold as inputs or bounds share the printed forms
+        alike: dict = {}
+        for i, (run, sim) in enumerate(usable):
+            if sim is not None:
+                mesh = (int(nfe or run.case.numerics.finite_elements), int(ncp or run.case.numerics.collocation_points))
+                alike.setdefault((*mesh, replica_key(run.case)), []).append(m.run[i])
+        nlp = CompiledNLP(m, replicas=[blocks for blocks in alike.values() if len(blocks) > 1])
     for k, v in enumerate(m.theta.values()):
         x_scale[id(v)] = 1.0 / max(abs(internal0[k]), 1.0)
     scaling = (1.0 / max(pyo.value(m.objective), 1.0), np.array([x_scale.get(id(v), 1.0) for v in nlp.variables]),

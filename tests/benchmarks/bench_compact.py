@@ -17,6 +17,8 @@ import sys
 import time
 from pathlib import Path
 
+import numpy as np
+
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "tests"))
 
@@ -104,16 +106,25 @@ def tubewright_profile(nfe: int) -> tuple[float, float, int, dict]:
 
 def main():
     sizes = [int(a) for a in sys.argv[1:]] or [50, 100, 200, 400]
+    pairs = 5  # interleaved pairs per size: the machine's speed drifts by tens of per cent within minutes
     compact_casadi(10), tubewright_profile(10)  # warm-up: imports and first-call costs on both sides
     print(f"{'elements':>9}{'compact vars':>14}{'compact s':>11}{'tw vars*':>9}{'tw s':>8}{'ratio':>8}"
-          f"{'  build / compile / IPOPT / callbacks s':>40}{'optimum difference':>20}")
+          f"{'  (quartiles)':>14}{'  build / compile / IPOPT / callbacks s':>40}{'optimum difference':>20}")
     for nfe in sizes:
-        c_s, c_opt, c_n = compact_casadi(nfe)
-        t_s, t_opt, t_n, parts = tubewright_profile(nfe)
+        runs = []
+        for _ in range(pairs):
+            c_s, c_opt, c_n = compact_casadi(nfe)
+            t_s, t_opt, t_n, parts = tubewright_profile(nfe)
+            runs.append((t_s / c_s, c_s, t_s, parts))
+        runs.sort(key=lambda r: r[0])
+        ratio, c_s, t_s, parts = runs[len(runs) // 2]  # the median pair
+        q1, q3 = np.percentile([r[0] for r in runs], [25, 75])
         detail = (f"{parts['build_s'] - parts['compile_s']:.2f} / {parts['compile_s']:.2f} / "
                   f"{parts['ipopt_s']:.2f} / {parts['callbacks_s']:.2f}")
-        print(f"{nfe:>9}{c_n:>14}{c_s:>11.2f}{t_n:>9}{t_s:>8.2f}{t_s / c_s:>8.2f}{detail:>40}{t_opt - c_opt:>20.2e}")
-    print("* the variables IPOPT sees after the bridge's presolve (the Pyomo model has twice as many)")
+        print(f"{nfe:>9}{c_n:>14}{c_s:>11.2f}{t_n:>9}{t_s:>8.2f}{ratio:>8.2f}{f'  ({q1:.2f}-{q3:.2f})':>14}"
+              f"{detail:>40}{t_opt - c_opt:>20.2e}")
+    print("* the variables IPOPT sees after the bridge's presolve (the Pyomo model has twice as many); the median "
+          f"of {pairs} interleaved pairs")
 
 
 if __name__ == "__main__":

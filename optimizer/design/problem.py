@@ -83,9 +83,10 @@ class DesignProblem:
 
     def build(self, start: dict | None = None, modify=None):
         """Build, initialise from a simulation of the starting design, add goal and limits, compile.
-        ``modify(model)`` may change the model (deactivate equations, free profiles) before compilation."""
+        ``modify(model)`` may change the model (deactivate equations, free profiles) before compilation.
+        Returns the problem."""
         with paused_collection():
-            self._build(start, modify)
+            return self._build(start, modify)
 
     def _build(self, start, modify):
         t0 = time.perf_counter()

@@ -199,6 +199,8 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     names = [p.name for p in spec.parameters]
     out = FitOutcome(Status.FAILED, Reason.SOLVER_FAILED, "", t_fit, names)
 
+    phases = {}  # seconds per phase, in out.solver["phases_s"]
+    t_phase = time.perf_counter()
     # the runs that the model can simulate at the start; the others are listed, not fitted
     usable = []
     for run in runs:
@@ -226,6 +228,8 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     # IPOPT works on ln k (rate constants span decades; k = exp(ln k) stays positive) and on E_a
     is_k = np.array([p.is_constant for p in spec.parameters])
     internal0, low_i, up_i = (on_rate_constants(a, is_k, np.log) for a in (theta0, lower, upper))
+    phases["start_simulations"] = time.perf_counter() - t_phase
+    t_phase = time.perf_counter()
     with paused_collection():  # the run blocks and their compilation: see nlp.garbage_collection
         m = pyo.ConcreteModel(name="fit")
         m.theta = pyo.Var(range(len(names)), bounds=lambda m, i: (low_i[i], up_i[i]),
@@ -271,6 +275,8 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     num = base.numerics
     opts = {"max_iter": 500, "tol": 1e-9, "mumps_pivtol": 1e-4, "mumps_pivot_order": num.mumps_pivot_order,
             "mumps_scaling": num.mumps_scaling, "mumps_permuting_scaling": num.mumps_permuting_scaling}
+    phases["build_and_compile"] = time.perf_counter() - t_phase
+    t_phase = time.perf_counter()
     solved = nlp.solve(options=opts, scaling=scaling)
     if spec.starts > 1:
         solved = _more_starts(m, nlp, usable, spec, t_fit, (low_i, up_i, is_k), solved, opts, scaling, out)
@@ -286,7 +292,11 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
         out.warnings.append(f"{', '.join(at_bound)} at a bound of [fit.parameters]: the intervals do not hold there; "
                             "widen the bounds or check the data")
 
+    phases["estimation"] = time.perf_counter() - t_phase
+    t_phase = time.perf_counter()
     residuals, jac, sim_failed = _residuals_and_jacobian(usable, observations, spec, t_fit, theta)
+    phases["statistics_jacobian"] = time.perf_counter() - t_phase
+    out.solver["phases_s"] = phases
     if sim_failed:
         out.message = f"the adaptive integrator could not simulate run {sim_failed} at or near the estimate"
         out.reason = Reason.RUN_NOT_SIMULATED

@@ -60,7 +60,7 @@ def least_squares_fit(runs_path: Path):
     runs = read_runs(runs_path, LAB)
     t_fit = arrhenius_reference_temperature([r.case.feed.temperature for r in runs])
     theta0 = estimate.start_values(base, spec, t_fit)
-    is_k = np.array([p.kind == "k_ref" for p in spec.parameters])
+    is_k = np.array([p.is_constant for p in spec.parameters])
 
     def residuals(internal):
         values = estimate.on_rate_constants(internal, is_k, np.exp)
@@ -80,8 +80,8 @@ def least_squares_fit(runs_path: Path):
 
 
 def main():
-    print(f"{'runs':>5}{'fit s':>8}{'compile s':>11}{'forms':>7}{'IPOPT it':>10}{'least_sq s':>12}{'nfev':>6}"
-          f"{'ratio':>8}   largest relative difference of the estimates")
+    print(f"{'runs':>5}{'fit s':>8}{'compile s':>11}{'forms':>7}{'replicas':>9}{'IPOPT it':>10}{'least_sq s':>12}"
+          f"{'nfev':>6}{'ratio':>8}   largest relative difference of the estimates; fit phases (s)")
     with tempfile.TemporaryDirectory() as tmp:
         for n in (5, 10, 20):
             runs = Path(tmp) / f"runs{n}.csv"
@@ -95,8 +95,9 @@ def main():
             theta = np.array(list(out.estimates.values()))
             diff = float(np.max(np.abs(theta - theta_ls) / np.abs(theta_ls)))
             s = out.solver
-            print(f"{n:>5}{t_fit:>8.2f}{s['times_s']['compile_s']:>11.2f}{s['forms']:>7}{s['iterations']:>10}"
-                  f"{t_ls:>12.2f}{nfev:>6}{t_ls / t_fit:>8.2f}   {diff:.1e}")
+            phases = ", ".join(f"{k} {v:.2f}" for k, v in s["phases_s"].items())
+            print(f"{n:>5}{t_fit:>8.2f}{s['times_s']['compile_s']:>11.2f}{s['forms']:>7}{s['replicated_runs']:>9}"
+                  f"{s['iterations']:>10}{t_ls:>12.2f}{nfev:>6}{t_ls / t_fit:>8.2f}   {diff:.1e}; {phases}")
 
 
 if __name__ == "__main__":

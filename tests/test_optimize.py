@@ -82,6 +82,28 @@ def test_demo_multiplier_against_finite_difference(demo_dir):
     assert row.binding and row.multiplier == pytest.approx(fd, rel=0.03)
 
 
+def test_a_runaway_start_is_moved_to_the_cooler_bounds(demo_dir):
+    # With the lumped wall data of the 2-D model the demo's default start runs away in simulation (hot spot at
+    # the ceiling); IPOPT started there ended in "restoration failed". The optimiser starts instead from the
+    # coolant at its lower bound and reaches the optimum found from that start given by hand.
+    from tubewright.models import load_case
+    from tubewright.models.outcomes import Reason
+    from tubewright.models.simulator import simulate
+    from tubewright.optimizer.design.problem import design_case
+
+    overrides = {"heat_transfer.inside": "radial_lumped", "limits.max_temperature": "615 K"}
+    case = load_case(demo_dir / "oxidation-design.toml", overrides)
+    problem = DesignProblem(case)
+    assert simulate(design_case(case, problem.start_values())).reason_code == Reason.TEMPERATURE_CEILING
+    res = optimise(case)
+    assert res.ok, res.reason
+    assert any("runs away in simulation" in n and "design.coolant_temperature" in n for n in res.notes)
+    by_hand = optimise(load_case(demo_dir / "oxidation-design.toml",
+                                 {**overrides, "design.coolant_temperature.start": "570 K"}))
+    assert by_hand.ok and not any("runs away" in n for n in by_hand.notes)
+    assert res.objective == pytest.approx(by_hand.objective, rel=1e-6)
+
+
 def test_demo_optimum_verified_and_collocation_matches_integrator(demo_dir):
     from tubewright.models import load_case
 

@@ -55,6 +55,7 @@ def optimise(case, nfe=None, ncp=None, progress=None, scenarios=None, start=None
         sim = simulate(design_case(case, problem.start_values()), checks=False)
         return OptimizationResult(Status.FAILED, str(err), spec.goal, None, simulation=sim, reason_code=err.code,
                                   hint="start from a design that can be simulated: set design.*.start")
+    notes += problem.start_notes
     problem.say("solving with IPOPT")
     outcome = problem.solve_nlp()
     solves = [outcome]

@@ -66,6 +66,7 @@ class DesignProblem:
         self.model = None
         self.nlp = None
         self.tightened = {}  # limit -> NLP bound moved inward so that the limit holds between the points
+        self.start_notes: list = []  # set by build: a starting design moved away from a runaway
         self.progress = progress  # optional: progress(text) and progress.iteration(k, objective, infeasibility)
         self.scenarios = list(scenarios or [])  # [{parameter path: SI value}]: every limit holds in each
         self.scenario_blocks = []  # (block, scenario case, limit components, state scales)
@@ -81,6 +82,29 @@ class DesignProblem:
         values.update(self.spec.fixed)
         return values
 
+    COOLER = ("coolant_temperature", "coolant_pressure", "inner_diameter", "inlet_temperature")
+
+    def _cooler_start(self, values, case, sim):
+        """A starting design that runs away in simulation gives IPOPT a runaway profile to start from, from
+        which it rarely recovers ("restoration failed"). Move the free quantities that cool the tube to their
+        lower bounds, one more at a time in the order of COOLER (coolant temperature or steam pressure, tube
+        diameter, feed temperature), and start from the first design that does not run away; the move is
+        noted. Returns (values, case, simulation), the given ones when no such design is found."""
+        trial, moved = dict(values), []
+        for name in self.COOLER:
+            fv = self.spec.free.get(name)
+            if fv is None or trial[name] <= fv.lower:
+                continue
+            trial[name] = fv.lower
+            moved.append(f"design.{name}")
+            trial_case = design_case(self.case, trial)
+            trial_sim = simulate(trial_case, checks=False)
+            if trial_sim.columns and trial_sim.reason_code != Reason.TEMPERATURE_CEILING:
+                self.start_notes.append(f"the starting design runs away in simulation ({sim.reason}): started "
+                                        f"from {', '.join(moved)} at the lower bound instead")
+                return trial, trial_case, trial_sim
+        return values, case, sim
+
     def build(self, start: dict | None = None, modify=None):
         """Build, initialise from a simulation of the starting design, add goal and limits, compile.
         ``modify(model)`` may change the model (deactivate equations, free profiles) before compilation.
@@ -91,20 +115,24 @@ class DesignProblem:
     def _build(self, start, modify):
         t0 = time.perf_counter()
         self.say(f"building the collocation model ({self.nfe} elements x {self.ncp} points)")
-        start_case = design_case(self.case, start or self.start_values())
+        chosen = {**self.start_values(), **(start or {})}
+        start_case = design_case(self.case, chosen)
         sim = simulate(start_case, checks=False)
+        self.start_notes = []
+        if start is None and sim.reason_code == Reason.TEMPERATURE_CEILING:
+            chosen, start_case, sim = self._cooler_start(chosen, start_case, sim)
         if not sim.columns:
             raise ComputationFailed(Reason.START_NOT_SIMULATED,
                                     f"the starting design cannot be simulated: {sim.reason}")
         m, pcase = build_tube_model(self.case, self.spec, self.nfe, self.ncp)
         for name, comp in m.design.items():
             if name in self.spec.free:
-                comp.set_value(start[name] if start and name in start else self.spec.free[name].start)
+                comp.set_value(chosen[name])
         initialise_from_simulation(m, start_case, sim)
         self.model, self.pcase = m, pcase
         m.figures = self._figures(m, pcase)
         self.limit_components = self._limits(m)
-        self._scenario_blocks(m, start or self.start_values(), sim)
+        self._scenario_blocks(m, chosen, sim)
         if self.case.product:  # the epsilon constraint of Pareto fronts; -1e6 leaves it slack
             m.pareto_eps = pyo.Param(mutable=True, initialize=-1.0e6)
             m.pareto_cut = pyo.Constraint(expr=m.figures["product_selectivity"] >= m.pareto_eps)

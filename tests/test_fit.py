@@ -379,6 +379,14 @@ def test_adsorption_constants_are_fitted_and_handed_over(tmp_path):
                                            "chemistry.reactions.r1.adsorption.A.heat"]
     at_mean = items[0].joint.case_values(np.zeros((1, 4)))
     assert float(at_mean["chemistry.reactions.r1.adsorption.A.k_ref"][0]) == pytest.approx(k_at_case_ref, rel=1e-9)
+    # a design case without the fitted adsorption term cannot take the fitted kinetics
+    from tubewright.models.errors import CaseError
+    from tubewright.optimizer.output.fitreport import write_design_case
+
+    plain = tmp_path / "plain.toml"
+    plain.write_text(toml_text(liquid_case()))
+    with pytest.raises(CaseError, match="chemistry.reactions.r1.adsorption"):
+        write_design_case(tmp_path / "d.toml", load_case(plain), out)
 
 
 @pytest.mark.parametrize("entry,key,words", [

@@ -44,7 +44,11 @@ class _DeferredModule(types.ModuleType):
         name = self.__name__
         if sys.modules.get(name) is self:
             del sys.modules[name]
-            real = import_module(name)
+            try:
+                real = import_module(name)
+            except BaseException:
+                sys.modules[name] = self  # stays deferred: the next use tries again and raises the same
+                raise
             parent, _, child = name.rpartition(".")
             if parent in sys.modules:
                 setattr(sys.modules[parent], child, real)

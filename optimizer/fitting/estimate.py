@@ -167,8 +167,20 @@ def simulate_predictions(run_case, names, thermocouples=None):
 
 def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) -> FitOutcome:
     """Fit the free kinetic parameters of ``case_path``'s [fit] to the runs of ``data_path``."""
-    import pyomo.environ as pyo
     from tubewright.models import load_case
+
+    t0 = time.perf_counter()
+    base = load_case(case_path)
+    spec = read_fit(base)
+    runs = read_runs(data_path, case_path, spec.thermocouples)
+    for run in runs:
+        for name in run.measured:
+            if name.partition(".")[0] not in spec.errors:
+                raise CaseError(str(case_path), f"fit.errors.{name.partition('.')[0]}",
+                                f"missing: the data ({data_path}) measure {name}; state its error (absolute, or "
+                                'relative as "2 %")')
+    # the inputs are read and checked: only now the heavy imports (a bad file is refused at once)
+    import pyomo.environ as pyo
     from tubewright.models.simulator import simulate
     from tubewright.optimizer.design.collocation import (
         build_tube_model,
@@ -182,16 +194,6 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     from tubewright.optimizer.nlp.bridge import CompiledNLP
     from tubewright.optimizer.nlp.garbage_collection import paused_collection
 
-    t0 = time.perf_counter()
-    base = load_case(case_path)
-    spec = read_fit(base)
-    runs = read_runs(data_path, case_path, spec.thermocouples)
-    for run in runs:
-        for name in run.measured:
-            if name.partition(".")[0] not in spec.errors:
-                raise CaseError(str(case_path), f"fit.errors.{name.partition('.')[0]}",
-                                f"missing: the data ({data_path}) measure {name}; state its error (absolute, or "
-                                'relative as "2 %")')
     t_fit = spec.reference_temperature or arrhenius_reference_temperature([r.case.feed.temperature for r in runs])
     theta0 = start_values(base, spec, t_fit)
     lower = np.array([p.lower * s if p.is_constant else p.lower for p, s in zip(spec.parameters, theta0)])

@@ -172,18 +172,18 @@ def _folded(node, args):
     symbolic derivatives are full of them), or its value when every argument is a number; None when nothing
     folds. Folding 0 * x to 0 drops a NaN or an infinity that x might carry, as automatic differentiation
     tools do."""
-    numbers = [_literal(a) for a in args]
     kind = _FOLD_KINDS.get(node.__class__)
     if kind is None:
         return None
-    if all(v is not None for v in numbers) and kind != "where":
+    numbers = [_literal(a) for a in args]
+    if all(v is not None for v in numbers):
         try:
             v = (sum(numbers) if kind == "sum" else numbers[0] * numbers[1] if kind == "product" else
                  numbers[0] / numbers[1] if kind == "division" else -numbers[0] if kind == "negation" else
-                 numbers[0] ** numbers[1] if kind == "power" else None)
+                 numbers[0] ** numbers[1])
         except (ArithmeticError, ValueError):
             return None
-        return None if v is None or not np.isfinite(v) or isinstance(v, complex) else repr(float(v))
+        return None if isinstance(v, complex) or not np.isfinite(v) else repr(float(v))
     if kind == "sum":
         terms = [a for a, v in zip(args, numbers) if v != 0.0]
         if len(terms) == len(args):
@@ -341,8 +341,7 @@ class CompiledNLP:
                     global_indices(printer.inputs, input_ids, self.inputs))
 
         def add(source, body, printer, rows, vrows, prows):
-            # folding may leave a variable unused in the text: the counts belong to the form too
-            key = (source, len(printer.vars), len(printer.inputs))
+            key = (source, len(printer.vars), len(printer.inputs))  # the counts too: a text need not use all
             group = groups.get(key)
             if group is None:
                 groups[key] = group = [body, printer, source, [], [], []]

@@ -130,12 +130,11 @@ def write_design_case(path: Path, design, out) -> Path:
     reactions = {}
     for name, v in out.case_values.items():
         rx = next(r for r in design.reactions if r.name == name)
-        if {a.species for a in rx.adsorption} != set(v.get("adsorption", {})):
+        fitted_terms = v.get("adsorption", {})
+        if fitted_terms and {a.species for a in rx.adsorption} != set(fitted_terms):
             raise CaseError(design.source, f"chemistry.reactions.{name}.adsorption", "must name the same adsorption "
-                            f"species as the laboratory case ({', '.join(v.get('adsorption', {})) or 'none'}) to "
-                            "take its fitted kinetics")
-        terms = {s: {**a, "k_ref": float(at_design(a["k_ref"], a["heat"], v, rx))}
-                 for s, a in v.get("adsorption", {}).items()}
+                            f"species as the laboratory case ({', '.join(fitted_terms)}) to take its fitted kinetics")
+        terms = {s: {**a, "k_ref": float(at_design(a["k_ref"], a["heat"], v, rx))} for s, a in fitted_terms.items()}
         k_ref = at_design(v["k_ref"], v["activation_energy"], v, rx)
         reactions[name] = _reaction_table(design, name, k_ref, {**v, "adsorption": terms})
     paths = [f"chemistry.reactions.{n}" for n in st.names]

@@ -127,6 +127,14 @@ def test_pyomo_import_leaves_scipy_stats_unexecuted_until_used():
                "print(round(float(st.norm.ppf(0.975)), 4), stats is sys.modules['scipy.stats'], "
                "qmc.Sobol(2, seed=1).random(2).shape)")
     assert out.split("\n") == ["False False", "1.96 True (2, 2)"]
+    # a submodule imported first executes its package first, as without the stand-in (scipy.spatial's
+    # __init__ imports scipy.spatial.distance itself: a circular import otherwise; SALib's Morris sampler
+    # imports that submodule)
+    out = _run("import sys, tubewright.optimizer.design.optimise; from SALib.sample import morris; "
+               "import scipy.spatial.distance as d, scipy.stats._qmc as q; "
+               "print(d.euclidean([0, 0], [3, 4]), type(sys.modules['scipy.spatial']).__name__, "
+               "type(sys.modules['scipy.stats']).__name__)")
+    assert out == "5.0 module module"
 
 
 def test_version_is_read_from_the_distribution():

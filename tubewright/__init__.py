@@ -29,16 +29,16 @@ except PackageNotFoundError:  # pragma: no cover - running from a source tree th
 
 
 class _DeferredModule(types.ModuleType):
-    """Stands in sys.modules for a module not yet executed: it carries the module's spec and path (so that
-    ``import a.b`` and its submodules' imports work without executing it) and executes the real module on the
-    first other attribute asked of it, then forwards every attribute to it."""
+    """Stands in sys.modules for a module not yet executed. It carries the module's spec, so that the
+    statement ``import a.b`` finds it and executes nothing, and executes the real module on the first other
+    attribute asked of it, then forwards every attribute to it. Its ``__path__`` is such an attribute: the
+    import of a submodule (``import a.b.c``) executes the real package first, as without the stand-in (its
+    ``__init__`` may import that submodule itself)."""
 
     def __init__(self, spec):
         super().__init__(spec.name)
         self.__spec__, self.__loader__, self.__file__ = spec, spec.loader, spec.origin
         self.__package__ = spec.name if spec.submodule_search_locations is not None else spec.parent
-        if spec.submodule_search_locations is not None:
-            self.__path__ = list(spec.submodule_search_locations)
 
     def __getattr__(self, attribute):
         name = self.__name__

@@ -5,12 +5,14 @@ the number of forms against the number of runs, and the time of scipy.optimize.l
 adaptive integrator on the same problem (same start, same weighted residuals, 2-point Jacobian) with the
 ratio.
 
-Measured here (2 cores): 5/10/20 runs: fit 3.2/5.0/10.1 s, compile 0.62/1.22/2.50 s with 32 forms at every
-size, 23-25 IPOPT iterations; least_squares 1.1/4.3/5.0 s (15-19 simulations of every run); ratio
-0.36/0.87/0.49, estimates equal within 4e-4 relative. The target (fit at least 5x faster than least_squares)
-is not met: the forms are shared, but the bridge still prints every constraint to find its form (compile
-linear in the runs), pyomo.dae builds every run's block (about 0.1 s each), and the Jacobian for the
-statistics costs 8 simulations per run.
+Measured here (2 cores), 2026-12-02: 5/10/20 runs: fit 3.6/4.6/7.1 s, compile 0.35/0.57/0.72 s with 32 forms
+at every size (the runs differ only in inputs and bounds, so all but one are compiled as replicas; 0.62/1.22/
+2.50 s when every run was printed), 23-25 IPOPT iterations; least_squares 1.6/5.9/6.8 s (15-19 simulations of
+every run); ratio 0.43/1.30/0.96, estimates equal within 4e-4 relative. At 20 runs the fit spends 0.1 s on
+the start simulations, 1.9 s building and compiling (pyomo.dae builds every run's block), 3.4 s in the
+estimation (IPOPT about 120 ms an iteration on some 20,000 variables) and 1.6 s on the Jacobian for the
+statistics (8 integrations per run). The target (the fit at least 5x faster than least_squares) is not met:
+IPOPT on the joint problem alone takes about half the least_squares time.
 
 Run: .venv/bin/python tests/benchmarks/bench_fit.py"""
 

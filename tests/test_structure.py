@@ -135,6 +135,8 @@ def test_pyomo_import_leaves_scipy_stats_unexecuted_until_used():
                "print(d.euclidean([0, 0], [3, 4]), type(sys.modules['scipy.spatial']).__name__, "
                "type(sys.modules['scipy.stats']).__name__)")
     assert out == "5.0 module module"
+    out = _run("import tubewright, scipy.stats as st; print('norm' in dir(st))")
+    assert out == "True"
 
 
 def test_version_is_read_from_the_distribution():

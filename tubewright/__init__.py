@@ -40,7 +40,7 @@ class _DeferredModule(types.ModuleType):
         self.__spec__, self.__loader__, self.__file__ = spec, spec.loader, spec.origin
         self.__package__ = spec.name if spec.submodule_search_locations is not None else spec.parent
 
-    def __getattr__(self, attribute):
+    def _real(self):
         name = self.__name__
         if sys.modules.get(name) is self:
             del sys.modules[name]
@@ -52,7 +52,13 @@ class _DeferredModule(types.ModuleType):
             parent, _, child = name.rpartition(".")
             if parent in sys.modules:
                 setattr(sys.modules[parent], child, real)
-        return getattr(sys.modules[name], attribute)
+        return sys.modules[name]
+
+    def __getattr__(self, attribute):
+        return getattr(self._real(), attribute)
+
+    def __dir__(self):
+        return dir(self._real())
 
 
 def _defer_scipy_submodules(names=("scipy.stats", "scipy.spatial")) -> None:

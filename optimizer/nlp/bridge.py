@@ -216,6 +216,75 @@ _FOLD_KINDS = {EXPR.SumExpression: "sum", EXPR.LinearExpression: "sum", EXPR.Pro
                EXPR.NegationExpression: "negation", EXPR.PowExpression: "power"}
 
 
+def _structure(expr):
+    """The structure key of an expression, its unfixed variables and its inputs (in the printer's order of
+    first appearance). Two expressions with equal keys print to the same text, up to how equal subtrees are
+    shared, which does not change their value: the key lists, depth first as the printer visits them, every
+    operation's class and arity (and function name or strictness), every number, and for each leaf its
+    variable or input slot (x0.., p0..) or its value; a subtree met before is a reference. Walking is about
+    1.7 times faster than printing, so compilation prints one expression per key (A -> B -> C at 400 elements:
+    0.43 s against 0.75 s for 20,409 constraints)."""
+    out, memo, keep = [], {}, []
+    variables, var_slot, inputs, input_slot = [], {}, [], {}
+    app = out.append
+
+    def visit(node):
+        cls = node.__class__
+        if cls in EXPR.native_numeric_types:
+            app(float(node))
+            return
+        kind = _WALK_KINDS.get(cls)
+        if kind is None:
+            kind = _WALK_KINDS[cls] = _walk_kind(node)
+        if kind in ("operation", "function", "inequality"):
+            seen = memo.get(id(node))
+            if seen is not None:
+                app(("ref", seen))
+                return
+            args = node.args
+            for a in args:
+                visit(a)
+            app((cls, len(args), node.getname() if kind == "function" else
+                 node.strict if kind == "inequality" else None))
+            memo[id(node)] = len(memo)
+            keep.append(node)  # ids stay unique while memoised
+        elif kind == "named":
+            visit(node.expr)
+        elif kind == "var" and not node.fixed:
+            slot = var_slot.get(id(node))
+            if slot is None:
+                slot = var_slot[id(node)] = len(variables)
+                variables.append(node)
+            app(("x", slot))
+        elif kind == "var" or (kind == "param" and not node.is_constant()):
+            slot = input_slot.get(id(node))
+            if slot is None:
+                slot = input_slot[id(node)] = len(inputs)
+                inputs.append(node)
+            app(("p", slot))
+        else:
+            app(float(value(node)))
+
+    visit(expr)
+    return tuple(out), variables, inputs
+
+
+_WALK_KINDS: dict = {}
+
+
+def _walk_kind(node) -> str:
+    """How _structure treats a node of this class (decided on first sight of the class)."""
+    if not node.is_expression_type():
+        return "var" if node.is_variable_type() else "param" if node.is_parameter_type() else "other"
+    if node.is_named_expression_type():
+        return "named"
+    if isinstance(node, EXPR.UnaryFunctionExpression):
+        return "function"
+    if isinstance(node, EXPR.InequalityExpression):
+        return "inequality"
+    return "operation"
+
+
 @dataclass
 class _Form:
     """One form: compiled value, gradient and Hessian functions, and the index matrices of its members."""
@@ -353,15 +422,25 @@ class CompiledNLP:
         deferred = {id(c) for _, cons, _, _ in replicas for c in cons}
         templates = {id(c) for t_cons, _, _, _ in replicas for c in t_cons}
         printed = {}  # id(template constraint) -> (form text, printer, its global variable and input indices)
+        texts = {}  # structure key -> (text, printer) of the first constraint with that structure
         for row, con in enumerate(self.constraints):
             if id(con) in deferred:
                 continue
-            printer = _Printer()
-            key = printer.source("value", [con.body])
-            vrows, prows = register(printer)
+            key, con_vars, con_inputs = _structure(con.body)
+            known = texts.get(key)
+            if known is None:
+                printer = _Printer()
+                known = texts[key] = (printer.source("value", [con.body]), printer)
+                if ([id(v) for v in printer.vars] != [id(v) for v in con_vars]
+                        or [id(p) for p in printer.inputs] != [id(p) for p in con_inputs]):
+                    raise RuntimeError(f"the structure walk and the printer order the variables of {con.name} "
+                                       "differently")
+            text, printer = known
+            vrows = global_indices(con_vars, var_ids, self.variables)
+            prows = global_indices(con_inputs, input_ids, self.inputs)
             if id(con) in templates:
-                printed[id(con)] = (key, printer, vrows, prows)
-            add(key, con.body, printer, [row], vrows, prows)
+                printed[id(con)] = (text, printer, vrows, prows)
+            add(text, con.body, printer, [row], vrows, prows)
         row_of = {id(c): r for r, c in enumerate(self.constraints)} if replicas else {}
         for t_cons, cons, var_pairs, input_pairs in replicas:
             # a replica's components take the global indices of their template's, mapped by position

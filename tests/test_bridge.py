@@ -257,3 +257,36 @@ def test_paused_collection_restores_the_collector_and_leaves_garbage_collectable
         assert gc.get_freeze_count() == frozen
     finally:
         gc.unfreeze()
+
+
+def test_structure_keys_separate_what_prints_differently_and_join_what_prints_alike():
+    import pyomo.environ as pyo
+    from tubewright.optimizer.nlp.bridge import _Printer, _structure
+
+    m = pyo.ConcreteModel()
+    m.x = pyo.Var(range(4), initialize=1.0)
+    m.k = pyo.Param(mutable=True, initialize=2.0)
+    m.fixed = pyo.Var(initialize=3.0)
+    m.fixed.fix()
+    shared = m.x[0] * m.x[1]
+    exprs = {
+        "base": m.k * pyo.exp(m.x[0]) + m.x[1] ** 2 + m.fixed,
+        "other vars": m.k * pyo.exp(m.x[2]) + m.x[3] ** 2 + m.fixed,  # same structure: same key
+        "other function": m.k * pyo.log(m.x[0]) + m.x[1] ** 2 + m.fixed,
+        "other number": m.k * pyo.exp(m.x[0]) + m.x[1] ** 3 + m.fixed,
+        "repeated var": m.k * pyo.exp(m.x[0]) + m.x[0] ** 2 + m.fixed,
+        "input for number": 2.0 * pyo.exp(m.x[0]) + m.x[1] ** 2 + m.fixed,
+        "shared subtree": shared + shared,
+        "equal subtrees apart": m.x[0] * m.x[1] + m.x[0] * m.x[1],
+    }
+    keys = {name: _structure(e)[0] for name, e in exprs.items()}
+    assert keys["base"] == keys["other vars"]
+    assert len({keys[n] for n in exprs if n != "other vars"}) == len(exprs) - 1
+    for e in exprs.values():  # the walk orders variables and inputs as the printer numbers them
+        _, variables, inputs = _structure(e)
+        printer = _Printer()
+        printer.source("value", [e])
+        assert [id(v) for v in variables] == [id(v) for v in printer.vars]
+        assert [id(p) for p in inputs] == [id(p) for p in printer.inputs]
+    # equal keys print to equal text
+    assert _Printer().source("value", [exprs["base"]]) == _Printer().source("value", [exprs["other vars"]])

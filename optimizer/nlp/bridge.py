@@ -1,9 +1,10 @@
 """The Pyomo-to-cyipopt bridge: a Pyomo NLP in, IPOPT (through cyipopt) out, without the PyNumero ASL library.
 
 Compilation, once per model:
-1. Every active constraint body is printed as numpy code with its unfixed variables and its inputs (mutable
-   Params, fixed Vars) replaced by numbered placeholders. That text is the constraint's *form*: the many
-   constraints of a collocation model share a few dozen forms.
+1. Every active constraint body is walked for its structure key (_structure); the first body of each key is
+   printed as numpy code with its unfixed variables and its inputs (mutable Params, fixed Vars) replaced by
+   numbered placeholders. That text is the constraint's *form*: the many constraints of a collocation model
+   share a few dozen forms.
 2. One representative per form is differentiated with Pyomo's reverse symbolic differentiation (first and
    second derivatives, lower triangle); each derivative is printed with the same placeholders and compiled.
 3. Every form is then evaluated vectorised over all its members with numpy. Repeated Hessian coordinates

@@ -4,6 +4,8 @@ Supported paths:
     chemistry.reactions.NAME.k_ref | .activation_energy | .heat_of_reaction | .orders.SPECIES
     chemistry.reactions.NAME.adsorption.SPECIES.k_ref | .heat   (a term of the reaction's LHHW denominator)
     heat_transfer.multiplier
+    radial.solid_conductivity | .lambda_er | .alpha_w   (data of the two-dimensional model, [radial]; they act
+    on the 2-D model and on the 1-D model with heat_transfer.inside = "radial_lumped")
     feed.temperature | feed.pressure | feed.molar_flows.SPECIES
     coolant.temperature | coolant.mass_flow | coolant.pressure  (only those the coolant mode reads; the
     pressure of boiling water sets its saturation temperature)
@@ -31,6 +33,7 @@ SIMPLE = {
     "coolant.mass_flow": "kg/s",
     "coolant.pressure": "Pa",
 }
+RADIAL = {"radial.solid_conductivity": "W/m/K", "radial.lambda_er": "W/m/K", "radial.alpha_w": "W/m^2/K"}
 REACTION_FIELDS = ("k_ref", "activation_energy", "heat_of_reaction", "orders", "adsorption")
 ADSORPTION_FIELDS = ("k_ref", "heat")
 
@@ -45,6 +48,9 @@ def si_unit(case, path: str, source: str, key: str) -> str:
                             f"{reads}")
     if path in SIMPLE:
         return SIMPLE[path]
+    if path in RADIAL:
+        _radial_field(case, path, source, key)
+        return RADIAL[path]
     parts = path.split(".")
     if path.startswith("feed.molar_flows."):
         _species(case, parts[2], source, key)
@@ -70,10 +76,36 @@ def si_unit(case, path: str, source: str, key: str) -> str:
         if field == "k_ref":
             return rate_units(rx.basis, rx.driving, sum(rx.orders.values()))
         return "J/mol"
-    allowed = list(SIMPLE) + ["feed.molar_flows.SPECIES"] + [f"chemistry.reactions.{r.name}.{f}"
+    allowed = list(SIMPLE) + list(RADIAL) + ["feed.molar_flows.SPECIES"] + [f"chemistry.reactions.{r.name}.{f}"
                                                               for r in case.reactions for f in REACTION_FIELDS]
     raise CaseError(source, key, f'unknown parameter "{path}"{suggest(path, allowed)}; allowed: '
                     f"{', '.join(allowed)}")
+
+
+def _radial_field(case, path, source, key):
+    """A [radial] value can vary only where the case gives it: one computed along the tube by its correlation
+    has no single value to vary, and the pellet conductivity acts only through lambda_er's correlation."""
+    field = path.split(".")[1]
+    rad = case.radial
+    if rad is None:
+        raise CaseError(source, key, f'"{path}": the case has no [radial] table (the data of the two-dimensional '
+                        "model)")
+    if field == "solid_conductivity":
+        if case.bed is None or rad.lambda_er is not None:
+            why = "the tube is empty" if case.bed is None else "radial.lambda_er is given"
+            raise CaseError(source, key, f'"{path}" is not used: {why}, so the pellet conductivity enters no '
+                            "correlation")
+    elif getattr(rad, field) is None:
+        raise CaseError(source, key, f'"{path}" is computed along the tube by its correlation, so it has no single '
+                        f"value to vary: give radial.{field} in the case, or vary radial.solid_conductivity")
+
+
+def radial_data_unused(case, paths, two_dimensional: bool) -> str | None:
+    """The first [radial] path among ``paths`` that a run would not use (the 1-D model reads [radial] only with
+    heat_transfer.inside = "radial_lumped"), or None."""
+    if two_dimensional or case.heat_transfer.inside == "radial_lumped":
+        return None
+    return next((p for p in paths if p in RADIAL), None)
 
 
 def _adsorption_term(rx, parts, path, source, key):
@@ -115,7 +147,7 @@ def _species(case, name, source, key):
 def base_value(case, path: str):
     """The case's own value of a parameter (SI)."""
     parts = path.split(".")
-    if path in SIMPLE:
+    if path in SIMPLE or path in RADIAL:
         section, attr = parts
         return getattr(getattr(case, section), attr)
     if path.startswith("feed.molar_flows."):
@@ -133,7 +165,7 @@ def base_value(case, path: str):
 
 def apply(case, values: dict):
     """The case with each path set to its value (number or array)."""
-    feed, coolant, heat = case.feed, case.coolant, case.heat_transfer
+    feed, coolant, heat, radial = case.feed, case.coolant, case.heat_transfer, case.radial
     reactions = {rx.name: rx for rx in case.reactions}
     flows = list(case.feed.molar_flows)
     for path, v in values.items():
@@ -148,6 +180,8 @@ def apply(case, values: dict):
             coolant = replace(coolant, pressure=v, temperature=water_saturation_temperature(v, NUMPY))
         elif path.startswith("feed.molar_flows."):
             flows[case.index(parts[2])] = v
+        elif path in RADIAL:
+            radial = replace(radial, **{parts[1]: v})
         else:
             rx = reactions[parts[2]]
             if parts[3] == "orders":
@@ -160,7 +194,7 @@ def apply(case, values: dict):
             else:
                 reactions[rx.name] = replace(rx, **{parts[3]: v})
     feed = replace(feed, molar_flows=tuple(flows))
-    return replace(case, feed=feed, coolant=coolant, heat_transfer=heat,
+    return replace(case, feed=feed, coolant=coolant, heat_transfer=heat, radial=radial,
                    reactions=tuple(reactions[r.name] for r in case.reactions))
 
 

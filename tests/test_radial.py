@@ -444,3 +444,42 @@ def test_screen_with_the_2d_model_takes_its_hot_spot(capsys):
     assert main(["screen", str(DEMO / "oxidation-screen.toml"), "--radial", "--samples", "4", "--set",
                  'coolant.pressure="80 bar"']) == 0
     assert "model: two-dimensional (6 radial points" in capsys.readouterr().out
+
+
+def test_radial_data_vary_in_screening_where_a_model_reads_them(tmp_path):
+    # The pellet conductivity as an uncertain input: a 2-D batch with it varied equals simulate_radial one by
+    # one (as above); refused where no model of the run reads [radial], and where the case has no single value.
+    from tubewright.models.batch import radial_model, simulate_batch
+    from tubewright.models.errors import CaseError
+    from tubewright.models.parameters import apply, si_unit
+    from tubewright.optimizer.screening.uncertain import read_uncertain, refuse_unused_radial_data
+
+    case = load_case(DEMO / "oxidation-radial.toml")
+    k_s = case.radial.solid_conductivity
+    values = {"radial.solid_conductivity": k_s * np.array([0.5, 1.0, 2.0])}
+    batch = simulate_batch(case, values, 3, model=radial_model(case))
+    for j in range(3):
+        s = simulate_radial(apply(case, {"radial.solid_conductivity": float(values["radial.solid_conductivity"][j])}))
+        assert s.ok and batch.outputs["max_temperature_K"][j] == pytest.approx(s.summary["max_temperature_K"],
+                                                                                abs=1e-3)
+    # a better conducting pellet lowers the 2-D hot spot
+    assert np.all(np.diff(batch.outputs["max_temperature_K"]) < 0.0)
+    assert si_unit(case, "radial.solid_conductivity", "f", "k") == "W/m/K"
+    for path, words in (("radial.alpha_w", "computed along the tube"), ("radial.lambda_er", "computed along")):
+        with pytest.raises(CaseError, match=words):
+            si_unit(case, path, "f", "k")
+    given = load_case(DEMO / "oxidation-radial.toml", {"radial.lambda_er": "0.5 W/m/K"})
+    with pytest.raises(CaseError, match="radial.lambda_er is given"):
+        si_unit(given, "radial.solid_conductivity", "f", "k")
+    with pytest.raises(CaseError, match="no \\[radial\\] table"):
+        si_unit(load_case(DEMO / "coil.toml"), "radial.solid_conductivity", "f", "k")
+    (tmp_path / "c.toml").write_text(f'include = "{DEMO / "oxidation-radial.toml"}"\n[uncertain.pellet]\n'
+                                     'parameter = "radial.solid_conductivity"\ndistribution = "uniform"\n'
+                                     "relative = true\nmin = 0.5\nmax = 2.0\n")
+    screened = load_case(tmp_path / "c.toml")
+    items = read_uncertain(screened)
+    refuse_unused_radial_data(screened, items, two_dimensional=True)
+    with pytest.raises(CaseError, match="uncertain.pellet"):
+        refuse_unused_radial_data(screened, items, two_dimensional=False)
+    lumped = load_case(tmp_path / "c.toml", {"heat_transfer.inside": "radial_lumped"})
+    refuse_unused_radial_data(lumped, read_uncertain(lumped), two_dimensional=False)

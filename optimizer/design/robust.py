@@ -54,9 +54,10 @@ def draw_scenarios(case, k: int, seed: int):
     from scipy.stats import qmc
     from tubewright.optimizer.design.spec import DESIGN_KEYS
     from tubewright.optimizer.screening.sampling import to_parameters
-    from tubewright.optimizer.screening.uncertain import read_uncertain
+    from tubewright.optimizer.screening.uncertain import read_uncertain, refuse_unused_radial_data
 
     items = read_uncertain(case)
+    refuse_unused_radial_data(case, items, two_dimensional=False)  # the design model is one-dimensional
     design_paths = {where for _, where in DESIGN_KEYS.values()}
     for u in items:
         if u.path in design_paths:

@@ -33,7 +33,7 @@ from dataclasses import dataclass
 import numpy as np
 from tubewright.models.casefile import Table
 from tubewright.models.errors import CaseError
-from tubewright.models.parameters import base_value, si_unit, temperature_law
+from tubewright.models.parameters import base_value, radial_data_unused, si_unit, temperature_law
 from tubewright.models.units import to_si
 
 ARGUMENTS = {
@@ -197,6 +197,17 @@ def _correlated(case, name, spec) -> list[Uncertain]:
     joint = CorrelatedSet(name, tuple(paths), mean, chol, t_ref, tuple(rereference))
     return [Uncertain(f"{name}[{k + 1}]", p, "normal", {"mean": 0.0, "std": 1.0}, False, name,
                       float(base_value(case, p)), joint) for k, p in enumerate(paths)]
+
+
+def refuse_unused_radial_data(case, items: list[Uncertain], two_dimensional: bool) -> None:
+    """CaseError for an uncertain [radial] value that the run's model would not read (its index would be a
+    zero that says nothing): the 1-D model reads [radial] only with heat_transfer.inside = "radial_lumped"."""
+    path = radial_data_unused(case, [u.path for u in items], two_dimensional)
+    if path is not None:
+        u = next(u for u in items if u.path == path)
+        raise CaseError(case.source, f"uncertain.{u.joint.name if u.joint else u.name}",
+                        f'"{path}" acts only on the two-dimensional model (screen --radial) or with '
+                        'heat_transfer.inside = "radial_lumped"; this run uses neither')
 
 
 def _check_arguments(dist, a, source, key):

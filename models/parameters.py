@@ -109,13 +109,13 @@ def radial_data_unused(case, paths, two_dimensional: bool) -> str | None:
 
 
 def _adsorption_term(rx, parts, path, source, key):
-    terms = {a.species: a for a in rx.adsorption}
     if len(parts) != 6 or parts[5] not in ADSORPTION_FIELDS:
         raise CaseError(source, key, f'"{path}": name the species and k_ref or heat, e.g. ...adsorption.A.k_ref')
-    if parts[4] not in terms:
+    term = rx.adsorption_term(parts[4])
+    if term is None:
         raise CaseError(source, key, f'"{path}": reaction {rx.name} has no adsorption term for "{parts[4]}"; '
-                        f"its terms: {', '.join(terms) or 'none'}")
-    return terms[parts[4]]
+                        f"its terms: {', '.join(a.species for a in rx.adsorption) or 'none'}")
+    return term
 
 
 def temperature_law(case, path: str):
@@ -127,7 +127,7 @@ def temperature_law(case, path: str):
         return None
     rx = next(r for r in case.reactions if r.name == parts[2])
     if parts[3] == "adsorption":
-        ads = next(a for a in rx.adsorption if a.species == parts[4])
+        ads = rx.adsorption_term(parts[4])
         return rx.t_ref, ".".join(parts[:-1] + ["heat"]), ads.heat
     return rx.t_ref, ".".join(parts[:-1] + ["activation_energy"]), rx.activation_energy
 
@@ -156,7 +156,7 @@ def base_value(case, path: str):
     if parts[3] == "orders":
         return rx.orders.get(parts[4], 0.0)
     if parts[3] == "adsorption":
-        return getattr(next(a for a in rx.adsorption if a.species == parts[4]), parts[5])
+        return getattr(rx.adsorption_term(parts[4]), parts[5])
     if parts[3] == "heat_of_reaction":
         return rx.heat_given if rx.heat_given is not None else float(heat_of_reaction(NUMPY, rx, case.species_map,
                                                                                       T_STD))

@@ -117,6 +117,10 @@ class Reaction:
     def delta_n(self) -> float:
         return sum(self.nu.values())
 
+    def adsorption_term(self, species: str):
+        """The Adsorption term of ``species`` in the LHHW denominator, or None."""
+        return next((a for a in self.adsorption if a.species == species), None)
+
 
 def arrhenius(m, k_ref, activation_energy, t_ref, T):
     """k(T) = k_ref exp(-E_a/R (1/T - 1/T_ref)): Arrhenius written about a reference temperature so that

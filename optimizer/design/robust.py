@@ -61,7 +61,7 @@ def draw_scenarios(case, k: int, seed: int):
     design_paths = {where for _, where in DESIGN_KEYS.values()}
     for u in items:
         if u.path in design_paths:
-            raise CaseError(case.source, f"uncertain.{u.joint.name if u.joint else u.name}",
+            raise CaseError(case.source, u.entry,
                             f'"{u.path}" is a design quantity: a robust design shares it between the scenarios, '
                             "so it cannot vary by scenario; screen it instead")
     # the first K points of a scrambled Sobol sequence (drawn as the next power of two, which Sobol wants)

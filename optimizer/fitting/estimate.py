@@ -99,7 +99,7 @@ def start_values(case, spec, t_fit) -> np.ndarray:
             values.append(rx.orders[p.kind.split(".", 1)[1]])
         elif p.kind.startswith("adsorption."):
             _, species, field = p.kind.split(".")
-            a = next(a for a in rx.adsorption if a.species == species)
+            a = rx.adsorption_term(species)
             values.append(a.heat if field == "heat" else arrhenius(NUMPY, a.k_ref, a.heat, rx.t_ref, t_fit))
         else:
             values.append(arrhenius(NUMPY, rx.k_ref, rx.activation_energy, rx.t_ref, t_fit))

@@ -145,13 +145,14 @@ def _parameter(rt: Table, kind: str, rname: str, j: int, rx) -> FitParameter:
 
 def _adsorption(rt: Table, rname: str, j: int, rx) -> list[FitParameter]:
     at = rt.sub("adsorption")
-    terms = {a.species: a for a in rx.adsorption}
     out = []
     for species, spec in at.data.items():
         key = at.key(species)
-        if species not in terms:
+        term = rx.adsorption_term(species)
+        if term is None:
             raise CaseError(rt.source, key, f"the reaction has no adsorption term for {species}; its terms: "
-                            f"{', '.join(terms) or 'none'} (give it one in the case's adsorption list to free it)")
+                            f"{', '.join(a.species for a in rx.adsorption) or 'none'} (give it one in the case's "
+                            "adsorption list to free it)")
         if spec is True:
             spec = {"k_ref": True, "heat": True}
         if not isinstance(spec, dict):
@@ -167,7 +168,7 @@ def _adsorption(rt: Table, rname: str, j: int, rx) -> list[FitParameter]:
             if not isinstance(heat, dict):
                 raise CaseError(rt.source, sub.key("heat"), 'must be true or a table { min = ..., max = ... }')
             ht = Table(heat, rt.source, sub.key("heat"), {"min", "max"})
-            start = terms[species].heat
+            start = term.heat
             lo = ht.quantity("min", "molar_energy", default=start - DEFAULT_HEAT_SPAN, positive=False,
                              minimum=-1e8, maximum=1e8)
             hi = ht.quantity("max", "molar_energy", default=start + DEFAULT_HEAT_SPAN, positive=False,

@@ -80,6 +80,11 @@ class Uncertain:
     base: float
     joint: CorrelatedSet | None = None  # a factor of a correlated set: its values come from the whole set
 
+    @property
+    def entry(self) -> str:
+        """The key of the [uncertain] table it comes from, for error messages."""
+        return f"uncertain.{self.joint.name if self.joint else self.name}"
+
     def from_unit(self, u):
         """Inverse cumulative distribution: unit-hypercube coordinates ``u`` -> sampled values (multipliers when
         relative). Sampling happens on the unit hypercube (SALib) and is mapped here, so that Morris and
@@ -205,7 +210,7 @@ def refuse_unused_radial_data(case, items: list[Uncertain], two_dimensional: boo
     path = radial_data_unused(case, [u.path for u in items], two_dimensional)
     if path is not None:
         u = next(u for u in items if u.path == path)
-        raise CaseError(case.source, f"uncertain.{u.joint.name if u.joint else u.name}",
+        raise CaseError(case.source, u.entry,
                         f'"{path}" acts only on the two-dimensional model (screen --radial) or with '
                         'heat_transfer.inside = "radial_lumped"; this run uses neither')
 

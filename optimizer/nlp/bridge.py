@@ -30,6 +30,7 @@ from pyomo.core.base.constraint import Constraint
 from pyomo.core.base.objective import Objective, maximize
 from pyomo.core.expr.calculus.derivatives import differentiate
 from pyomo.environ import value
+from tubewright.optimizer.nlp.form_cache import FormCache
 from tubewright.optimizer.nlp.presolve import LinearElimination
 from tubewright.optimizer.nlp.pyomo_rules import install_rules
 
@@ -300,15 +301,22 @@ class _Form:
     constant_gradient: list  # per local variable: its derivative when a number, else None
 
 
-def _compile_function(name: str, body: str, nx: int, npar: int):
+def _code(name: str, body: str, nx: int, npar: int):
+    """The byte code of a module defining ``name(x0.., p0..)`` with the printed body."""
     args = ", ".join([f"x{i}" for i in range(nx)] + [f"p{i}" for i in range(npar)])
     src = f"def {name}({args}):\n" + "\n".join("    " + line for line in body.split("\n")) + "\n"
+    return compile(src, f"<bridge {name}>", "exec")
+
+
+def _function(code, name: str):
     namespace = {"np": np}
-    exec(compile(src, f"<bridge {name}>", "exec"), namespace)  # code printed from the model, not user text
+    exec(code, namespace)  # code printed from the model (or read back from the form cache), not user text
     return namespace[name]
 
 
-def _build_form(rep_expr, printer: _Printer, value_source: str, members, var_rows, input_rows) -> _Form:
+def _derive(rep_expr, printer: _Printer, value_source: str):
+    """What a form yields, differentiated and compiled: (value code, derivatives code, number of gradient
+    entries, Hessian pairs (a, b) with a >= b, constant gradient entries (None where not a number))."""
     local_vars = list(printer.vars)
     nx, npar = len(local_vars), len(printer.inputs)
     grads = differentiate(rep_expr, wrt_list=local_vars, mode=differentiate.Modes.reverse_symbolic) if nx else []
@@ -327,10 +335,22 @@ def _build_form(rep_expr, printer: _Printer, value_source: str, members, var_row
     deriv_source = printer.source("derivatives", list(grad_list) + (second or [0.0]))
     if len(printer.vars) != nx or len(printer.inputs) != npar:
         raise RuntimeError("a derivative introduced a variable or input absent from its expression")
+    return (_code("value", value_source, nx, npar), _code("derivatives", deriv_source, nx, npar), len(grad_list),
+            pairs, [float(g) if g.__class__ in EXPR.native_numeric_types else None for g in grads])
+
+
+def _build_form(rep_expr, printer: _Printer, value_source: str, members, var_rows, input_rows,
+                cache: FormCache | None = None) -> _Form:
+    nx, npar = len(printer.vars), len(printer.inputs)
+    record = cache.get(value_source, nx, npar) if cache is not None else None
+    if record is None:
+        record = _derive(rep_expr, printer, value_source)
+        if cache is not None:
+            cache.put(value_source, nx, npar, *record)
+    value_code, derivatives_code, n_grad, pairs, constant_gradient = record
     return _Form(members, _stacked(var_rows, len(members), nx), _stacked(input_rows, len(members), npar),
-                 _compile_function("value", value_source, nx, npar),
-                 _compile_function("derivatives", deriv_source, nx, npar), len(grad_list), pairs,
-                 [float(g) if g.__class__ in EXPR.native_numeric_types else None for g in grads])
+                 _function(value_code, "value"), _function(derivatives_code, "derivatives"), n_grad,
+                 [tuple(p) for p in pairs], constant_gradient)
 
 
 def _stacked(chunks, members: int, width: int) -> np.ndarray:
@@ -466,8 +486,10 @@ class CompiledNLP:
         obj_source = obj_printer.source("value", [self.objective.expr])
         ovars, oinputs = register(obj_printer)
         t_forms = time.perf_counter()
-        self.forms = [_build_form(*group) for group in groups.values()]
-        self.objective_form = _build_form(self.objective.expr, obj_printer, obj_source, [0], [ovars], [oinputs])
+        cache = FormCache()
+        self.forms = [_build_form(*group, cache) for group in groups.values()]
+        self.objective_form = _build_form(self.objective.expr, obj_printer, obj_source, [0], [ovars], [oinputs],
+                                          cache)
         self.sign = -1.0 if self.objective.sense == maximize else 1.0
         self._structure()
         self.n, self.m = len(self.variables), len(self.constraints)
@@ -477,7 +499,7 @@ class CompiledNLP:
             self.compact = None
         self.times = {"compile_s": time.perf_counter() - t0, "differentiate_s": t_compact - t_forms,
                       "presolve_s": time.perf_counter() - t_compact, "forms": len(self.forms),
-                      "replicated_blocks": self.replicated,
+                      "replicated_blocks": self.replicated, "form_cache": cache.summary(),
                       "ipopt_variables": self.compact.n if self.compact else self.n,
                       "ipopt_constraints": self.compact.m if self.compact else self.m}
         self._warm = None

@@ -1,0 +1,92 @@
+"""The cache on disk of compiled forms: a cold and a warm compilation give the same problem and optimum as
+no cache, bit for bit; a damaged, foreign or unwritable entry is counted and compiled anew, never fatal."""
+
+import numpy as np
+import pytest
+
+pyo = pytest.importorskip("pyomo.environ")
+pytest.importorskip("cyipopt")
+
+from test_bridge import _fd_check, hs71  # noqa: E402
+from tubewright.optimizer.nlp import form_cache  # noqa: E402
+from tubewright.optimizer.nlp.bridge import CompiledNLP  # noqa: E402
+
+
+def piecewise():
+    m = pyo.ConcreteModel()
+    m.I = pyo.RangeSet(0, 5)
+    m.x = pyo.Var(m.I, initialize=lambda m, i: 1.0 + 0.3 * i, bounds=(0.1, 10))
+    m.q = pyo.Param(mutable=True, initialize=1.7)
+    m.c = pyo.Constraint(m.I, rule=lambda m, i: pyo.exp(m.x[i] / m.q) * pyo.sqrt(m.x[(i + 1) % 6])
+                         - pyo.log(m.x[i]) ** 2 + pyo.Expr_if(IF=m.x[i] <= 1.5, THEN=m.x[i] ** 3, ELSE=2 * m.x[i]) == 3)
+    m.o = pyo.Objective(expr=sum((m.x[i] - i) ** 2 / (1 + m.x[i]) for i in m.I))
+    return m
+
+
+def _compiled(monkeypatch, where, build=hs71):
+    monkeypatch.setenv("TUBEWRIGHT_FORM_CACHE", str(where))
+    return CompiledNLP(build())
+
+
+@pytest.mark.parametrize("build", [hs71, piecewise])
+def test_cold_and_warm_compilations_equal_no_cache(monkeypatch, tmp_path, build):
+    plain = _compiled(monkeypatch, "off", build)
+    cold = _compiled(monkeypatch, tmp_path, build)
+    warm = _compiled(monkeypatch, tmp_path, build)
+    forms = len(plain.forms) + 1  # and the objective
+    assert plain.times["form_cache"]["directory"] is None
+    assert cold.times["form_cache"]["written"] == forms and cold.times["form_cache"]["hits"] == 0
+    assert warm.times["form_cache"]["hits"] == forms and warm.times["form_cache"]["written"] == 0
+    for nlp in (cold, warm):
+        assert [f.pairs for f in nlp.forms] == [f.pairs for f in plain.forms]
+        assert np.array_equal(nlp.hess_rows, plain.hess_rows) and np.array_equal(nlp.jac_cols, plain.jac_cols)
+    _fd_check(warm, np.linspace(1.1, 2.9, warm.n))
+    outs = [nlp.solve() for nlp in (plain, cold, warm)]
+    assert all(o.success for o in outs)
+    assert outs[1].x.tolist() == outs[0].x.tolist() == outs[2].x.tolist()  # the same code: the same bits
+    assert outs[1].iterations == outs[0].iterations == outs[2].iterations
+
+
+def _entries(tmp_path):
+    return [p for p in tmp_path.rglob("*") if p.is_file()]
+
+
+def test_damaged_or_foreign_entries_are_counted_and_compiled_anew(monkeypatch, tmp_path):
+    _compiled(monkeypatch, tmp_path)
+    entries = _entries(tmp_path)
+    assert len(entries) == 3  # hs71: three forms (two constraints and the objective)
+    entries[0].write_bytes(b"\x00not marshal")
+    entries[1].write_bytes(entries[2].read_bytes())  # a well-formed entry of another form under this key
+    nlp = _compiled(monkeypatch, tmp_path)
+    cache = nlp.times["form_cache"]
+    assert cache["hits"] == 1 and cache["written"] == 2
+    assert len(cache["problems"]) == 2
+    assert any("unreadable entry" in p for p in cache["problems"])
+    assert any("holds another form" in p for p in cache["problems"])
+    out = nlp.solve()
+    assert out.success and out.objective == pytest.approx(17.0140173, rel=1e-7)  # HS71 (Hock-Schittkowski 1981)
+    assert _compiled(monkeypatch, tmp_path).times["form_cache"]["hits"] == 3  # rewritten
+
+
+def test_an_unwritable_directory_never_stops_a_solve(monkeypatch, tmp_path):
+    blocker = tmp_path / "a-file"
+    blocker.write_text("not a directory")
+    nlp = _compiled(monkeypatch, blocker / "cache")
+    cache = nlp.times["form_cache"]
+    assert cache["written"] == 0 and len(cache["problems"]) == 1 and "writing to" in cache["problems"][0]
+    assert nlp.solve().success
+
+
+def test_the_directory_names_the_software(monkeypatch, tmp_path):
+    monkeypatch.setenv("TUBEWRIGHT_FORM_CACHE", str(tmp_path))
+    here = form_cache.cache_directory()
+    assert here.parent == tmp_path and here.name.startswith(f"v{form_cache.FORMAT}-py")
+    monkeypatch.setattr(form_cache, "_SOURCES", form_cache._SOURCES[:-1])  # other source files: another tag
+    monkeypatch.setattr(form_cache, "_TAG", [])
+    assert form_cache.cache_directory() != here
+    for off in ("off", "", "0"):
+        monkeypatch.setenv("TUBEWRIGHT_FORM_CACHE", off)
+        assert form_cache.cache_directory() is None
+    monkeypatch.delenv("TUBEWRIGHT_FORM_CACHE")
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "xdg"))
+    assert form_cache.cache_directory().parent == tmp_path / "xdg" / "tubewright" / "forms"

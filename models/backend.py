@@ -19,7 +19,7 @@ NUMPY = SimpleNamespace(name="numpy", exp=np.exp, log=np.log, sqrt=np.sqrt, wher
 
 def pyomo_backend():
     """The Pyomo backend (imported on demand so that the simulator does not pay for Pyomo)."""
-    from pyomo.environ import Expr_if, exp, log, sqrt
+    from pyomo.core import Expr_if, exp, log, sqrt
 
     def where(condition, a, b):
         return Expr_if(IF=condition, THEN=a, ELSE=b)

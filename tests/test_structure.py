@@ -139,6 +139,14 @@ def test_pyomo_import_leaves_scipy_stats_unexecuted_until_used():
     assert out == "True"
 
 
+def test_optimiser_imports_pyomo_core_and_dae_only():
+    # pyomo.environ loads every Pyomo package (solvers, GDP, networks...): 0.1 s of each start for nothing
+    out = _run("import sys, tubewright.optimizer.design.optimise, tubewright.optimizer.fitting.estimate, "
+               "tubewright.optimizer.screening.reoptimise; import pyomo.core as pyo; "
+               "print('pyomo.environ' in sys.modules, pyo.TransformationFactory('dae.collocation') is not None)")
+    assert out == "False True"
+
+
 def test_version_is_read_from_the_distribution():
     import importlib.metadata
 

@@ -8,7 +8,7 @@ import multiprocessing
 import os
 
 import numpy as np
-import pyomo.environ as pyo
+import pyomo.core as pyo
 from tubewright.optimizer.design.collocation import initialise_from_simulation
 from tubewright.optimizer.design.goals import GOALS
 from tubewright.optimizer.design.problem import DesignProblem, design_case

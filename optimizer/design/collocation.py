@@ -13,8 +13,9 @@ from __future__ import annotations
 from dataclasses import replace
 
 import numpy as np
+import pyomo.core as pyo  # pyomo.core and pyomo.dae only: pyomo.environ's other packages cost 0.1 s a start
 import pyomo.dae as dae
-import pyomo.environ as pyo
+import pyomo.dae.plugins.colloc  # noqa: F401  (registers the "dae.collocation" transformation)
 from tubewright.models.backend import NUMPY, pyomo_backend
 from tubewright.models.balances import axial_derivatives
 from tubewright.models.correlations import water_saturation_temperature

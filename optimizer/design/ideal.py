@@ -4,7 +4,7 @@ layout from ideal temperature control."""
 
 from __future__ import annotations
 
-import pyomo.environ as pyo
+import pyomo.core as pyo
 from tubewright.optimizer.design.problem import DesignProblem
 
 

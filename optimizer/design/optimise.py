@@ -7,7 +7,7 @@ import math
 import time
 from functools import partial
 
-import pyomo.environ as pyo
+import pyomo.core as pyo
 from tubewright.models.checks import run_checks
 from tubewright.models.errors import ComputationFailed
 from tubewright.models.limits import LIMITS

@@ -10,7 +10,7 @@ import time
 from dataclasses import replace
 
 import numpy as np
-import pyomo.environ as pyo
+import pyomo.core as pyo
 from tubewright.models.backend import NUMPY, pyomo_backend
 from tubewright.models.correlations import water_saturation_pressure, water_saturation_temperature
 from tubewright.models.errors import ComputationFailed

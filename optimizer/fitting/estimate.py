@@ -180,7 +180,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
                                 f"missing: the data ({data_path}) measure {name}; state its error (absolute, or "
                                 'relative as "2 %")')
     # the inputs are read and checked: only now the heavy imports (a bad file is refused at once)
-    import pyomo.environ as pyo
+    import pyomo.core as pyo
     from tubewright.models.simulator import simulate
     from tubewright.optimizer.design.collocation import (
         build_tube_model,

@@ -26,10 +26,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pyomo.core.expr as EXPR
+from pyomo.core import value
 from pyomo.core.base.constraint import Constraint
 from pyomo.core.base.objective import Objective, maximize
 from pyomo.core.expr.calculus.derivatives import differentiate
-from pyomo.environ import value
 from tubewright.optimizer.nlp.form_cache import FormCache
 from tubewright.optimizer.nlp.presolve import LinearElimination
 from tubewright.optimizer.nlp.pyomo_rules import install_rules

@@ -10,7 +10,7 @@ calls it when it compiles a model, never at import), only for node types that ha
 
 from __future__ import annotations
 
-from pyomo.environ import Expr_if
+from pyomo.core import Expr_if
 
 SUPPORTED_PYOMO = ((6, 7), (7, 0))  # [from, to): the versions whose private rule table this was checked on
 

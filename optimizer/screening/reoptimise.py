@@ -6,7 +6,7 @@ from __future__ import annotations
 import time
 
 import numpy as np
-import pyomo.environ as pyo
+import pyomo.core as pyo
 from tubewright.models.errors import CaseError, ComputationFailed
 from tubewright.models.outcomes import Reason
 from tubewright.optimizer.design.problem import DesignProblem

@@ -290,3 +290,81 @@ def test_structure_keys_separate_what_prints_differently_and_join_what_prints_al
         assert [id(p) for p in inputs] == [id(p) for p in printer.inputs]
     # equal keys print to equal text
     assert _Printer().source("value", [exprs["base"]]) == _Printer().source("value", [exprs["other vars"]])
+
+
+def dangling_model(extra_row: bool = False, u_in_objective: bool = False, cubic: bool = False):
+    """x, y bounded with a nonlinear row; u and w free, held only by two rows of their own (nonlinear in w):
+    a dangling block. ``extra_row`` puts u into a limit too, ``u_in_objective`` into the objective: then
+    they are no block. ``cubic``: two blocks of one row each, u^3 and w^3 against x and y."""
+    m = pyo.ConcreteModel()
+    m.x = pyo.Var(bounds=(0.5, 5), initialize=1.0)
+    m.y = pyo.Var(bounds=(0.5, 5), initialize=1.0)
+    m.u = pyo.Var(initialize=0.0)
+    m.w = pyo.Var(initialize=0.0)
+    m.d = pyo.Var(initialize=0.0)  # defined by a linear row: the compact problem exists
+    m.define_d = pyo.Constraint(expr=m.d == 2 * m.x - m.y)
+    m.curve = pyo.Constraint(expr=m.x * m.y >= 2.0)
+    if cubic:
+        m.first = pyo.Constraint(expr=m.u**3 == m.x - 0.2)
+        m.second = pyo.Constraint(expr=m.w**3 == m.y)
+    else:
+        m.first = pyo.Constraint(expr=m.u + pyo.exp(m.w) == m.x**2 + 5.0)
+        m.second = pyo.Constraint(expr=m.u - m.w * m.y == 3.0)
+    if extra_row:
+        m.limit = pyo.Constraint(expr=m.u <= 50.0)
+    m.obj = pyo.Objective(expr=(m.x - 3) ** 2 + (m.y - 0.2) ** 2 + m.d**2 + (m.u if u_in_objective else 0.0))
+    return m
+
+
+def _block_names(nlp):
+    cut = nlp.compact.dangling if nlp.compact is not None else None
+    if cut is None:
+        return []
+    return sorted(nlp.variables[nlp.compact.kept[j]].name for j in cut.cols)
+
+
+def test_a_dangling_block_is_left_to_newton_with_the_same_point_and_multipliers():
+    # Reference: the same model solved with the block inside IPOPT's problem.
+    nlp = CompiledNLP(dangling_model())
+    assert _block_names(nlp) == ["u", "w"] and nlp.times["ipopt_variables"] == 2
+    ref = nlp.solve(dangling=False)
+    m = nlp.model
+    for v in (m.x, m.y, m.u, m.w):
+        v.set_value(1.0 if v.name in "xy" else 0.0)
+    out = nlp.solve()
+    assert ref.success and out.success and "dangling_recovery_failed" not in out.times
+    assert out.x == pytest.approx(ref.x, rel=1e-8, abs=1e-10)
+    assert out.multipliers == pytest.approx(ref.multipliers, abs=1e-8)
+    # the block's rows hold at the answer, and their multipliers are zero (stationarity in u and w)
+    assert pyo.value(m.u + pyo.exp(m.w)) == pytest.approx(pyo.value(m.x**2 + 5.0), rel=1e-12)
+    assert pyo.value(m.u - m.w * m.y) == pytest.approx(3.0, rel=1e-12)
+    assert nlp.multiplier(m.first) == 0.0 and nlp.multiplier(m.second) == 0.0
+
+
+@pytest.mark.parametrize("kw", [{"extra_row": True}, {"u_in_objective": True}])
+def test_variables_read_elsewhere_are_no_dangling_block(kw):
+    assert _block_names(CompiledNLP(dangling_model(**kw))) == []
+
+
+def test_a_bound_set_later_keeps_the_block_in_the_problem():
+    m = dangling_model()
+    nlp = CompiledNLP(m)
+    m.w.setlb(1.0)  # w = 0.854 without it: the bound binds, and the block is no longer free
+    out = nlp.solve()
+    assert out.success and pyo.value(m.w) == pytest.approx(1.0, abs=1e-6)
+    assert out.bound_multipliers_lower[[v is m.w for v in nlp.variables].index(True)] > 1e-6
+
+
+def test_a_block_newton_cannot_solve_falls_back_to_the_whole_problem(monkeypatch):
+    from tubewright.optimizer.nlp import dangling
+
+    m = dangling_model(cubic=True)
+    m.u.set_value(1.0)
+    m.w.set_value(1.0)
+    nlp = CompiledNLP(m)
+    assert _block_names(nlp) == ["u", "w"]
+    monkeypatch.setattr(dangling, "NEWTON_STEPS", 1)  # too few for the cubic rows from u = w = 1
+    out = nlp.solve()
+    assert out.success and out.times.get("dangling_recovery_failed") is True
+    assert pyo.value(m.u**3) == pytest.approx(pyo.value(m.x) - 0.2, abs=1e-7)
+    assert pyo.value(m.w**3) == pytest.approx(pyo.value(m.y), abs=1e-7)

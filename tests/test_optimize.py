@@ -165,6 +165,31 @@ def test_ideal_bound_logsdon_biegler_temperature_profile():
     assert temps[1] > temps[-1]  # hot at the inlet, cooler downstream: the published profile's shape
 
 
+def test_output_only_states_are_solved_after_ipopt():
+    # The heat removed and the residence time feed no limit of this problem: IPOPT solves without them
+    # (nlp.dangling) and Newton's method fills them in; the reference is the same model with them inside.
+    from tubewright.optimizer.design.ideal import free_temperature_profile
+
+    p = DesignProblem(make(logsdon_biegler_data(10)))
+    p.build(modify=free_temperature_profile(p))
+    nlp = p.nlp
+    cut = nlp.compact.dangling
+    names = {nlp.variables[nlp.compact.kept[j]].name.split("[")[0] for j in cut.cols}
+    assert names == {"Q", "tau"} and len(cut.cols) == 2 * 31  # the inlet and the 30 collocation points
+    x0 = [v.value for v in nlp.variables]
+    outs = []
+    for dangling in (False, True):
+        for v, value in zip(nlp.variables, x0):
+            v.set_value(value, skip_validation=True)
+        outs.append(nlp.solve(options={**p.linear_solver_options(), "tol": 1e-9}, scaling=p.scaling(),
+                              dangling=dangling))
+    assert all(o.success for o in outs)
+    assert outs[1].objective == pytest.approx(outs[0].objective, rel=1e-10)
+    assert outs[1].x == pytest.approx(outs[0].x, rel=1e-8, abs=1e-9)
+    assert outs[1].multipliers == pytest.approx(outs[0].multipliers, rel=1e-6, abs=1e-9)
+    assert outs[1].constraint_violation < 1e-7
+
+
 def test_cli_optimize_json_and_infeasible_report(demo_dir, capsys):
     import json
 

@@ -500,11 +500,17 @@ class CompiledNLP:
         self.times = {"compile_s": time.perf_counter() - t0, "differentiate_s": t_compact - t_forms,
                       "presolve_s": time.perf_counter() - t_compact, "forms": len(self.forms),
                       "replicated_blocks": self.replicated, "form_cache": cache.summary(),
-                      "ipopt_variables": self.compact.n if self.compact else self.n,
-                      "ipopt_constraints": self.compact.m if self.compact else self.m}
+                      "ipopt_variables": self._ipopt_size()[0], "ipopt_constraints": self._ipopt_size()[1]}
         self._warm = None
         self._deriv_key, self._deriv_values = None, {}
         self._bound_exprs = None
+
+    def _ipopt_size(self) -> tuple[int, int]:
+        """Variables and constraints IPOPT sees (after the compact problem and its dangling blocks)."""
+        if self.compact is None:
+            return self.n, self.m
+        cut = self.compact.dangling
+        return (cut.n, cut.m) if cut is not None else (self.compact.n, self.compact.m)
 
     def _replica_pairs(self, replicas) -> list:
         """For every replica that passes the check (see __init__): (its template's constraints, its own in the
@@ -662,9 +668,12 @@ class CompiledNLP:
         x = np.array([0.0 if v.value is None else v.value for v in self.variables], dtype=float)
         return np.clip(x, self.x_lb, self.x_ub)
 
-    def solve(self, options: dict | None = None, warm_start: bool = False, scaling=None) -> SolveOutcome:
+    def solve(self, options: dict | None = None, warm_start: bool = False, scaling=None,
+              dangling: bool = True) -> SolveOutcome:
         """Solve from the model's current variable values. ``warm_start`` reuses the multipliers of the
         previous solve. ``scaling``: (objective factor, variable factors, constraint factors) or None.
+        ``dangling``: leave the compact problem's dangling blocks (nlp.dangling) out of IPOPT's problem; when
+        a block cannot be solved from its rows afterwards, the problem is solved again with them.
         Writes the solution back into the model's variables."""
         import cyipopt
 
@@ -694,6 +703,27 @@ class CompiledNLP:
             calls = (red.objective, red.gradient, red.constraints, red.jacobian, red.hessian)
             jac_structure, hess_structure = (red.jac_rows, red.jac_cols), (red.hess_rows, red.hess_cols)
             cols, rows = red.kept, red.kept_rows
+        cut = red.dangling if red is not None and dangling else None
+        if cut is not None and not cut.applies(self.x_lb[red.kept], self.x_ub[red.kept], self.g_lb[red.kept_rows],
+                                               self.g_ub[red.kept_rows], INFINITY):
+            cut = None
+        if cut is not None:  # IPOPT's point z holds the compact problem's variables but the block's
+            y_block = x0[red.kept][cut.cols]
+            compact_calls = calls
+
+            def expand(z):
+                return cut.expand(z, y_block)
+
+            def hessian(z, lagrange, obj_factor):
+                compact_lagrange = np.zeros(red.m)
+                compact_lagrange[cut.keep_rows] = lagrange
+                return compact_calls[4](expand(z), compact_lagrange, obj_factor)[cut.hess_mask]
+
+            calls = (lambda z: compact_calls[0](expand(z)), lambda z: compact_calls[1](expand(z))[cut.keep_cols],
+                     lambda z: compact_calls[2](expand(z))[cut.keep_rows],
+                     lambda z: compact_calls[3](expand(z))[cut.jac_mask], hessian)
+            jac_structure, hess_structure = (cut.jac_rows, cut.jac_cols), (cut.hess_rows, cut.hess_cols)
+            cols, rows = red.kept[cut.keep_cols], red.kept_rows[cut.keep_rows]
 
         class _Problem:
             objective = staticmethod(timed(calls[0]))
@@ -740,10 +770,20 @@ class CompiledNLP:
             x, mult_g = np.asarray(y), np.asarray(info["mult_g"])
             zl, zu = np.asarray(info["mult_x_L"]), np.asarray(info["mult_x_U"])
         else:  # the whole model's point and multipliers (eliminated variables have no bounds)
-            x = red.full(np.asarray(y))
+            y = np.asarray(y)
+            if cut is not None:  # the block's variables from its rows; their multipliers are zero
+                y, solved = cut.recover(cut.expand(y, y_block), red.constraints, red.jacobian,
+                                        self.g_lb[red.kept_rows])
+                if not solved:
+                    for v, xv in zip(self.variables, red.full(y)):
+                        v.set_value(float(xv), skip_validation=True)
+                    again = self.solve(options, warm_start=False, scaling=scaling, dangling=False)
+                    again.times["dangling_recovery_failed"] = True
+                    return again
+            x = red.full(y)
             mult_g, zl, zu = np.zeros(self.m), np.zeros(self.n), np.zeros(self.n)
-            mult_g[red.kept_rows] = info["mult_g"]
-            zl[red.kept], zu[red.kept] = info["mult_x_L"], info["mult_x_U"]
+            mult_g[rows] = info["mult_g"]
+            zl[cols], zu[cols] = info["mult_x_L"], info["mult_x_U"]
             with np.errstate(all="ignore"):
                 mult_g[red.rows] = red.defining_multipliers(x, mult_g[red.kept_rows])
         total = time.perf_counter() - t0

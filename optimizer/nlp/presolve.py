@@ -23,6 +23,7 @@ from __future__ import annotations
 import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.linalg import spsolve_triangular
+from tubewright.optimizer.nlp.dangling import find_dangling
 
 MAX_DEPTH = 8
 
@@ -92,6 +93,11 @@ class LinearElimination:
         self.jac_rows, self.jac_cols, self._jac_keys = self._structure(self._expand_jacobian(t_struct))
         self.hess_rows, self.hess_cols, self._hess_keys = self._structure(self._expand_hessian(t_struct))
         self._coef_key = None
+        in_objective = np.zeros(self.n, dtype=bool)
+        in_objective[t_struct[nlp.objective_form.var_index[0]].indices] = True
+        self.dangling = find_dangling(self.n, self.m, self.jac_rows, self.jac_cols, self.hess_rows, self.hess_cols,
+                                      ~bounded[self.kept], [nlp.constraints[r].equality for r in self.kept_rows],
+                                      in_objective)
 
     # --- the map x = T y + t -----------------------------------------------------------------------------
     def _map(self, other_coef, own_coef) -> sp.csr_matrix:

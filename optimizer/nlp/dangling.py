@@ -1,0 +1,113 @@
+"""Dangling blocks: variables that IPOPT need not see.
+
+A block is a set V of variables without bounds that appear in no objective term and in no constraint but
+a set R of equality rows of their own, with as many rows as variables and a structurally non-singular
+Jacobian J_RV. Given the other variables, R fixes V and nothing else: the rest of the problem does not
+depend on V. A collocation model's output-only states are such blocks (the heat removed and the residence
+time along the tube, whose balances nothing else reads). IPOPT solves the problem without V and R; V is
+computed afterwards by Newton's method on R (one step when R is linear in V). The multipliers of R are
+zero: stationarity in V reads J_RV' lambda_R = 0, as V is in no objective term and in no other row, and
+J_RV is non-singular. V has no bound multipliers.
+
+Found once per compiled problem from its structure (in the space of the compact problem, nlp.presolve);
+applied at a solve only while V is still free and R still equalities."""
+
+from __future__ import annotations
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.csgraph import connected_components, maximum_bipartite_matching
+from scipy.sparse.linalg import splu
+
+NEWTON_STEPS = 20
+
+
+class DanglingBlocks:
+    """The variables ``cols`` and rows ``rows`` (indices of the problem they were found in) left out of
+    the problem IPOPT sees, and the index maps between the two problems."""
+
+    def __init__(self, cols, rows, n, m, jac_rows, jac_cols, hess_rows, hess_cols):
+        self.cols, self.rows = np.asarray(cols, dtype=np.int64), np.asarray(rows, dtype=np.int64)
+        self.keep_cols = np.setdiff1d(np.arange(n), self.cols)
+        self.keep_rows = np.setdiff1d(np.arange(m), self.rows)
+        col_new = np.full(n, -1, dtype=np.int64)
+        col_new[self.keep_cols] = np.arange(len(self.keep_cols))
+        row_new = np.full(m, -1, dtype=np.int64)
+        row_new[self.keep_rows] = np.arange(len(self.keep_rows))
+        self.jac_mask = (row_new[jac_rows] >= 0) & (col_new[jac_cols] >= 0)
+        self.jac_rows, self.jac_cols = row_new[jac_rows[self.jac_mask]], col_new[jac_cols[self.jac_mask]]
+        self.hess_mask = (col_new[hess_rows] >= 0) & (col_new[hess_cols] >= 0)
+        self.hess_rows, self.hess_cols = col_new[hess_rows[self.hess_mask]], col_new[hess_cols[self.hess_mask]]
+        # the block's own Jacobian entries, for Newton's method on R
+        block_col = np.full(n, -1, dtype=np.int64)
+        block_col[self.cols] = np.arange(len(self.cols))
+        block_row = np.full(m, -1, dtype=np.int64)
+        block_row[self.rows] = np.arange(len(self.rows))
+        own = (block_row[jac_rows] >= 0) & (block_col[jac_cols] >= 0)
+        self._own = np.flatnonzero(own)
+        self._own_rows, self._own_cols = block_row[jac_rows[own]], block_col[jac_cols[own]]
+        self.n, self.m = len(self.keep_cols), len(self.keep_rows)
+
+    def applies(self, x_lb, x_ub, g_lb, g_ub, infinity: float) -> bool:
+        """Whether the block variables are still free and its rows still equalities (bounds may have been
+        set after compilation)."""
+        return bool(np.all(x_lb[self.cols] <= -infinity) and np.all(x_ub[self.cols] >= infinity)
+                    and np.all(g_lb[self.rows] == g_ub[self.rows]))
+
+    def expand(self, z, y_block):
+        """The point of the whole problem from IPOPT's point z and the block variables' values."""
+        y = np.empty(len(self.keep_cols) + len(self.cols))
+        y[self.keep_cols] = z
+        y[self.cols] = y_block
+        return y
+
+    def recover(self, y, constraints, jacobian, target) -> tuple[np.ndarray, bool]:
+        """y with the block variables solved from their rows (``constraints(y)`` and ``jacobian(y)`` of the
+        problem the block was found in, ``target`` its row bounds): (y, converged)."""
+        y = np.array(y, dtype=float)
+        shape = (len(self.rows), len(self.cols))
+        for _ in range(NEWTON_STEPS):
+            with np.errstate(all="ignore"):
+                residual = constraints(y)[self.rows] - target[self.rows]
+                values = jacobian(y)[self._own]
+            if not (np.all(np.isfinite(residual)) and np.all(np.isfinite(values))):
+                return y, False
+            try:
+                step = splu(sp.csc_matrix((values, (self._own_rows, self._own_cols)), shape=shape)).solve(residual)
+            except RuntimeError:  # numerically singular at this point
+                return y, False
+            y[self.cols] -= step
+            if np.max(np.abs(step), initial=0.0) <= 1e-12 * (1.0 + np.max(np.abs(y[self.cols]), initial=0.0)):
+                return y, True
+        return y, False
+
+
+def find_dangling(n, m, jac_rows, jac_cols, hess_rows, hess_cols, free, equality, in_objective):
+    """The dangling blocks of a problem (n variables, m rows, Jacobian and Hessian structures; ``free``,
+    ``in_objective`` per variable, ``equality`` per row), or None. A connected group of free variables
+    outside the objective, with the rows that hold them, is a block when it has as many rows as variables,
+    every row an equality and a structurally non-singular Jacobian (a perfect bipartite matching)."""
+    candidate = np.asarray(free, dtype=bool) & ~np.asarray(in_objective, dtype=bool)
+    touch = candidate[jac_cols]
+    if not touch.any():
+        return None
+    r, c = jac_rows[touch], jac_cols[touch]
+    graph = sp.coo_matrix((np.ones(len(r)), (c, n + r)), shape=(n + m, n + m))
+    _, label = connected_components(graph, directed=False)
+    block_cols, block_rows = [], []
+    entry_label = label[c]
+    order = np.argsort(entry_label, kind="stable")
+    groups = np.split(order, np.flatnonzero(np.diff(entry_label[order])) + 1)
+    for group in groups:  # the entries of one connected group
+        rows, local_r = np.unique(r[group], return_inverse=True)
+        cols, local_c = np.unique(c[group], return_inverse=True)
+        if len(rows) != len(cols) or not all(equality[row] for row in rows):
+            continue
+        pattern = sp.csr_matrix((np.ones(len(group)), (local_r.reshape(-1), local_c.reshape(-1))),
+                                shape=(len(rows), len(cols)))
+        if np.all(maximum_bipartite_matching(pattern, perm_type="column") >= 0):
+            block_cols += cols.tolist()
+            block_rows += rows.tolist()
+    if not block_cols:
+        return None
+    return DanglingBlocks(sorted(block_cols), sorted(block_rows), n, m, jac_rows, jac_cols, hess_rows, hess_cols)

@@ -58,6 +58,23 @@ def test_fit_agrees_with_least_squares_on_the_analytic_model(tmp_path):
     k_case = out.case_values["r1"]["k_ref"]  # back at the case's own T_ref (350 K)
     assert k_case == pytest.approx(theta[0] * math.exp(-theta[1] / R * (1 / T_REF - 1 / out.reference_temperature)))
     assert len(out.residuals) == 8 and out.excluded == []
+    assert out.solver["statistics_from"] == "collocation sensitivities"
+    assert out.solver["mesh_check_sigma"] < 1e-2 and not out.warnings
+
+
+def test_collocation_sensitivities_equal_the_integrators_central_differences(tmp_path, monkeypatch):
+    # The same fit with its statistics from central differences of the adaptive integrator (the fall-back
+    # when the model's rows do not fix its states): the same covariance and residuals within the mesh error.
+    import tubewright.optimizer.fitting.estimate as estimate
+
+    case, data, _ = write_lab(tmp_path)
+    out = fit(case, data)
+    monkeypatch.setattr(estimate, "residual_jacobian", lambda *args: None)
+    ref = fit(case, data)
+    assert ref.solver["statistics_from"] == "central differences of the adaptive integrator"
+    assert out.statistics.covariance == pytest.approx(ref.statistics.covariance, rel=1e-5)  # 3.6e-7 measured
+    fitted = [r["fitted"] for r in out.residuals]
+    assert fitted == pytest.approx([r["fitted"] for r in ref.residuals], abs=1e-2 * SIGMA)
 
 
 def test_reference_temperature_far_from_the_data_correlates_the_estimates(tmp_path):

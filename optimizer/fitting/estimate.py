@@ -22,6 +22,7 @@ from tubewright.models.outcomes import Reason, Status
 from tubewright.models.reactions import arrhenius
 from tubewright.models.summary import conversion
 from tubewright.optimizer.fitting.data import read_runs
+from tubewright.optimizer.fitting.sensitivity import residual_jacobian
 from tubewright.optimizer.fitting.spec import read_fit
 from tubewright.optimizer.fitting.statistics import (
     arrhenius_reference_temperature,
@@ -29,7 +30,8 @@ from tubewright.optimizer.fitting.statistics import (
     lack_of_fit,
 )
 
-JACOBIAN_STEP = 1e-4  # relative step of the central differences of the residual Jacobian
+JACOBIAN_STEP = 1e-4  # relative step of the central differences of the residual Jacobian (fall-back)
+MESH_TOLERANCE_SIGMA = 0.1  # collocation and integrator residuals at the estimate further apart: a warning
 JACOBIAN_RTOL = 1e-10  # integrator tolerance of those simulations (the step's effect is ~1e-4 relative)
 
 
@@ -238,7 +240,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
                           initialize=lambda m, i: internal0[i])
         values = [pyo.exp(m.theta[k]) if is_k[k] else m.theta[k] for k in range(len(names))]
         m.run = pyo.Block(range(len(usable)))
-        observations, terms, x_scale, g_scale = [], [], {}, {}
+        observations, weighted, x_scale, g_scale = [], [], {}, {}
         for i, (run, sim) in enumerate(usable):
             b = m.run[i]
             kinetics = kinetics_at(run.case, spec, t_fit, values, pyomo_backend())
@@ -260,9 +262,9 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
                     expr = predicted(run.case, name, f_in, f_out, b.T[1.0], pcase.tube.count,
                                      lambda tc, b=b, L=run.case.tube.length: collocation_value(
                                          b, b.T, spec.thermocouples[tc] / L))
-                terms.append(((expr - y) / sigma) ** 2)
+                weighted.append((expr - y) / sigma)
                 observations.append((run, name, y, sigma))
-        m.objective = pyo.Objective(expr=0.5 * sum(terms))
+        m.objective = pyo.Objective(expr=0.5 * sum(r**2 for r in weighted))
         # runs that differ only in what their blocks hold as inputs or bounds share the printed forms
         alike: dict = {}
         for i, (run, sim) in enumerate(usable):
@@ -296,13 +298,28 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
 
     phases["estimation"] = time.perf_counter() - t_phase
     t_phase = time.perf_counter()
-    residuals, jac, sim_failed = _residuals_and_jacobian(usable, observations, spec, t_fit, theta)
+    at_estimate = residual_jacobian(nlp, list(m.theta.values()), weighted)
+    checked, sim_failed = _residuals_and_jacobian(usable, spec, t_fit, theta, jacobian=at_estimate is None)
+    if at_estimate is not None:  # the collocation model's own residuals and sensitivities
+        residuals, jac = at_estimate[0], at_estimate[1] / np.where(is_k, theta, 1.0)  # d/d ln k -> d/dk
+        out.solver["statistics_from"] = "collocation sensitivities"
+    else:
+        residuals, jac = checked
+        out.solver["statistics_from"] = "central differences of the adaptive integrator"
     phases["statistics_jacobian"] = time.perf_counter() - t_phase
     out.solver["phases_s"] = phases
     if sim_failed:
         out.message = f"the adaptive integrator could not simulate run {sim_failed} at or near the estimate"
         out.reason = Reason.RUN_NOT_SIMULATED
         return out
+    if at_estimate is not None:  # the integrator checks the mesh: its residuals at the estimate beside the model's
+        gap = np.abs(checked[0] - residuals)
+        worst = int(np.argmax(gap))
+        out.solver["mesh_check_sigma"] = float(gap[worst])
+        if gap[worst] > MESH_TOLERANCE_SIGMA:
+            run, name, _, _ = observations[worst]
+            out.warnings.append(f"the collocation mesh and the adaptive integrator differ by {gap[worst]:.2g} sigma "
+                                f"on {name} of row {run.row} at the estimate: refine [numerics] finite_elements")
     stats = gauss_newton_statistics(names, theta, residuals, jac, error_model=spec.error_model)
     groups = [f"{sorted(run.conditions.items())}|{name}" for run, name, _, _ in observations]
     out.lack_of_fit = lack_of_fit(residuals, groups, len(names))
@@ -387,8 +404,9 @@ def _more_starts(m, nlp, usable, spec, t_fit, box, first, opts, scaling, out):
     return best
 
 
-def _residuals_and_jacobian(usable, observations, spec, t_fit, theta):
-    """Weighted residuals at ``theta`` and their Jacobian by central differences, both from simulations."""
+def _residuals_and_jacobian(usable, spec, t_fit, theta, jacobian: bool = True):
+    """((weighted residuals at ``theta``, their Jacobian by central differences or None), the row of a run
+    that could not be simulated or None), both from the adaptive integrator."""
     def residuals_at(values):
         r = []
         for run, _ in usable:
@@ -401,8 +419,8 @@ def _residuals_and_jacobian(usable, observations, spec, t_fit, theta):
         return np.array(r), None
 
     r0, failed = residuals_at(theta)
-    if failed is not None:
-        return None, None, failed
+    if failed is not None or not jacobian:
+        return (r0, None), failed
     jac = np.empty((len(r0), len(theta)))
     for k in range(len(theta)):
         h = JACOBIAN_STEP * max(abs(theta[k]), 1e-300)
@@ -412,6 +430,6 @@ def _residuals_and_jacobian(usable, observations, spec, t_fit, theta):
         r_up, failed = residuals_at(up)
         r_down, failed_down = residuals_at(down)
         if failed is not None or failed_down is not None:
-            return None, None, failed or failed_down
+            return (None, None), failed or failed_down
         jac[:, k] = (r_up - r_down) / (2 * h)
-    return r0, jac, None
+    return (r0, jac), None

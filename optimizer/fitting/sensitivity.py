@@ -1,0 +1,70 @@
+"""The Jacobian of a fit's weighted residuals with respect to its parameters, from the collocation model at
+the estimate.
+
+The run blocks' equality rows g(s, theta) = 0 fix the states s for given parameters theta (the design is
+fixed in a fit: as many rows as states). By the implicit function theorem ds/dtheta = -J_s^-1 J_theta,
+with J_s and J_theta the model's Jacobian in the states and in the parameters at the estimate (one sparse
+LU of J_s for all parameters). A weighted residual r(s, theta) = (prediction - measured) / sigma then has
+dr/dtheta = dr/dtheta|_s + dr/ds ds/dtheta: the direct sensitivities, of the discretised model rather than
+of the differential equations.
+
+The residuals and their Jacobian are those of the very problem IPOPT solved, so the Gauss-Newton
+statistics describe the estimate that was found; the integrator, at the estimate, checks the mesh
+(estimate.fit)."""
+
+from __future__ import annotations
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.linalg import splu
+
+
+def residual_jacobian(nlp, parameters, residuals):
+    """(weighted residuals, their Jacobian in the parameters as IPOPT sees them) at the model's current
+    point, or None when the rows do not fix the states (not square, an inequality, a singular J_s).
+    ``nlp``: the fit's CompiledNLP after its solve; ``parameters``: the Pyomo variables of the free
+    parameters; ``residuals``: Pyomo expressions of the weighted residuals."""
+    from pyomo.core import value
+    from pyomo.core.expr.calculus.derivatives import differentiate
+    from pyomo.core.expr.visitor import identify_variables
+
+    position = {id(v): i for i, v in enumerate(nlp.variables)}
+    theta = [position.get(id(p)) for p in parameters]
+    if any(i is None for i in theta):
+        return None
+    is_theta = np.zeros(nlp.n, dtype=bool)
+    is_theta[theta] = True
+    states = np.flatnonzero(~is_theta)
+    if len(states) != nlp.m or np.any(nlp.g_lb != nlp.g_ub):
+        return None
+    x = np.array([v.value for v in nlp.variables], dtype=float)
+    with np.errstate(all="ignore"):
+        values = nlp._jac(x)
+    if not np.all(np.isfinite(values)):
+        return None
+    jac = sp.csr_matrix((values, (nlp.jac_rows, nlp.jac_cols)), shape=(nlp.m, nlp.n))
+    try:
+        lu = splu(jac[:, states].tocsc())
+    except RuntimeError:  # singular: the rows do not fix the states
+        return None
+    ds = -lu.solve(jac[:, theta].toarray())  # (states, parameters)
+    if not np.all(np.isfinite(ds)):
+        return None
+    state_row = np.full(nlp.n, -1, dtype=np.int64)
+    state_row[states] = np.arange(len(states))
+    theta_col = {i: k for k, i in enumerate(theta)}
+    r = np.empty(len(residuals))
+    out = np.zeros((len(residuals), len(parameters)))
+    for row, expr in enumerate(residuals):
+        r[row] = value(expr)
+        wrt = list(identify_variables(expr, include_fixed=False))
+        if not wrt:
+            continue
+        grads = differentiate(expr, wrt_list=wrt, mode=differentiate.Modes.reverse_numeric)
+        for v, g in zip(wrt, grads):
+            i = position[id(v)]
+            if i in theta_col:
+                out[row, theta_col[i]] += g
+            else:
+                out[row] += g * ds[state_row[i]]
+    return r, out

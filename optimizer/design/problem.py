@@ -304,7 +304,8 @@ class DesignProblem:
         its range (costs.shells_for): the number is fixed and the problem re-solved warm while it changes
         (at most ``passes`` times), so that every caller (optimum, rounding, standard tubes, starts, Pareto
         points) reports the same cost definition. The notes of the last solve are in ``shell_notes``."""
-        opts = {"max_iter": 500, "tol": 1e-7, "acceptable_tol": 1e-5, **self.linear_solver_options()}
+        opts = {"max_iter": 500, "tol": 1e-7, "acceptable_tol": 1e-5, "mu_strategy": "adaptive",
+                **self.linear_solver_options()}
         opts.update(options or {})
         outcome = self.nlp.solve(options=opts, warm_start=warm_start, scaling=self.scaling())
         self.shell_notes = []

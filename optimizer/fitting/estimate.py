@@ -277,7 +277,8 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     scaling = (1.0 / max(pyo.value(m.objective), 1.0), np.array([x_scale.get(id(v), 1.0) for v in nlp.variables]),
                np.array([g_scale.get(id(c), 1.0) for c in nlp.constraints]))
     num = base.numerics
-    opts = {"max_iter": 500, "tol": 1e-9, "mumps_pivtol": 1e-4, "mumps_pivot_order": num.mumps_pivot_order,
+    opts = {"max_iter": 500, "tol": 1e-9, "mu_strategy": "adaptive", "mumps_pivtol": 1e-4,
+            "mumps_pivot_order": num.mumps_pivot_order,
             "mumps_scaling": num.mumps_scaling, "mumps_permuting_scaling": num.mumps_permuting_scaling}
     phases["build_and_compile"] = time.perf_counter() - t_phase
     t_phase = time.perf_counter()

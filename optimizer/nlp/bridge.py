@@ -444,14 +444,17 @@ class CompiledNLP:
         templates = {id(c) for t_cons, _, _, _ in replicas for c in t_cons}
         printed = {}  # id(template constraint) -> (form text, printer, its global variable and input indices)
         texts = {}  # structure key -> (text, printer) of the first constraint with that structure
+        self._bound_parts = {}  # row -> (lower, upper): Pyomo builds body and bounds anew at every access
         for row, con in enumerate(self.constraints):
             if id(con) in deferred:
                 continue
-            key, con_vars, con_inputs = _structure(con.body)
+            lower, body, upper = con.to_bounded_expression()
+            self._bound_parts[row] = (lower, upper)
+            key, con_vars, con_inputs = _structure(body)
             known = texts.get(key)
             if known is None:
                 printer = _Printer()
-                known = texts[key] = (printer.source("value", [con.body]), printer)
+                known = texts[key] = (printer.source("value", [body]), printer)
                 if ([id(v) for v in printer.vars] != [id(v) for v in con_vars]
                         or [id(p) for p in printer.inputs] != [id(p) for p in con_inputs]):
                     raise RuntimeError(f"the structure walk and the printer order the variables of {con.name} "
@@ -461,7 +464,7 @@ class CompiledNLP:
             prows = global_indices(con_inputs, input_ids, self.inputs)
             if id(con) in templates:
                 printed[id(con)] = (text, printer, vrows, prows)
-            add(text, con.body, printer, [row], vrows, prows)
+            add(text, body, printer, [row], vrows, prows)
         row_of = {id(c): r for r, c in enumerate(self.constraints)} if replicas else {}
         for t_cons, cons, var_pairs, input_pairs in replicas:
             # a replica's components take the global indices of their template's, mapped by position
@@ -649,8 +652,12 @@ class CompiledNLP:
         lb, ub = np.empty(self.m), np.empty(self.m)
         live = ([], []), ([], [])
         for row, c in enumerate(self.constraints):
+            parts = self._bound_parts.pop(row, None)
+            if parts is None:
+                lower, _, upper = c.to_bounded_expression()
+                parts = (lower, upper)
             for side, (out, (rows, exprs), missing) in enumerate(((lb, live[0], -INFINITY), (ub, live[1], INFINITY))):
-                e = c.lower if side == 0 else c.upper
+                e = parts[side]
                 if e is None:
                     out[row] = missing
                 elif e.__class__ in EXPR.native_numeric_types or e.is_constant():

@@ -680,7 +680,8 @@ class CompiledNLP:
         """Solve from the model's current variable values. ``warm_start`` reuses the multipliers of the
         previous solve. ``scaling``: (objective factor, variable factors, constraint factors) or None.
         ``dangling``: leave the compact problem's dangling blocks (nlp.dangling) out of IPOPT's problem; when
-        a block cannot be solved from its rows afterwards, the problem is solved again with them.
+        a block cannot be solved from its rows afterwards, or its values leave a bound, the problem is solved
+        again with them (``times["dangling_fallback"]`` says why).
         Writes the solution back into the model's variables."""
         import cyipopt
 
@@ -711,8 +712,7 @@ class CompiledNLP:
             jac_structure, hess_structure = (red.jac_rows, red.jac_cols), (red.hess_rows, red.hess_cols)
             cols, rows = red.kept, red.kept_rows
         cut = red.dangling if red is not None and dangling else None
-        if cut is not None and not cut.applies(self.x_lb[red.kept], self.x_ub[red.kept], self.g_lb[red.kept_rows],
-                                               self.g_ub[red.kept_rows], INFINITY):
+        if cut is not None and not cut.applies(self.g_lb[red.kept_rows], self.g_ub[red.kept_rows]):
             cut = None
         if cut is not None:  # IPOPT's point z holds the compact problem's variables but the block's
             y_block = x0[red.kept][cut.cols]
@@ -781,11 +781,14 @@ class CompiledNLP:
             if cut is not None:  # the block's variables from its rows; their multipliers are zero
                 y, solved = cut.recover(cut.expand(y, y_block), red.constraints, red.jacobian,
                                         self.g_lb[red.kept_rows])
-                if not solved:
+                problem = ("Newton's method did not solve the block" if not solved else
+                           None if cut.within(y, self.x_lb[red.kept], self.x_ub[red.kept]) else
+                           "the block's values leave a bound")
+                if problem is not None:
                     for v, xv in zip(self.variables, red.full(y)):
                         v.set_value(float(xv), skip_validation=True)
                     again = self.solve(options, warm_start=False, scaling=scaling, dangling=False)
-                    again.times["dangling_recovery_failed"] = True
+                    again.times["dangling_fallback"] = problem
                     return again
             x = red.full(y)
             mult_g, zl, zu = np.zeros(self.m), np.zeros(self.n), np.zeros(self.n)

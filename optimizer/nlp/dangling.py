@@ -1,16 +1,17 @@
 """Dangling blocks: variables that IPOPT need not see.
 
-A block is a set V of variables without bounds that appear in no objective term and in no constraint but
-a set R of equality rows of their own, with as many rows as variables and a structurally non-singular
-Jacobian J_RV. Given the other variables, R fixes V and nothing else: the rest of the problem does not
-depend on V. A collocation model's output-only states are such blocks (the heat removed and the residence
-time along the tube, whose balances nothing else reads). IPOPT solves the problem without V and R; V is
-computed afterwards by Newton's method on R (one step when R is linear in V). The multipliers of R are
-zero: stationarity in V reads J_RV' lambda_R = 0, as V is in no objective term and in no other row, and
-J_RV is non-singular. V has no bound multipliers.
+A block is a set V of variables that appear in no objective term and in no constraint but a set R of
+equality rows of their own, with as many rows as variables and a structurally non-singular Jacobian J_RV.
+Given the other variables, R fixes V and nothing else: the rest of the problem does not depend on V. A
+collocation model's output-only states are such blocks (the heat removed and the residence time along the
+tube, whose balances nothing else reads; the coolant temperature when the fluid temperature is free). IPOPT
+solves the problem without V and R; V is computed afterwards by Newton's method on R (one step when R is
+linear in V). The multipliers of R are zero: stationarity in V reads J_RV' lambda_R - z_L + z_U = 0, as V
+is in no objective term and in no other row; with V inside its bounds z = 0, and J_RV is non-singular.
+When the values found leave a bound of V (or Newton fails), the whole problem is solved instead.
 
 Found once per compiled problem from its structure (in the space of the compact problem, nlp.presolve);
-applied at a solve only while V is still free and R still equalities."""
+applied at a solve only while R are still equalities."""
 
 from __future__ import annotations
 
@@ -48,11 +49,14 @@ class DanglingBlocks:
         self._own_rows, self._own_cols = block_row[jac_rows[own]], block_col[jac_cols[own]]
         self.n, self.m = len(self.keep_cols), len(self.keep_rows)
 
-    def applies(self, x_lb, x_ub, g_lb, g_ub, infinity: float) -> bool:
-        """Whether the block variables are still free and its rows still equalities (bounds may have been
-        set after compilation)."""
-        return bool(np.all(x_lb[self.cols] <= -infinity) and np.all(x_ub[self.cols] >= infinity)
-                    and np.all(g_lb[self.rows] == g_ub[self.rows]))
+    def applies(self, g_lb, g_ub) -> bool:
+        """Whether the block's rows are still equalities (bounds may have been changed after compilation)."""
+        return bool(np.all(g_lb[self.rows] == g_ub[self.rows]))
+
+    def within(self, y, lower, upper) -> bool:
+        """Whether the block variables' values in y keep their bounds."""
+        v = y[self.cols]
+        return bool(np.all(v >= lower[self.cols]) and np.all(v <= upper[self.cols]))
 
     def expand(self, z, y_block):
         """The point of the whole problem from IPOPT's point z and the block variables' values."""
@@ -83,22 +87,46 @@ class DanglingBlocks:
 
 
 def find_dangling(n, m, jac_rows, jac_cols, hess_rows, hess_cols, free, equality, in_objective):
-    """The dangling blocks of a problem (n variables, m rows, Jacobian and Hessian structures; ``free``,
-    ``in_objective`` per variable, ``equality`` per row), or None. A connected group of free variables
-    outside the objective, with the rows that hold them, is a block when it has as many rows as variables,
-    every row an equality and a structurally non-singular Jacobian (a perfect bipartite matching)."""
-    candidate = np.asarray(free, dtype=bool) & ~np.asarray(in_objective, dtype=bool)
-    touch = candidate[jac_cols]
-    if not touch.any():
+    """The dangling blocks of a problem (n variables, m rows, Jacobian and Hessian structures; ``free``
+    (without bounds) and ``in_objective`` per variable, ``equality`` per row) as one DanglingBlocks, or None.
+
+    A connected group of candidate variables outside the objective, with the rows that hold them, is a
+    block when it has as many rows as variables, every row an equality and a structurally non-singular
+    Jacobian (a perfect bipartite matching). Found in passes: free variables first, then any, each pass
+    among the rows no block has taken. A block found later may appear in the rows of one found earlier (the
+    coolant temperature in the rows of the heat removed), never the other way round: all blocks together
+    form a block-triangular system with non-singular diagonal blocks, which Newton's method solves at once."""
+    free = np.asarray(free, dtype=bool)
+    outside = ~np.asarray(in_objective, dtype=bool)
+    used_cols, used_rows = np.zeros(n, dtype=bool), np.zeros(m, dtype=bool)
+    for any_bounds in (False, True):
+        while True:
+            candidate = outside & ~used_cols & (free | any_bounds)
+            found = _blocks(n, m, jac_rows, jac_cols, candidate, ~used_rows, equality)
+            if not found:
+                break
+            for cols, rows in found:
+                used_cols[cols] = True
+                used_rows[rows] = True
+    if not used_cols.any():
         return None
+    return DanglingBlocks(np.flatnonzero(used_cols), np.flatnonzero(used_rows), n, m, jac_rows, jac_cols,
+                          hess_rows, hess_cols)
+
+
+def _blocks(n, m, jac_rows, jac_cols, candidate, open_rows, equality) -> list:
+    """[(columns, rows)] of the connected groups of candidate columns (through the open rows that touch
+    them) that are blocks."""
+    touch = candidate[jac_cols] & open_rows[jac_rows]
+    if not touch.any():
+        return []
     r, c = jac_rows[touch], jac_cols[touch]
     graph = sp.coo_matrix((np.ones(len(r)), (c, n + r)), shape=(n + m, n + m))
     _, label = connected_components(graph, directed=False)
-    block_cols, block_rows = [], []
     entry_label = label[c]
     order = np.argsort(entry_label, kind="stable")
-    groups = np.split(order, np.flatnonzero(np.diff(entry_label[order])) + 1)
-    for group in groups:  # the entries of one connected group
+    out = []
+    for group in np.split(order, np.flatnonzero(np.diff(entry_label[order])) + 1):  # one connected group
         rows, local_r = np.unique(r[group], return_inverse=True)
         cols, local_c = np.unique(c[group], return_inverse=True)
         if len(rows) != len(cols) or not all(equality[row] for row in rows):
@@ -106,8 +134,5 @@ def find_dangling(n, m, jac_rows, jac_cols, hess_rows, hess_cols, free, equality
         pattern = sp.csr_matrix((np.ones(len(group)), (local_r.reshape(-1), local_c.reshape(-1))),
                                 shape=(len(rows), len(cols)))
         if np.all(maximum_bipartite_matching(pattern, perm_type="column") >= 0):
-            block_cols += cols.tolist()
-            block_rows += rows.tolist()
-    if not block_cols:
-        return None
-    return DanglingBlocks(sorted(block_cols), sorted(block_rows), n, m, jac_rows, jac_cols, hess_rows, hess_cols)
+            out.append((cols, rows))
+    return out

@@ -86,44 +86,61 @@ class DanglingBlocks:
         return y, False
 
 
-def find_dangling(n, m, jac_rows, jac_cols, hess_rows, hess_cols, free, equality, in_objective):
+def find_dangling(n, m, jac_rows, jac_cols, hess_rows, hess_cols, free, equality, in_objective, groups=None):
     """The dangling blocks of a problem (n variables, m rows, Jacobian and Hessian structures; ``free``
-    (without bounds) and ``in_objective`` per variable, ``equality`` per row) as one DanglingBlocks, or None.
+    (without bounds) and ``in_objective`` per variable, ``equality`` per row; ``groups``: a label per
+    variable, e.g. its indexed Pyomo component) as one DanglingBlocks, or None.
 
-    A connected group of candidate variables outside the objective, with the rows that hold them, is a
-    block when it has as many rows as variables, every row an equality and a structurally non-singular
-    Jacobian (a perfect bipartite matching). Found in passes: free variables first, then any, each pass
-    among the rows no block has taken. A block found later may appear in the rows of one found earlier (the
-    coolant temperature in the rows of the heat removed), never the other way round: all blocks together
-    form a block-triangular system with non-singular diagonal blocks, which Newton's method solves at once."""
+    A set of candidate variables outside the objective, with the rows that hold them, is a block when it has
+    as many rows as variables, every row an equality and a structurally non-singular Jacobian (a perfect
+    bipartite matching). Tried in passes, each among the variables and rows no block has taken: connected
+    groups of free variables (through the rows that touch them), then the variables of one label (a pressure
+    whose rows also hold the flows it depends on), then connected groups of any candidates. A block found
+    later may appear in the rows of one found earlier (the coolant temperature in the rows of the heat
+    removed), never the other way round: all blocks together form a block-triangular system with
+    non-singular diagonal blocks, which Newton's method solves at once."""
     free = np.asarray(free, dtype=bool)
     outside = ~np.asarray(in_objective, dtype=bool)
     used_cols, used_rows = np.zeros(n, dtype=bool), np.zeros(m, dtype=bool)
-    for any_bounds in (False, True):
-        while True:
-            candidate = outside & ~used_cols & (free | any_bounds)
-            found = _blocks(n, m, jac_rows, jac_cols, candidate, ~used_rows, equality)
-            if not found:
-                break
+    labels = np.asarray(groups) if groups is not None else None
+    passes = [("connected", True), ("labels", False), ("connected", False)]
+    changed = True
+    while changed:
+        changed = False
+        for how, only_free in passes:
+            candidate = outside & ~used_cols & (free if only_free else True)
+            if how == "labels":
+                if labels is None:
+                    continue
+                found = []
+                for label in np.unique(labels[candidate]):
+                    found += _blocks(n, m, jac_rows, jac_cols, candidate & (labels == label), ~used_rows, equality,
+                                     whole=True)
+            else:
+                found = _blocks(n, m, jac_rows, jac_cols, candidate, ~used_rows, equality)
             for cols, rows in found:
                 used_cols[cols] = True
                 used_rows[rows] = True
+                changed = True
     if not used_cols.any():
         return None
     return DanglingBlocks(np.flatnonzero(used_cols), np.flatnonzero(used_rows), n, m, jac_rows, jac_cols,
                           hess_rows, hess_cols)
 
 
-def _blocks(n, m, jac_rows, jac_cols, candidate, open_rows, equality) -> list:
+def _blocks(n, m, jac_rows, jac_cols, candidate, open_rows, equality, whole: bool = False) -> list:
     """[(columns, rows)] of the connected groups of candidate columns (through the open rows that touch
-    them) that are blocks."""
+    them) that are blocks; with ``whole``, of all candidate columns as one group."""
     touch = candidate[jac_cols] & open_rows[jac_rows]
     if not touch.any():
         return []
     r, c = jac_rows[touch], jac_cols[touch]
-    graph = sp.coo_matrix((np.ones(len(r)), (c, n + r)), shape=(n + m, n + m))
-    _, label = connected_components(graph, directed=False)
-    entry_label = label[c]
+    if whole:
+        entry_label = np.zeros(len(c), dtype=np.int64)
+    else:
+        graph = sp.coo_matrix((np.ones(len(r)), (c, n + r)), shape=(n + m, n + m))
+        _, label = connected_components(graph, directed=False)
+        entry_label = label[c]
     order = np.argsort(entry_label, kind="stable")
     out = []
     for group in np.split(order, np.flatnonzero(np.diff(entry_label[order])) + 1):  # one connected group

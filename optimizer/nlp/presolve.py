@@ -97,7 +97,7 @@ class LinearElimination:
         in_objective[t_struct[nlp.objective_form.var_index[0]].indices] = True
         self.dangling = find_dangling(self.n, self.m, self.jac_rows, self.jac_cols, self.hess_rows, self.hess_cols,
                                       ~bounded[self.kept], [nlp.constraints[r].equality for r in self.kept_rows],
-                                      in_objective)
+                                      in_objective, _component_labels([nlp.variables[i] for i in self.kept]))
 
     # --- the map x = T y + t -----------------------------------------------------------------------------
     def _map(self, other_coef, own_coef) -> sp.csr_matrix:
@@ -233,3 +233,9 @@ class LinearElimination:
         rhs = -(nlp._grad(x)[self.eliminated] + jac[self.kept_rows][:, self.eliminated].T @ kept_lambda)
         a_re = jac[self.rows][:, self.eliminated].tocsr()  # lower triangular in the order of choice
         return spsolve_triangular(a_re.T.tocsr(), rhs, lower=False)
+
+
+def _component_labels(variables) -> np.ndarray:
+    """A label per variable: the indexed Pyomo component it belongs to."""
+    labels: dict = {}
+    return np.array([labels.setdefault(id(v.parent_component()), len(labels)) for v in variables], dtype=np.int64)

@@ -90,3 +90,10 @@ def test_the_directory_names_the_software(monkeypatch, tmp_path):
     monkeypatch.delenv("TUBEWRIGHT_FORM_CACHE")
     monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "xdg"))
     assert form_cache.cache_directory().parent == tmp_path / "xdg" / "tubewright" / "forms"
+    monkeypatch.delenv("XDG_CACHE_HOME")
+
+    def no_home():
+        raise RuntimeError("Could not determine home directory.")
+
+    monkeypatch.setattr(form_cache.Path, "home", staticmethod(no_home))
+    assert form_cache.cache_directory() is None  # no home directory: no cache, and no failure

@@ -41,7 +41,12 @@ def cache_directory() -> Path | None:
             return None
         root = Path(setting).expanduser()
     else:
-        base = os.environ.get("XDG_CACHE_HOME") or str(Path.home() / ".cache")
+        base = os.environ.get("XDG_CACHE_HOME")
+        if not base:
+            try:
+                base = str(Path.home() / ".cache")
+            except (RuntimeError, KeyError):  # no home directory (a service account): no cache
+                return None
         root = Path(base) / "tubewright" / "forms"
     return root / _software_tag()
 

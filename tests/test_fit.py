@@ -133,6 +133,7 @@ def test_cli_fit_writes_a_case_that_reproduces_the_fit(tmp_path, capsys):
     assert main(["fit", str(case), "--data", str(data), "--out", str(out_dir)]) == 0
     printed = capsys.readouterr().out
     assert "95 % interval" in printed and "CAUTION" in printed
+    assert "statistics from the collocation sensitivities; collocation mesh against the adaptive integrator" in printed
     answer = json.loads((out_dir / "fit.json").read_text())
     assert answer["status"] == "ok" and (out_dir / "fit.png").stat().st_size > 0
     first = answer["observations"][0]

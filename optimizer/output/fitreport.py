@@ -50,6 +50,11 @@ def fit_lines(out) -> list[str]:
                      f"{lf['dof_pure_error']}) degrees of freedom, p = {lf['p_value']:.3g}")
     lines.append(f"  identifiability: condition number of the scaled sensitivities "
                  f"{st.identifiability['condition_number']:.3g}")
+    source = out.solver.get("statistics_from")
+    if source is not None:
+        mesh = out.solver.get("mesh_check_sigma")
+        lines.append(f"  statistics from the {source}" + ("" if mesh is None else
+                     f"; collocation mesh against the adaptive integrator at the estimate: within {mesh:.2g} sigma"))
     lines.append("  in the case's own terms: " + "; ".join(
         f"{r}: k_ref = {v['k_ref']:.6g} at {v['t_ref']:.2f} K, E_a = {v['activation_energy'] / 1000:.6g} kJ/mol"
         + "".join(f", K_{s} = {a['k_ref']:.6g}, heat of adsorption {a['heat'] / 1000:.6g} kJ/mol"

@@ -21,6 +21,7 @@ from scipy.sparse.csgraph import connected_components, maximum_bipartite_matchin
 from scipy.sparse.linalg import splu
 
 NEWTON_STEPS = 20
+STEP_TOLERANCE = 1e-10  # relative: a Newton step this small ends the recovery (one step more than a linear block needs)
 
 
 class DanglingBlocks:
@@ -81,7 +82,7 @@ class DanglingBlocks:
             except RuntimeError:  # numerically singular at this point
                 return y, False
             y[self.cols] -= step
-            if np.max(np.abs(step), initial=0.0) <= 1e-12 * (1.0 + np.max(np.abs(y[self.cols]), initial=0.0)):
+            if np.max(np.abs(step), initial=0.0) <= STEP_TOLERANCE * (1.0 + np.max(np.abs(y[self.cols]), initial=0.0)):
                 return y, True
         return y, False
 

@@ -109,16 +109,11 @@ def find_dangling(n, m, jac_rows, jac_cols, hess_rows, hess_cols, free, equality
     while changed:
         changed = False
         for how, only_free in passes:
+            if how == "labels" and labels is None:
+                continue
             candidate = outside & ~used_cols & (free if only_free else True)
-            if how == "labels":
-                if labels is None:
-                    continue
-                found = []
-                for label in np.unique(labels[candidate]):
-                    found += _blocks(n, m, jac_rows, jac_cols, candidate & (labels == label), ~used_rows, equality,
-                                     whole=True)
-            else:
-                found = _blocks(n, m, jac_rows, jac_cols, candidate, ~used_rows, equality)
+            found = _blocks(n, m, jac_rows, jac_cols, candidate, ~used_rows, equality,
+                            labels if how == "labels" else None)
             for cols, rows in found:
                 used_cols[cols] = True
                 used_rows[rows] = True
@@ -129,22 +124,22 @@ def find_dangling(n, m, jac_rows, jac_cols, hess_rows, hess_cols, free, equality
                           hess_rows, hess_cols)
 
 
-def _blocks(n, m, jac_rows, jac_cols, candidate, open_rows, equality, whole: bool = False) -> list:
-    """[(columns, rows)] of the connected groups of candidate columns (through the open rows that touch
-    them) that are blocks; with ``whole``, of all candidate columns as one group."""
+def _blocks(n, m, jac_rows, jac_cols, candidate, open_rows, equality, labels=None) -> list:
+    """[(columns, rows)] of the groups of candidate columns that are blocks, with the open rows that touch
+    them: the connected groups (through those rows), or with ``labels`` the columns of one label."""
     touch = candidate[jac_cols] & open_rows[jac_rows]
     if not touch.any():
         return []
     r, c = jac_rows[touch], jac_cols[touch]
-    if whole:
-        entry_label = np.zeros(len(c), dtype=np.int64)
+    if labels is not None:
+        entry_label = labels[c]
     else:
         graph = sp.coo_matrix((np.ones(len(r)), (c, n + r)), shape=(n + m, n + m))
         _, label = connected_components(graph, directed=False)
         entry_label = label[c]
     order = np.argsort(entry_label, kind="stable")
     out = []
-    for group in np.split(order, np.flatnonzero(np.diff(entry_label[order])) + 1):  # one connected group
+    for group in np.split(order, np.flatnonzero(np.diff(entry_label[order])) + 1):  # the entries of one group
         rows, local_r = np.unique(r[group], return_inverse=True)
         cols, local_c = np.unique(c[group], return_inverse=True)
         if len(rows) != len(cols) or not all(equality[row] for row in rows):

@@ -41,7 +41,7 @@ class LinearElimination:
             for pos, row in enumerate(f.members):
                 if nlp.constraints[row].equality:
                     linear_rows[row] = (f, pos)
-        bounded = np.array([v.lb is not None or v.ub is not None for v in nlp.variables], dtype=bool)
+        bounded = np.array([b != (None, None) for b in (v.bounds for v in nlp.variables)], dtype=bool)
         appearances = np.bincount(nlp.jac_cols, minlength=n)
         depth = np.zeros(n, dtype=np.int64)  # 0: kept; k: defined at substitution level k
         in_chosen_rows = np.zeros(n, dtype=bool)
@@ -78,14 +78,9 @@ class LinearElimination:
         self._row_of = np.full(m, -1, dtype=np.int64)
         self._row_of[self.kept_rows] = np.arange(self.m)
         # defining rows' variables as (choice, column) pairs: the structure of W in x_E = W x + w0
-        w_i, w_k = [], []
-        for i, row in enumerate(rows):
-            f, pos = linear_rows[row]
-            cols = f.var_index[pos]
-            w_i.append(np.full(len(cols), i))
-            w_k.append(cols)
-        self._w_i = np.concatenate(w_i) if w_i else np.zeros(0, dtype=np.int64)
-        self._w_k = np.concatenate(w_k) if w_k else np.zeros(0, dtype=np.int64)
+        w_k = [linear_rows[row][0].var_index[linear_rows[row][1]] for row in rows]
+        self._w_i = np.repeat(np.arange(len(rows)), [len(cols) for cols in w_k]).astype(np.int64)
+        self._w_k = np.concatenate(w_k).astype(np.int64) if w_k else np.zeros(0, dtype=np.int64)
         own = self._w_k == self.eliminated[self._w_i] if len(rows) else np.zeros(0, dtype=bool)
         self._own, self._other = np.flatnonzero(own), np.flatnonzero(~own)
         # structures from a map with positive weights (no cancellation: every possible entry is present)

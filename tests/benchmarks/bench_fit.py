@@ -5,15 +5,15 @@ the number of forms against the number of runs, and the time of scipy.optimize.l
 adaptive integrator on the same problem (same start, same weighted residuals, 2-point Jacobian) with the
 ratio.
 
-Measured here (2 cores), 2026-12-03: 5/10/20 runs: fit 2.0/1.7/3.2 s (the 5-run fit also pays the first
-imports), compile 0.27/0.41/0.70 s with 32 forms at every size (all runs but one compiled as replicas), 7
-IPOPT iterations (adaptive barrier update; 23-25 with the monotone one); least_squares 1.4/4.6/6.0 s (15-19
-simulations of every run); ratio 0.68/2.65/1.85, estimates equal within 4e-4 relative. At 20 runs the fit
-spends 0.1 s on the start simulations, 1.8 s building and compiling (pyomo.dae builds every run's block:
-about 1.0 s; compiling 0.6 s), 1.0 s in the estimation and 0.25 s on the statistics (the collocation
-model's own sensitivities, one sparse LU, and one integration per run to check the mesh). The target (the
-fit at least 5x faster than least_squares) is not met: building one Pyomo block per run alone takes about a
-sixth of the least_squares time.
+Measured here (2 cores), 2026-12-03: 5/10/20 runs: fit 1.5/1.5/3.0 s (the 5-run fit also pays the first
+imports), compile 0.24/0.36/0.59 s with 32 forms at every size (all runs but one compiled as replicas), 7
+IPOPT iterations (adaptive barrier update; 23-25 with the monotone one); least_squares 1.1/4.3/5.1 s (15-19
+simulations of every run); ratio 0.74/2.83/1.73, estimates equal within 4e-4 relative. At 20 runs the fit
+spends 0.1 s on the start simulations, 1.6 s building and compiling (pyomo.dae builds every run's block:
+about 1.0 s), 1.0 s in the estimation and 0.2 s on the statistics (the collocation model's own
+sensitivities, one sparse LU, and one integration per run to check the mesh). The target (the fit at least
+5x faster than least_squares) is not met: building one Pyomo block per run alone takes about a fifth of the
+least_squares time.
 
 Run: .venv/bin/python tests/benchmarks/bench_fit.py"""
 

@@ -81,8 +81,8 @@ def test_derivatives_against_finite_differences_hs71():
     _fd_check(nlp, np.array([1.3, 4.1, 3.7, 1.9]))
 
 
-def test_derivatives_with_functions_and_piecewise_terms():
-    # exp, log, sqrt, division, powers, an input, and an Expr_if (piecewise) term, with repeated forms.
+def piecewise_model():
+    """exp, log, sqrt, division, powers, an input, and an Expr_if (piecewise) term, with repeated forms."""
     m = pyo.ConcreteModel()
     m.I = pyo.RangeSet(0, 5)
     m.x = pyo.Var(m.I, initialize=lambda m, i: 1.0 + 0.3 * i, bounds=(0.1, 10))
@@ -90,7 +90,11 @@ def test_derivatives_with_functions_and_piecewise_terms():
     m.c = pyo.Constraint(m.I, rule=lambda m, i: pyo.exp(m.x[i] / m.q) * pyo.sqrt(m.x[(i + 1) % 6])
                          - pyo.log(m.x[i]) ** 2 + pyo.Expr_if(IF=m.x[i] <= 1.5, THEN=m.x[i] ** 3, ELSE=2 * m.x[i]) == 3)
     m.o = pyo.Objective(expr=sum((m.x[i] - i) ** 2 / (1 + m.x[i]) for i in m.I))
-    nlp = CompiledNLP(m)
+    return m
+
+
+def test_derivatives_with_functions_and_piecewise_terms():
+    nlp = CompiledNLP(piecewise_model())
     assert nlp.times["forms"] == 1  # six constraints, one form
     _fd_check(nlp, np.array([1.2, 1.6, 0.9, 2.2, 1.4, 3.0]))
 

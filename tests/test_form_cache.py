@@ -7,20 +7,9 @@ import pytest
 pyo = pytest.importorskip("pyomo.environ")
 pytest.importorskip("cyipopt")
 
-from test_bridge import _fd_check, hs71  # noqa: E402
+from test_bridge import _fd_check, hs71, piecewise_model  # noqa: E402
 from tubewright.optimizer.nlp import form_cache  # noqa: E402
 from tubewright.optimizer.nlp.bridge import CompiledNLP  # noqa: E402
-
-
-def piecewise():
-    m = pyo.ConcreteModel()
-    m.I = pyo.RangeSet(0, 5)
-    m.x = pyo.Var(m.I, initialize=lambda m, i: 1.0 + 0.3 * i, bounds=(0.1, 10))
-    m.q = pyo.Param(mutable=True, initialize=1.7)
-    m.c = pyo.Constraint(m.I, rule=lambda m, i: pyo.exp(m.x[i] / m.q) * pyo.sqrt(m.x[(i + 1) % 6])
-                         - pyo.log(m.x[i]) ** 2 + pyo.Expr_if(IF=m.x[i] <= 1.5, THEN=m.x[i] ** 3, ELSE=2 * m.x[i]) == 3)
-    m.o = pyo.Objective(expr=sum((m.x[i] - i) ** 2 / (1 + m.x[i]) for i in m.I))
-    return m
 
 
 def _compiled(monkeypatch, where, build=hs71):
@@ -28,7 +17,7 @@ def _compiled(monkeypatch, where, build=hs71):
     return CompiledNLP(build())
 
 
-@pytest.mark.parametrize("build", [hs71, piecewise])
+@pytest.mark.parametrize("build", [hs71, piecewise_model])
 def test_cold_and_warm_compilations_equal_no_cache(monkeypatch, tmp_path, build):
     plain = _compiled(monkeypatch, "off", build)
     cold = _compiled(monkeypatch, tmp_path, build)

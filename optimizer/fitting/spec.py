@@ -49,13 +49,13 @@ class FitParameter:
     index: int  # of the reaction in the case
     kind: str  # "k_ref" (k at the reference temperature), "activation_energy", "orders.SPECIES",
     #            "adsorption.SPECIES.k_ref" (K at the reference temperature) or "adsorption.SPECIES.heat"
+    lower: float
+    upper: float
 
     @property
     def is_constant(self) -> bool:
         """A rate or adsorption constant: fitted on a log scale, as a factor range of its start."""
         return self.kind.endswith("k_ref")
-    lower: float
-    upper: float
 
     @property
     def name(self) -> str:

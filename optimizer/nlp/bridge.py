@@ -500,10 +500,11 @@ class CompiledNLP:
         self.compact = LinearElimination(self) if compact else None
         if self.compact is not None and not len(self.compact.rows):
             self.compact = None
+        ipopt_n, ipopt_m = self._ipopt_size()
         self.times = {"compile_s": time.perf_counter() - t0, "differentiate_s": t_compact - t_forms,
                       "presolve_s": time.perf_counter() - t_compact, "forms": len(self.forms),
                       "replicated_blocks": self.replicated, "form_cache": cache.summary(),
-                      "ipopt_variables": self._ipopt_size()[0], "ipopt_constraints": self._ipopt_size()[1]}
+                      "ipopt_variables": ipopt_n, "ipopt_constraints": ipopt_m}
         self._warm = None
         self._deriv_key, self._deriv_values = None, {}
         self._bound_exprs = None

@@ -233,6 +233,90 @@ def test_a_replica_whose_numbers_differ_is_printed():
     assert out.success and pyo.value(3.0 * m.b[2].x * m.b[2].y) == pytest.approx(1.0, rel=1e-8)
 
 
+def _copied_blocks(built: int, ps=(1.0, 2.0, 3.0), flows=(1.0, 1.5, 0.8)):
+    """min sum_i (x_i - p_i)^2 / w_i + z^2 + z w_i with 2 x_i y_i = q_i (q_i an input of the row's bound) and
+    y_i + z >= 0.2 p_i: the first ``built`` blocks in Pyomo, whose last is the template; the objective
+    holds each built block's term as a named Expression."""
+    m = pyo.ConcreteModel()
+    m.z = pyo.Var(initialize=0.5)
+    m.b = pyo.Block(range(built))
+    for i in range(built):
+        b = m.b[i]
+        b.p = pyo.Param(mutable=True, initialize=ps[i])
+        b.q = pyo.Param(mutable=True, initialize=flows[i])
+        b.w = pyo.Var(initialize=1.0 + i)
+        b.w.fix()  # a fixed variable: an input of the block
+        b.x = pyo.Var(initialize=1.0, bounds=(0.1, 10))
+        b.y = pyo.Var(initialize=1.0, bounds=(0.1, 10))
+        b.first = pyo.Constraint(expr=2.0 * b.x * b.y == b.q)
+        b.second = pyo.Constraint(expr=b.y + m.z >= 0.2 * b.p)
+        b.term = pyo.Expression(expr=(b.x - b.p) ** 2 / b.w + m.z * b.w)
+    m.obj = pyo.Objective(expr=sum(m.b[i].term for i in range(built)) + m.z**2)
+    return m
+
+
+def _load(b, i, ps=(1.0, 2.0, 3.0), flows=(1.0, 1.5, 0.8)):
+    b.p = ps[i]
+    b.q = flows[i]
+    b.w.fix(1.0 + i)
+    b.x.value, b.y.value = 1.0 + 0.1 * i, 1.0 - 0.1 * i
+
+
+@pytest.mark.parametrize("compact", [False, True])
+def test_copies_of_a_template_solve_the_same_problem_as_built_blocks(compact):
+    # Three blocks built against one built and two virtual copies: same optimum and point (the analytic
+    # reference is the fully built model, same IPOPT), derivatives of the copied problem against finite
+    # differences, and a copy's values readable through the template.
+    from tubewright.optimizer.nlp.copies import Copies
+
+    full = _copied_blocks(3)
+    for i in range(3):
+        _load(full.b[i], i)
+    a = CompiledNLP(full, compact=compact)
+    t = _copied_blocks(1)
+    b = CompiledNLP(t, compact=compact, copies=[Copies(t.b[0], 2, objective_term=t.b[0].term)])
+    store = b.copy_stores[0]
+    for k in (1, 2):
+        _load(t.b[0], k)
+        store.capture(k)
+    _load(t.b[0], 0)
+    assert (b.n, b.m) == (a.n, a.m) and b.times["copies"] == 2
+    assert len(b.forms) == len(a.forms)
+    _fd_check(b, np.linspace(0.3, 1.7, b.n))
+    out_a, out_b = a.solve(), b.solve()
+    assert out_a.success and out_b.success
+    assert out_b.objective == pytest.approx(out_a.objective, rel=1e-10)
+    assert pyo.value(t.z) == pytest.approx(pyo.value(full.z), rel=1e-9)
+    for k in (1, 2):
+        x_k = store.instance(k, t.b[0].x)
+        assert x_k.value == pytest.approx(pyo.value(full.b[k].x), rel=1e-9)
+        assert out_b.x[store.column(k, t.b[0].x)] == x_k.value
+        with store.loaded(k):  # the copy's values and inputs in the template
+            assert pyo.value(t.b[0].term) == pytest.approx(pyo.value(full.b[k].term), rel=1e-9)
+            assert pyo.value(2.0 * t.b[0].x * t.b[0].y) == pytest.approx(pyo.value(full.b[k].q), rel=1e-7)
+    assert pyo.value(t.b[0].p) == 1.0 and t.b[0].w.value == 1.0  # the template's own values are back
+    assert pyo.value(t.b[0].x) == pytest.approx(pyo.value(full.b[0].x), rel=1e-9)
+    # a changed input of a copy is read at the next solve, without recompiling
+    store.instance(2, t.b[0].first)  # a constraint's stand-in exists
+    _load(t.b[0], 2, ps=(1.0, 2.0, 4.0))
+    store.capture(2)
+    _load(t.b[0], 0)
+    full.b[2].p = 4.0
+    assert b.solve().objective == pytest.approx(a.solve().objective, rel=1e-10)
+
+
+def test_copies_refuse_a_template_outside_the_model():
+    from tubewright.optimizer.nlp.copies import Copies
+
+    t = _copied_blocks(1)
+    t.other = pyo.Block()
+    t.other.v = pyo.Var()
+    with pytest.raises(ValueError, match="no active constraint"):
+        CompiledNLP(t, copies=[Copies(t.other, 2)])
+    with pytest.raises(ValueError, match="count must be at least 1"):
+        CompiledNLP(t, copies=[Copies(t.b[0], 0)])
+
+
 def test_paused_collection_restores_the_collector_and_leaves_garbage_collectable():
     import gc
     import weakref

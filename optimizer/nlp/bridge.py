@@ -30,6 +30,7 @@ from pyomo.core import value
 from pyomo.core.base.constraint import Constraint
 from pyomo.core.base.objective import Objective, maximize
 from pyomo.core.expr.calculus.derivatives import differentiate
+from tubewright.optimizer.nlp.copies import Copies, CopyStore
 from tubewright.optimizer.nlp.form_cache import FormCache
 from tubewright.optimizer.nlp.presolve import LinearElimination
 from tubewright.optimizer.nlp.pyomo_rules import install_rules
@@ -395,14 +396,16 @@ class SolveOutcome:
 class CompiledNLP:
     """A Pyomo model compiled once for IPOPT. ``solve()`` reads inputs and bounds anew each time."""
 
-    def __init__(self, model, compact: bool = True, replicas=()):
+    def __init__(self, model, compact: bool = True, replicas=(), copies: list[Copies] = ()):
         """``compact``: eliminate the variables that linear equalities define explicitly before IPOPT sees
         the problem (nlp.presolve); the solution and every multiplier are reported for the whole model.
         ``replicas``: lists of blocks built by the same code from data that differ only in mutable Param
         values (the scenarios of a robust design). The first block of a list is printed; the others take its
         forms with their own variables and inputs, matched by their order in component_data_objects, so that
         compiling grows with the forms, not with the blocks. The first and last constraints of every replica
-        are printed as a check; a replica that fails it is printed in full."""
+        are printed as a check; a replica that fails it is printed in full.
+        ``copies``: templates whose copies are not built in Pyomo at all (nlp.copies); their stores are in
+        ``self.copy_stores``, in the same order."""
         t0 = time.perf_counter()
         install_rules()
         self.model = model
@@ -493,6 +496,9 @@ class CompiledNLP:
         self.forms = [_build_form(*group, cache) for group in groups.values()]
         self.objective_form = _build_form(self.objective.expr, obj_printer, obj_source, [0], [ovars], [oinputs],
                                           cache)
+        self.objective_forms = [self.objective_form]
+        self._n_real, self._m_real, self._p_real = len(self.variables), len(self.constraints), len(self.inputs)
+        self.copy_stores = [self._attach(spec, cache) for spec in copies]
         self.sign = -1.0 if self.objective.sense == maximize else 1.0
         self._structure()
         self.n, self.m = len(self.variables), len(self.constraints)
@@ -503,11 +509,74 @@ class CompiledNLP:
         ipopt_n, ipopt_m = self._ipopt_size()
         self.times = {"compile_s": time.perf_counter() - t0, "differentiate_s": t_compact - t_forms,
                       "presolve_s": time.perf_counter() - t_compact, "forms": len(self.forms),
-                      "replicated_blocks": self.replicated, "form_cache": cache.summary(),
+                      "replicated_blocks": self.replicated, "copies": sum(s.count for s in self.copy_stores),
+                      "form_cache": cache.summary(),
                       "ipopt_variables": ipopt_n, "ipopt_constraints": ipopt_m}
         self._warm = None
         self._deriv_key, self._deriv_values = None, {}
         self._bound_exprs = None
+
+    def _attach(self, spec: Copies, cache) -> CopyStore:
+        """Add ``spec.count`` copies of the template block: new columns, inputs and rows appended to the
+        pools, the template rows' forms extended with the copies' members (nlp.copies)."""
+        from pyomo.core.base.param import Param
+        from pyomo.core.base.var import Var
+
+        block, count = spec.template, int(spec.count)
+        if count < 1:
+            raise ValueError(f"copies of {block.name}: count must be at least 1, got {spec.count}")
+        own_vars = {id(v) for v in block.component_data_objects(Var, descend_into=True)}
+        own_inputs = own_vars | {id(p) for p in block.component_data_objects(Param, descend_into=True)}
+        own_rows = {id(c) for c in block.component_data_objects(Constraint, active=True, descend_into=True)}
+        t_cols = [j for j, v in enumerate(self.variables[:self._n_real]) if id(v) in own_vars]
+        t_inputs = [j for j, p in enumerate(self.inputs[:self._p_real]) if id(p) in own_inputs]
+        t_rows = [r for r, c in enumerate(self.constraints[:self._m_real]) if id(c) in own_rows]
+        if not t_rows:
+            raise ValueError(f"copies of {block.name}: the template has no active constraint of the model")
+        bound_parts = []
+        for r in t_rows:
+            parts = self._bound_parts.get(r)
+            if parts is None:
+                lower, _, upper = self.constraints[r].to_bounded_expression()
+                parts = (lower, upper)
+            bound_parts.append(parts)
+        first_col, first_input, first_row = len(self.variables), len(self.inputs), len(self.constraints)
+        store = CopyStore(spec, [self.variables[j] for j in t_cols], [self.inputs[j] for j in t_inputs],
+                          [self.constraints[r] for r in t_rows], bound_parts, first_col, first_input, first_row)
+        copy = np.arange(count)[:, None]
+        vmap = np.tile(np.arange(first_col, dtype=np.int64), (count, 1))  # (copy, column) -> its column
+        vmap[:, t_cols] = first_col + copy * len(t_cols) + np.arange(len(t_cols))
+        imap = np.tile(np.arange(first_input, dtype=np.int64), (count, 1))
+        imap[:, t_inputs] = first_input + copy * len(t_inputs) + np.arange(len(t_inputs))
+        row_local = np.full(first_row, -1, dtype=np.int64)
+        row_local[t_rows] = np.arange(len(t_rows))
+        for f in self.forms:
+            members = np.asarray(f.members, dtype=np.int64)
+            pos = np.flatnonzero(row_local[members] >= 0)
+            if not len(pos):
+                continue
+            rows = first_row + copy * len(t_rows) + row_local[members[pos]]
+            f.members = np.concatenate([members, rows.reshape(-1)])
+            n_new = count * len(pos)
+            f.var_index = np.concatenate([f.var_index, vmap[:, f.var_index[pos]].reshape(n_new, -1)])
+            f.input_index = np.concatenate([f.input_index,
+                                            imap[:, f.input_index[pos]].reshape(n_new, f.input_index.shape[1])])
+        self.variables.extend(store.stand_ins[0])
+        self.inputs.extend(store.stand_ins[1])
+        self.constraints.extend(store.stand_ins[2])
+        if spec.objective_term is not None:
+            printer = _Printer()
+            source = printer.source("value", [spec.objective_term])
+            column = {id(v): j for j, v in enumerate(self.variables[:self._n_real])}
+            slot = {id(p): j for j, p in enumerate(self.inputs[:self._p_real])}
+            cols = [column.get(id(v)) for v in printer.vars]
+            ins = [slot.get(id(p)) for p in printer.inputs]
+            if None in cols or None in ins:
+                raise ValueError(f"copies of {block.name}: the objective term holds a variable or input that is "
+                                 "in no constraint and not in the model's objective")
+            self.objective_forms.append(_build_form(spec.objective_term, printer, source, list(range(count)),
+                                                    [vmap[:, cols]], [imap[:, ins]], cache))
+        return store
 
     def _ipopt_size(self) -> tuple[int, int]:
         """Variables and constraints IPOPT sees (after the compact problem and its dangling blocks)."""
@@ -566,7 +635,7 @@ class CompiledNLP:
         self.jac_cols = np.concatenate(jc) if jc else np.zeros(0, dtype=np.int64)
         keys = []  # (row, column) of the lower triangle as one integer, row * n + column: a 1-D unique is fast
         n = max(len(self.variables), 1)
-        for f in [*self.forms, self.objective_form]:
+        for f in [*self.forms, *self.objective_forms]:
             for a, b in f.pairs:
                 i, j = f.var_index[:, a], f.var_index[:, b]
                 keys.append(np.maximum(i, j) * n + np.minimum(i, j))
@@ -581,8 +650,10 @@ class CompiledNLP:
             self._p[form.input_index[:, k]] for k in range(form.input_index.shape[1])]
 
     def _obj(self, x):
-        f = self.objective_form
-        return self.sign * float(np.asarray(f.fn(*self._args(f, x))[0]).reshape(-1)[0])
+        total = 0.0
+        for f in self.objective_forms:  # the model's objective, then each template's term over its copies
+            total += float(np.sum(np.broadcast_to(f.fn(*self._args(f, x))[0], (len(f.members),))))
+        return self.sign * total
 
     def _derivatives(self, k, f, x):
         """Gradient and Hessian entries of form ``k`` at x; IPOPT asks for the Jacobian and the Hessian at the
@@ -596,11 +667,14 @@ class CompiledNLP:
         return vals
 
     def _grad(self, x):
-        f = self.objective_form
         g = np.zeros(self.n)
-        vals = self._derivatives(-1, f, x)[: f.n_grad]
-        for k, v in enumerate(vals[: f.var_index.shape[1]]):
-            g[f.var_index[0, k]] += float(np.asarray(v).reshape(-1)[0])
+        for i, f in enumerate(self.objective_forms):
+            nx = f.var_index.shape[1]
+            if not nx:
+                continue
+            vals = self._derivatives(-1 - i, f, x)[:nx]
+            g += np.bincount(f.var_index.T.reshape(-1), weights=_rows(vals, len(f.members)).reshape(-1),
+                             minlength=self.n)
         return self.sign * g
 
     def _cons(self, x):
@@ -625,10 +699,10 @@ class CompiledNLP:
             w = lagrange[f.members]
             # (pair, member) order, as the coordinates were stacked in _structure
             parts.append((_rows(vals, len(f.members)) * w).reshape(-1))
-        f = self.objective_form
-        if f.pairs:
-            vals = self._derivatives(-1, f, x)[f.n_grad:]
-            parts.append(np.array([float(np.asarray(v).reshape(-1)[0]) for v in vals]) * obj_factor * self.sign)
+        for i, f in enumerate(self.objective_forms):
+            if f.pairs:
+                vals = self._derivatives(-1 - i, f, x)[f.n_grad:]
+                parts.append(_rows(vals, len(f.members)).reshape(-1) * (obj_factor * self.sign))
         if not parts:
             return np.zeros(len(self.hess_rows))
         return np.bincount(self._hess_inverse, weights=np.concatenate(parts), minlength=len(self.hess_rows))
@@ -636,23 +710,29 @@ class CompiledNLP:
     # --- solving ----------------------------------------------------------------------------------------
     def refresh(self):
         """Read inputs, variable bounds and constraint bounds from the model."""
-        self._p = np.array([value(p) for p in self.inputs], dtype=float)
+        stores = self.copy_stores  # the copies' values are arrays already
+        self._p = np.concatenate([np.array([value(p) for p in self.inputs[:self._p_real]], dtype=float),
+                                  *[s.p.reshape(-1) for s in stores]])
         self._deriv_key, self._deriv_values = None, {}  # inputs changed: forget cached derivatives
-        bounds = np.array([v.bounds for v in self.variables], dtype=float).reshape(-1, 2)  # None -> nan
-        self.x_lb = np.where(np.isnan(bounds[:, 0]), -INFINITY, bounds[:, 0])
-        self.x_ub = np.where(np.isnan(bounds[:, 1]), INFINITY, bounds[:, 1])
+        bounds = np.array([v.bounds for v in self.variables[:self._n_real]], dtype=float).reshape(-1, 2)
+        self.x_lb = np.concatenate([np.where(np.isnan(bounds[:, 0]), -INFINITY, bounds[:, 0]),  # None -> nan
+                                    *[s.lb.reshape(-1) for s in stores]])
+        self.x_ub = np.concatenate([np.where(np.isnan(bounds[:, 1]), INFINITY, bounds[:, 1]),
+                                    *[s.ub.reshape(-1) for s in stores]])
         if self._bound_exprs is None:
             self._constraint_bounds()
-        self.g_lb, self.g_ub = self._g_lb_const.copy(), self._g_ub_const.copy()
-        for bounds, rows, exprs in ((self.g_lb, *self._bound_exprs[0]), (self.g_ub, *self._bound_exprs[1])):
+        g_lb, g_ub = self._g_lb_const.copy(), self._g_ub_const.copy()
+        for bounds, rows, exprs in ((g_lb, *self._bound_exprs[0]), (g_ub, *self._bound_exprs[1])):
             bounds[rows] = [value(e) for e in exprs]
+        self.g_lb = np.concatenate([g_lb, *[s.g_lb.reshape(-1) for s in stores]])
+        self.g_ub = np.concatenate([g_ub, *[s.g_ub.reshape(-1) for s in stores]])
 
     def _constraint_bounds(self):
         """Constraint bounds that are numbers are read once; those with inputs (mutable Params, fixed Vars)
         at every refresh. A constraint's expression cannot change without a new CompiledNLP anyway."""
-        lb, ub = np.empty(self.m), np.empty(self.m)
+        lb, ub = np.empty(self._m_real), np.empty(self._m_real)
         live = ([], []), ([], [])
-        for row, c in enumerate(self.constraints):
+        for row, c in enumerate(self.constraints[:self._m_real]):
             parts = self._bound_parts.pop(row, None)
             if parts is None:
                 lower, _, upper = c.to_bounded_expression()
@@ -673,8 +753,16 @@ class CompiledNLP:
     on_iteration = None  # optional f(iteration, objective, primal infeasibility), called by IPOPT every iteration
 
     def current_point(self) -> np.ndarray:
-        x = np.array([0.0 if v.value is None else v.value for v in self.variables], dtype=float)
+        x = np.concatenate([np.array([0.0 if v.value is None else v.value for v in self.variables[:self._n_real]],
+                                     dtype=float), *[s.x.reshape(-1) for s in self.copy_stores]])
         return np.clip(x, self.x_lb, self.x_ub)
+
+    def _write(self, x: np.ndarray):
+        """The point x into the model's variables and the copies' stores."""
+        for v, xv in zip(self.variables[:self._n_real], x[:self._n_real].tolist()):
+            v.set_value(xv, skip_validation=True)
+        for s in self.copy_stores:
+            s.x[:] = x[s.first_column:s.first_column + s.x.size].reshape(s.x.shape)
 
     def solve(self, options: dict | None = None, warm_start: bool = False, scaling=None,
               dangling: bool = True) -> SolveOutcome:
@@ -786,8 +874,7 @@ class CompiledNLP:
                            None if cut.within(y, self.x_lb[red.kept], self.x_ub[red.kept]) else
                            "the block's values leave a bound")
                 if problem is not None:
-                    for v, xv in zip(self.variables, red.full(y)):
-                        v.set_value(float(xv), skip_validation=True)
+                    self._write(red.full(y))
                     again = self.solve(options, warm_start=False, scaling=scaling, dangling=False)
                     again.times["dangling_fallback"] = problem
                     return again
@@ -798,8 +885,7 @@ class CompiledNLP:
             with np.errstate(all="ignore"):
                 mult_g[red.rows] = red.defining_multipliers(x, mult_g[red.kept_rows])
         total = time.perf_counter() - t0
-        for v, xv in zip(self.variables, x):
-            v.set_value(float(xv), skip_validation=True)
+        self._write(x)
         with np.errstate(all="ignore"):
             g = self._cons(x)
         viol = float(np.max(np.concatenate([[0.0], self.g_lb - g, g - self.g_ub]))) if self.m else 0.0

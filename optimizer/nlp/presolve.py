@@ -89,7 +89,8 @@ class LinearElimination:
         self.hess_rows, self.hess_cols, self._hess_keys = self._structure(self._expand_hessian(t_struct))
         self._coef_key = None
         in_objective = np.zeros(self.n, dtype=bool)
-        in_objective[t_struct[nlp.objective_form.var_index[0]].indices] = True
+        in_objective[t_struct[np.unique(np.concatenate([f.var_index.reshape(-1) for f in nlp.objective_forms]))
+                              ].indices] = True
         self.dangling = find_dangling(self.n, self.m, self.jac_rows, self.jac_cols, self.hess_rows, self.hess_cols,
                                       ~bounded[self.kept], [nlp.constraints[r].equality for r in self.kept_rows],
                                       in_objective, _component_labels([nlp.variables[i] for i in self.kept]))

@@ -1,0 +1,211 @@
+"""Virtual copies of a template block: many blocks of one shape, built once.
+
+A fit has one tube block per laboratory run, a robust design one per scenario: blocks built by the same
+code, differing only in input values (mutable Params, fixed Vars), variable bounds, constraint bounds that
+are input expressions, and starting values. Building each in Pyomo costs tens of milliseconds per block;
+here the template block alone is built and the bridge adds ``count`` copies of it as index arithmetic:
+
+- every variable of the template (a Var data object inside the block) gets a new column per copy, every
+  input of the template a new input, every active constraint of the template a new row, taking the
+  template's forms (its members' index matrices, remapped). Variables and inputs outside the block are
+  shared by all copies (the kinetic parameters of a fit);
+- ``objective_term``, an expression of the template's (and shared) variables, is added to the objective
+  once per copy: the model's objective holds the template's own term;
+- a copy's values live in arrays (``CopyStore``); the caller sets the template to a copy's data (inputs,
+  bounds, starting values) and calls ``CompiledNLP.capture(store, k)``; ``loaded(store, k)`` puts a
+  copy's values into the template for as long as a ``with`` block needs them (to evaluate an expression of
+  the template at the copy).
+
+The rows, columns and inputs of the copies are listed in ``CompiledNLP.constraints``, ``variables`` and
+``inputs`` as light stand-ins (``CopyVar``, ``CopyInput``, ``CopyConstraint``) with the attributes the
+rest of the code reads (value, bounds, equality, name).
+
+What makes a block a copy is the caller's promise: that the template built from the copy's data would
+print to the same forms. A caller keeps it by grouping only blocks whose construction depends on nothing
+but what becomes inputs and bounds (see ``optimizer.design.collocation.replica_key``)."""
+
+from __future__ import annotations
+
+from contextlib import contextmanager
+from dataclasses import dataclass
+
+import numpy as np
+from pyomo.core import value
+from pyomo.core.expr.numvalue import native_numeric_types
+
+INFINITY = 1.0e19
+
+
+@dataclass
+class Copies:
+    """``count`` copies of ``template`` (a block of the compiled model) beyond the template itself."""
+
+    template: object
+    count: int
+    objective_term: object = None  # an expression of the template: each copy adds its value to the objective
+
+
+class CopyStore:
+    """The values of the copies of one template: row k - 1 of each array holds copy k (k = 1..count)."""
+
+    def __init__(self, spec: Copies, variables, inputs, constraints, bound_parts, first_column, first_input,
+                 first_row):
+        """``bound_parts``: per template row its (lower, upper) bound as Pyomo gives them (None, a number or
+        an expression with inputs): the expressions are evaluated per copy, the rest are the same for all."""
+        self.spec = spec
+        self.count = k = spec.count
+        self.variables, self.inputs, self.constraints = variables, inputs, constraints  # the template's
+        self.first_column, self.first_input, self.first_row = first_column, first_input, first_row
+        self.live_bounds = []  # (side, template row position, expression)
+        template_bounds = np.empty((2, len(constraints)))
+        for j, parts in enumerate(bound_parts):
+            for side, e in enumerate(parts):
+                if e is None:
+                    template_bounds[side, j] = -INFINITY if side == 0 else INFINITY
+                    continue
+                if not (e.__class__ in native_numeric_types or e.is_constant()):
+                    self.live_bounds.append((side, j, e))
+                template_bounds[side, j] = value(e)
+        self.g_lb = np.tile(template_bounds[0], (k, 1))
+        self.g_ub = np.tile(template_bounds[1], (k, 1))
+        nv = len(variables)
+        self.x, self.lb, self.ub, self.p = (np.empty((k, nv)), np.empty((k, nv)), np.empty((k, nv)),
+                                            np.empty((k, len(inputs))))
+        for row in range(k):  # every copy starts as the template is now
+            self._read(row)
+        self._labels: dict = {}
+        self.variable_position = {id(v): j for j, v in enumerate(variables)}
+        self.row_position = {id(c): j for j, c in enumerate(constraints)}
+        self.stand_ins = ([CopyVar(self, c, j) for c in range(k) for j in range(nv)],
+                          [CopyInput(self, c, j) for c in range(k) for j in range(len(inputs))],
+                          [CopyConstraint(self, c, j) for c in range(k) for j in range(len(constraints))])
+
+    def _read(self, row: int):
+        bounds = np.array([v.bounds for v in self.variables], dtype=float).reshape(-1, 2)  # None -> nan
+        self.x[row] = [_number(v.value) for v in self.variables]
+        self.lb[row] = np.where(np.isnan(bounds[:, 0]), -INFINITY, bounds[:, 0])
+        self.ub[row] = np.where(np.isnan(bounds[:, 1]), INFINITY, bounds[:, 1])
+        self.p[row] = [_number(value(p)) for p in self.inputs]
+        for side, j, expr in self.live_bounds:
+            (self.g_lb if side == 0 else self.g_ub)[row, j] = value(expr)
+
+    def capture(self, k: int):
+        """The template's current inputs, variable values and bounds, and input-dependent constraint bounds,
+        as copy ``k``'s (1..count)."""
+        self._read(self._row(k))
+
+    @contextmanager
+    def loaded(self, k: int):
+        """Within the block, the template's variables and inputs hold copy ``k``'s values (0: its own)."""
+        if k == 0:
+            yield
+            return
+        row = self._row(k)
+        saved_x = [v.value for v in self.variables]
+        saved_p = [p.value for p in self.inputs]
+        try:
+            for v, x in zip(self.variables, self.x[row].tolist()):
+                v.set_value(x, skip_validation=True)
+            for p, x in zip(self.inputs, self.p[row].tolist()):
+                _set_input(p, x)
+            yield
+        finally:
+            for v, x in zip(self.variables, saved_x):
+                v.set_value(x, skip_validation=True)
+            for p, x in zip(self.inputs, saved_p):
+                _set_input(p, x)
+
+    def column(self, k: int, variable) -> int | None:
+        """The column of copy ``k``'s instance of a template variable, or None when it is not the template's."""
+        j = self.variable_position.get(id(variable))
+        return None if j is None else self.first_column + self._row(k) * len(self.variables) + j
+
+    def instance(self, k: int, component):
+        """Copy ``k``'s stand-in for a template variable or constraint (None if not the template's)."""
+        j = self.variable_position.get(id(component))
+        if j is not None:
+            return self.stand_ins[0][self._row(k) * len(self.variables) + j]
+        j = self.row_position.get(id(component))
+        return None if j is None else self.stand_ins[2][self._row(k) * len(self.constraints) + j]
+
+    def label(self, k: int, component) -> object:
+        """One object per (copy, template component): copies' variables are grouped by component too."""
+        return self._labels.setdefault((k, id(component)), object())
+
+    def _row(self, k: int) -> int:
+        if not 1 <= k <= self.count:
+            raise IndexError(f"copy {k} of a template with {self.count} copies (1..{self.count})")
+        return k - 1
+
+
+def _number(v) -> float:
+    return 0.0 if v is None else float(v)
+
+
+def _set_input(p, x):
+    if p.is_variable_type():
+        p.set_value(x, skip_validation=True)
+    else:
+        p.set_value(x)
+
+
+class CopyVar:
+    """Copy ``k``'s instance of template variable ``j`` (k counted from 0 in the store's arrays)."""
+
+    __slots__ = ("store", "k", "j")
+    fixed = False
+
+    def __init__(self, store, k, j):
+        self.store, self.k, self.j = store, k, j
+
+    @property
+    def value(self) -> float:
+        return float(self.store.x[self.k, self.j])
+
+    def set_value(self, x, skip_validation: bool = False):
+        self.store.x[self.k, self.j] = x
+
+    @property
+    def bounds(self):
+        lo, up = self.store.lb[self.k, self.j], self.store.ub[self.k, self.j]
+        return (None if lo <= -INFINITY else float(lo), None if up >= INFINITY else float(up))
+
+    @property
+    def name(self) -> str:
+        return f"{self.store.variables[self.j].name} (copy {self.k + 1})"
+
+    def parent_component(self):
+        return self.store.label(self.k + 1, self.store.variables[self.j].parent_component())
+
+
+class CopyInput:
+    __slots__ = ("store", "k", "j")
+
+    def __init__(self, store, k, j):
+        self.store, self.k, self.j = store, k, j
+
+    @property
+    def value(self) -> float:
+        return float(self.store.p[self.k, self.j])
+
+    def set_value(self, x):
+        self.store.p[self.k, self.j] = x
+
+    @property
+    def name(self) -> str:
+        return f"{self.store.inputs[self.j].name} (copy {self.k + 1})"
+
+
+class CopyConstraint:
+    __slots__ = ("store", "k", "j")
+
+    def __init__(self, store, k, j):
+        self.store, self.k, self.j = store, k, j
+
+    @property
+    def equality(self) -> bool:
+        return self.store.constraints[self.j].equality
+
+    @property
+    def name(self) -> str:
+        return f"{self.store.constraints[self.j].name} (copy {self.k + 1})"

@@ -433,3 +433,35 @@ def test_bad_adsorption_entries_are_refused_with_their_key(tmp_path, entry, key,
                         ("chemistry.reactions.r1.k_ref.x", "nothing follows")):
         with pytest.raises(CaseError, match=words):
             si_unit(case, path, "f", "k")
+
+
+def test_runs_as_copies_of_one_block_fit_as_the_blocks_built_one_by_one(tmp_path):
+    # Runs differing in feed temperature and flow, coolant temperature and tube length, with thermocouples
+    # (the length places them on the mesh: one template per length) and a relative error: the fit whose
+    # runs are copies of a built block (nlp.copies) solves the same problem as the fit that builds every
+    # run's block, so estimates, covariance and residuals agree to round-off. Invented test data.
+    fit_section = {"parameters": {"r1": {"k_ref": True, "activation_energy": True}},
+                   "errors": {"axial_temperature": "0.2 K", "conversion": "2 %"},
+                   "thermocouples": {"TC1": "0.6 m"}}
+    data = liquid_case(**{"tube.length": "2 m", "numerics.finite_elements": 12, "fit": fit_section,
+                          "coolant": {"mode": "constant", "temperature": "345 K"},
+                          "heat_transfer": {"overall": "120 W/m^2/K"}, "feed.molar_flows.A": "0.03 mol/s"})
+    data["chemistry"]["reactions"]["r1"].update(k_ref="0.012 1/s", activation_energy="50 kJ/mol")
+    (tmp_path / "lab.toml").write_text(toml_text(data))
+    rows = ["feed.temperature [K],feed.molar_flows.A [mol/s],coolant.temperature [K],tube.length [m],"
+            "measured.conversion,measured.axial_temperature.TC1 [K]"]
+    rng = np.random.default_rng(3)
+    for i, (t, length) in enumerate([(335.0, 2.0), (345.0, 2.0), (355.0, 2.0), (340.0, 1.5), (350.0, 1.5),
+                                     (360.0, 1.5)]):
+        rows.append(f"{t},{0.02 + 0.005 * i},{340.0 + 2 * i},{length},{0.3 + 0.05 * i + rng.normal(0, 0.01)},"
+                    f"{t + 3.0 + rng.normal(0, 0.2)}")
+    (tmp_path / "runs.csv").write_text("\n".join(rows) + "\n")
+    shared = fit(tmp_path / "lab.toml", tmp_path / "runs.csv")
+    built = fit(tmp_path / "lab.toml", tmp_path / "runs.csv", share_blocks=False)
+    assert shared.status == Status.OK and built.status == Status.OK, (shared.message, built.message)
+    assert shared.solver["copied_runs"] == 4 and built.solver["copied_runs"] == 0
+    assert list(shared.estimates.values()) == pytest.approx(list(built.estimates.values()), rel=1e-8)
+    assert shared.statistics.covariance == pytest.approx(built.statistics.covariance, rel=1e-6)
+    assert [r["fitted"] for r in shared.residuals] == pytest.approx([r["fitted"] for r in built.residuals],
+                                                                     rel=1e-8)
+    assert shared.solver["statistics_from"] == built.solver["statistics_from"] == "collocation sensitivities"

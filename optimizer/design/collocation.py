@@ -23,13 +23,14 @@ from tubewright.models.state import TAIL, StateLayout
 from tubewright.optimizer.design.spec import DESIGN_KEYS, case_value
 
 
-def _design_component(model, name, spec, value):
-    """A free design quantity becomes a Var within its bounds, a fixed one a mutable Param."""
+def _design_component(model, name, spec):
+    """A free design quantity becomes a Var within its bounds, a fixed one a mutable Param (its value set by
+    load_case_inputs)."""
     if name in spec.free:
         fv = spec.free[name]
         comp = pyo.Var(bounds=(fv.lower, fv.upper), initialize=fv.start)
     else:
-        comp = pyo.Param(mutable=True, initialize=spec.fixed.get(name, value))
+        comp = pyo.Param(mutable=True, initialize=0.0)
     model.add_component(f"design_{name}", comp)
     return comp
 
@@ -45,17 +46,17 @@ def parametrised_case(model, case, spec, kinetics=None, shared=None):
     else:
         d = {}
         for name in DESIGN_KEYS:
-            value = case_value(case, name)
-            if value is None:
+            if case_value(case, name) is None:
                 continue  # e.g. no coolant flow in a boiling-water case
-            d[name] = _design_component(model, name, spec, value)
+            d[name] = _design_component(model, name, spec)
     model.design = d
     n_rx = len(case.reactions)
-    model.k_ref = pyo.Param(range(n_rx), mutable=True, initialize={j: rx.k_ref for j, rx in enumerate(case.reactions)})
-    model.e_act = pyo.Param(range(n_rx), mutable=True,
-                            initialize={j: rx.activation_energy for j, rx in enumerate(case.reactions)})
-    model.u_multiplier = pyo.Param(mutable=True, initialize=case.heat_transfer.multiplier)
-    model.wall_thickness = pyo.Param(mutable=True, initialize=case.tube.wall_thickness)
+    model.k_ref = pyo.Param(range(n_rx), mutable=True, initialize=0.0)
+    model.e_act = pyo.Param(range(n_rx), mutable=True, initialize=0.0)
+    model.u_multiplier = pyo.Param(mutable=True, initialize=1.0)
+    model.wall_thickness = pyo.Param(mutable=True, initialize=0.0)
+    model.feed_flow = pyo.Param(range(len(case.names)), mutable=True, initialize=0.0)  # total over the tubes
+    load_case_inputs(model, case, spec)
     tube = replace(case.tube, length=d["length"], inner_diameter=d["inner_diameter"], count=d["tube_count"],
                    wall_thickness=model.wall_thickness)
     feed = replace(case.feed, temperature=d["inlet_temperature"], pressure=d["inlet_pressure"])
@@ -79,13 +80,30 @@ def parametrised_case(model, case, spec, kinetics=None, shared=None):
     return replace(case, tube=tube, feed=feed, coolant=coolant, reactions=reactions, heat_transfer=heat)
 
 
+def load_case_inputs(model, case, spec):
+    """Set the mutable Params that ``parametrised_case`` made of ``case`` (fixed design quantities, kinetic
+    parameters, U multiplier, wall thickness, feed flows) to the case's values: a built block then stands
+    for another case with the same ``replica_key`` (the copies of a fit's runs, nlp.copies)."""
+    for name, comp in model.design.items():
+        if comp.ctype is pyo.Param and comp.parent_block() is model:
+            comp.set_value(spec.fixed.get(name, case_value(case, name)))
+    for j, rx in enumerate(case.reactions):
+        model.k_ref[j] = rx.k_ref
+        model.e_act[j] = rx.activation_energy
+    model.u_multiplier = case.heat_transfer.multiplier
+    model.wall_thickness = case.tube.wall_thickness
+    for i, flow in enumerate(case.feed.molar_flows):
+        model.feed_flow[i] = flow
+
+
 def replica_key(case) -> str:
     """What the printed forms of a tube block depend on beyond its inputs and its constraint bounds: the case
     with every quantity that ``parametrised_case`` turns into a Pyomo component (design quantities, wall
     thickness, k_ref, E_a, U multiplier) and the feed flows (the bounds of the inlet constraints) set to one
     neutral value. Blocks built by build_tube_model from cases with equal keys, at the same mesh and with
     the same shared kinetics, differ only in input values and bounds: the bridge may compile them as
-    replicas (CompiledNLP(replicas=...)) instead of printing each."""
+    replicas (CompiledNLP(replicas=...)) instead of printing each, or build one and add the others as
+    copies (CompiledNLP(copies=...), with ``load_case_inputs``)."""
     one = 1.0
     coolant = case.coolant
     coolant = replace(coolant, **{k: one for k in ("temperature", "pressure", "mass_flow")
@@ -134,7 +152,7 @@ def build_tube_model(case, spec, nfe: int = 40, ncp: int = 3, block=None, kineti
         for state, rhs in d.tail.items():
             m.ode[state, x] = getattr(m, f"d{state}")[x] == L * rhs
     N = pcase.tube.count
-    m.inlet_F = pyo.Constraint(m.S, rule=lambda m, s: m.F[s, 0.0] * N == case.feed.molar_flows[names.index(s)])
+    m.inlet_F = pyo.Constraint(m.S, rule=lambda m, s: m.F[s, 0.0] * N == m.feed_flow[names.index(s)])
     m.inlet_T = pyo.Constraint(expr=m.T[0.0] == pcase.feed.temperature)
     m.inlet_P = pyo.Constraint(expr=m.P[0.0] == pcase.feed.pressure)
     m.inlet_Q = pyo.Constraint(expr=m.Q[0.0] == 0.0)

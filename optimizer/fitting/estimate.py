@@ -167,8 +167,11 @@ def simulate_predictions(run_case, names, thermocouples=None):
                   predicted(run_case, q, f_in, f_out, cols["T_K"][-1], n, temperature_at)) for q in names], sim
 
 
-def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) -> FitOutcome:
-    """Fit the free kinetic parameters of ``case_path``'s [fit] to the runs of ``data_path``."""
+def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None,
+        share_blocks: bool = True) -> FitOutcome:
+    """Fit the free kinetic parameters of ``case_path``'s [fit] to the runs of ``data_path``.
+    ``share_blocks``: runs whose tube blocks print alike share one built block (the others are its copies in
+    the bridge); False builds every run's block (the same problem, slower: a check)."""
     from tubewright.models import load_case
 
     t0 = time.perf_counter()
@@ -184,16 +187,10 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     # the inputs are read and checked: only now the heavy imports (a bad file is refused at once)
     import pyomo.core as pyo
     from tubewright.models.simulator import simulate
-    from tubewright.optimizer.design.collocation import (
-        build_tube_model,
-        collocation_value,
-        initialise_from_simulation,
-        replica_key,
-        state_scaling,
-        tube_scale_factors,
-    )
+    from tubewright.optimizer.design.collocation import build_tube_model
     from tubewright.optimizer.design.spec import DesignSpec
     from tubewright.optimizer.nlp.bridge import CompiledNLP
+    from tubewright.optimizer.nlp.copies import Copies
     from tubewright.optimizer.nlp.garbage_collection import paused_collection
 
     t_fit = spec.reference_temperature or arrhenius_reference_temperature([r.case.feed.temperature for r in runs])
@@ -239,42 +236,51 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
         m.theta = pyo.Var(range(len(names)), bounds=lambda m, i: (low_i[i], up_i[i]),
                           initialize=lambda m, i: internal0[i])
         values = [pyo.exp(m.theta[k]) if is_k[k] else m.theta[k] for k in range(len(names))]
-        m.run = pyo.Block(range(len(usable)))
-        observations, weighted, x_scale, g_scale = [], [], {}, {}
-        for i, (run, sim) in enumerate(usable):
-            b = m.run[i]
-            kinetics = kinetics_at(run.case, spec, t_fit, values, pyomo_backend())
-            if sim is not None:  # outlet quantities: the run's tube as a collocation block
-                nfe_i = int(nfe or run.case.numerics.finite_elements)
-                ncp_i = int(ncp or run.case.numerics.collocation_points)
-                _, pcase = build_tube_model(run.case, DesignSpec(), nfe_i, ncp_i, block=b, kinetics=kinetics)
-                initialise_from_simulation(b, run.case, sim)
-                var_s, con_s = tube_scale_factors(b, run.case, state_scaling(b, run.case, sim))
-                x_scale.update(var_s)
-                g_scale.update(con_s)
-                f_in = [b.F[s, 0.0] for s in run.case.names]
-                f_out = [b.F[s, 1.0] for s in run.case.names]
-            for name, y in run.measured.items():
-                sigma = sigma_of(spec, name, y)
-                if is_rate(name):
-                    expr = predicted_rate(pyomo_backend(), with_kinetics(run.case, kinetics), name)
-                else:
-                    expr = predicted(run.case, name, f_in, f_out, b.T[1.0], pcase.tube.count,
-                                     lambda tc, b=b, L=run.case.tube.length: collocation_value(
-                                         b, b.T, spec.thermocouples[tc] / L))
-                weighted.append((expr - y) / sigma)
-                observations.append((run, name, y, sigma))
-        m.objective = pyo.Objective(expr=0.5 * sum(r**2 for r in weighted))
-        # runs that differ only in what their blocks hold as inputs or bounds share the printed forms
-        alike: dict = {}
+        # runs whose tube blocks would print alike are built once: the first as a Pyomo block (the template),
+        # the others as its copies in the bridge (nlp.copies), loaded with their own data
+        groups: dict = {}
         for i, (run, sim) in enumerate(usable):
             if sim is not None:
-                mesh = (int(nfe or run.case.numerics.finite_elements), int(ncp or run.case.numerics.collocation_points))
-                alike.setdefault((*mesh, replica_key(run.case)), []).append(m.run[i])
-        nlp = CompiledNLP(m, replicas=[blocks for blocks in alike.values() if len(blocks) > 1])
+                groups.setdefault(_template_key(run, spec, nfe, ncp) if share_blocks else i, []).append(i)
+        m.run = pyo.Block(range(len(groups)))
+        templates = {}  # usable index of a group's first run -> its block
+        for g, members in enumerate(groups.values()):
+            run, sim = usable[members[0]]
+            b = templates[members[0]] = m.run[g]
+            _, pcase = build_tube_model(run.case, DesignSpec(), int(nfe or run.case.numerics.finite_elements),
+                                        int(ncp or run.case.numerics.collocation_points), block=b,
+                                        kinetics=kinetics_at(run.case, spec, t_fit, values, pyomo_backend()))
+            _add_residuals(b, run, spec, pcase)
+        differential = []  # the weighted residuals of the differential runs: rate laws of the parameters
+        for run, sim in usable:
+            if sim is None:
+                kinetics = kinetics_at(run.case, spec, t_fit, values, pyomo_backend())
+                differential += [(predicted_rate(pyomo_backend(), with_kinetics(run.case, kinetics), name) - y)
+                                 / sigma_of(spec, name, y) for name, y in run.measured.items()]
+        m.objective = pyo.Objective(expr=sum(b.objective_term for b in templates.values())
+                                    + 0.5 * sum(r**2 for r in differential))
+        copied = [members for members in groups.values() if len(members) > 1]
+        nlp = CompiledNLP(m, copies=[Copies(templates[ms[0]], len(ms) - 1, templates[ms[0]].objective_term)
+                                     for ms in copied])
+        place = {}  # usable index -> (template block, its store or None, copy number)
+        for members in groups.values():
+            store = nlp.copy_stores[copied.index(members)] if len(members) > 1 else None
+            for k, i in enumerate(members):
+                place[i] = (templates[members[0]], store, k)
+        x_scale, g_scale = _load_runs(usable, spec, place, [sim for _, sim in usable])
+        observations, weighted = [], []  # per measurement: (run, name, y, sigma), (expression, store, copy)
+        d = iter(differential)
+        for i, (run, sim) in enumerate(usable):
+            for j, (name, y) in enumerate(run.measured.items()):
+                observations.append((run, name, y, sigma_of(spec, name, y)))
+                if sim is None:
+                    weighted.append((next(d), None, 0))
+                else:
+                    b, store, k = place[i]
+                    weighted.append((b.residual[j], store if k else None, k))
     for k, v in enumerate(m.theta.values()):
         x_scale[id(v)] = 1.0 / max(abs(internal0[k]), 1.0)
-    scaling = (1.0 / max(pyo.value(m.objective), 1.0), np.array([x_scale.get(id(v), 1.0) for v in nlp.variables]),
+    scaling = (1.0 / max(nlp.objective_value(), 1.0), np.array([x_scale.get(id(v), 1.0) for v in nlp.variables]),
                np.array([g_scale.get(id(c), 1.0) for c in nlp.constraints]))
     num = base.numerics
     opts = {"max_iter": 500, "tol": 1e-9, "mu_strategy": "adaptive", "mumps_pivtol": 1e-4,
@@ -284,10 +290,10 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     t_phase = time.perf_counter()
     solved = nlp.solve(options=opts, scaling=scaling)
     if spec.starts > 1:
-        solved = _more_starts(m, nlp, usable, spec, t_fit, (low_i, up_i, is_k), solved, opts, scaling, out)
+        solved = _more_starts(m, nlp, usable, place, spec, t_fit, (low_i, up_i, is_k), solved, opts, scaling, out)
     theta = np.array([pyo.value(v) for v in values])
     out.solver = {**solved.as_dict(), "variables": nlp.n, "ipopt_variables": nlp.times["ipopt_variables"],
-                  "forms": nlp.times["forms"], "replicated_runs": nlp.times["replicated_blocks"],
+                  "forms": nlp.times["forms"], "copied_runs": nlp.times["copies"],
                   "compile_s": nlp.times["compile_s"], "runs": len(usable), **out.solver}
     if not solved.success:
         out.message = f"IPOPT did not converge: {solved.status_name} ({solved.message})"
@@ -345,6 +351,73 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None) ->
     return out
 
 
+def _template_key(run, spec, nfe, ncp):
+    """Runs with equal keys have tube blocks that print alike: one is built, the others are its copies. The
+    key holds the mesh, the case beyond what becomes inputs (collocation.replica_key), the reactions as they
+    are (the fitted kinetics' constants come from them), the measured quantities in order and, when axial
+    temperatures are measured, the tube length (it places the thermocouples on the mesh)."""
+    from tubewright.optimizer.design.collocation import replica_key
+
+    case = run.case
+    axial = any(name.startswith("axial_temperature.") for name in run.measured)
+    return (int(nfe or case.numerics.finite_elements), int(ncp or case.numerics.collocation_points),
+            replica_key(case), repr(case.reactions), tuple(run.measured), case.tube.length if axial else None)
+
+
+def _add_residuals(b, run, spec, pcase):
+    """The run's weighted residuals on its tube block: ``b.residual[j]`` = (prediction - b.measured[j]) /
+    b.sigma[j] for its j-th measured quantity (measured values and sigmas are inputs, so that the block
+    stands for any run of its group), and ``b.objective_term`` = half their sum of squares."""
+    import pyomo.core as pyo
+    from tubewright.optimizer.design.collocation import collocation_value
+
+    names = list(run.measured)
+    f_in = [b.F[s, 0.0] for s in run.case.names]
+    f_out = [b.F[s, 1.0] for s in run.case.names]
+    length = run.case.tube.length
+
+    def temperature_at(tc):
+        return collocation_value(b, b.T, spec.thermocouples[tc] / length)
+
+    b.measured = pyo.Param(range(len(names)), mutable=True, initialize=0.0)
+    b.sigma = pyo.Param(range(len(names)), mutable=True, initialize=1.0)
+    b.residual = pyo.Expression(range(len(names)), rule=lambda b, j: (predicted(
+        run.case, names[j], f_in, f_out, b.T[1.0], pcase.tube.count, temperature_at) - b.measured[j]) / b.sigma[j])
+    b.objective_term = pyo.Expression(expr=0.5 * sum(r**2 for r in b.residual.values()))
+
+
+def _load_runs(usable, spec, place, sims):
+    """Every tube run's data into its block or its copy (``place``: usable index -> (template block, store,
+    copy number)): its case's inputs, its measured values and sigmas, its states from ``sims[i]``. Returns
+    IPOPT's scale factors by id of variable and constraint, the copies' stand-ins included. Each template
+    ends holding its own run."""
+    from tubewright.optimizer.design.collocation import (
+        initialise_from_simulation,
+        load_case_inputs,
+        state_scaling,
+        tube_scale_factors,
+    )
+    from tubewright.optimizer.design.spec import DesignSpec
+
+    x_scale, g_scale = {}, {}
+    copies_first = sorted(place, key=lambda i: place[i][2] == 0)
+    for i in copies_first:
+        run, sim = usable[i][0], sims[i]
+        b, store, k = place[i]
+        load_case_inputs(b, run.case, DesignSpec())
+        initialise_from_simulation(b, run.case, sim)
+        for j, (name, y) in enumerate(run.measured.items()):
+            b.measured[j] = y
+            b.sigma[j] = sigma_of(spec, name, y)
+        var_s, con_s = tube_scale_factors(b, run.case, state_scaling(b, run.case, sim))
+        if k:
+            store.capture(k)
+            var_s, con_s = store.translated(k, var_s), store.translated(k, con_s)
+        x_scale.update(var_s)
+        g_scale.update(con_s)
+    return x_scale, g_scale
+
+
 def on_rate_constants(values, is_k, fn):
     """``fn`` (ln or exp) applied to the rate-constant entries only (E_a stays as it is)."""
     out = np.array(values, dtype=float)
@@ -355,11 +428,10 @@ def on_rate_constants(values, is_k, fn):
 MAX_DRAWS_PER_START = 20  # random starts whose runs cannot all be simulated are drawn again, up to this many
 
 
-def _more_starts(m, nlp, usable, spec, t_fit, box, first, opts, scaling, out):
+def _more_starts(m, nlp, usable, place, spec, t_fit, box, first, opts, scaling, out):
     """Solve again from ``spec.starts - 1`` random points (seeded; ln k and E_a uniform within the bounds),
     each run's block initialised from its simulation there; keep the best converged optimum."""
     from tubewright.models.simulator import simulate
-    from tubewright.optimizer.design.collocation import initialise_from_simulation
 
     low, up, is_k = box
     rng = np.random.default_rng(spec.seed)
@@ -384,9 +456,7 @@ def _more_starts(m, nlp, usable, spec, t_fit, box, first, opts, scaling, out):
             continue  # a run cannot be simulated from this start: draw another
         for k, v in enumerate(m.theta.values()):
             v.set_value(float(internal[k]))
-        for i, ((run, _), sim) in enumerate(zip(usable, sims)):
-            if sim is not None:
-                initialise_from_simulation(m.run[i], run.case, sim)
+        _load_runs(usable, spec, place, sims)
         solved = nlp.solve(options=opts, scaling=scaling)
         objectives.append(solved.objective if solved.success else None)
         if solved.success and (not best.success or solved.objective < best.objective):

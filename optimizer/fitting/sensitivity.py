@@ -14,6 +14,8 @@ statistics describe the estimate that was found; the integrator, at the estimate
 
 from __future__ import annotations
 
+from contextlib import nullcontext
+
 import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.linalg import splu
@@ -23,7 +25,8 @@ def residual_jacobian(nlp, parameters, residuals):
     """(weighted residuals, their Jacobian in the parameters as IPOPT sees them) at the model's current
     point, or None when the rows do not fix the states (not square, an inequality, a singular J_s).
     ``nlp``: the fit's CompiledNLP after its solve; ``parameters``: the Pyomo variables of the free
-    parameters; ``residuals``: Pyomo expressions of the weighted residuals."""
+    parameters; ``residuals``: per weighted residual (Pyomo expression, CopyStore, copy number): the
+    expression of a template block evaluated at that copy (store None: as it is, in the model)."""
     from pyomo.core import value
     from pyomo.core.expr.calculus.derivatives import differentiate
     from pyomo.core.expr.visitor import identify_variables
@@ -37,7 +40,7 @@ def residual_jacobian(nlp, parameters, residuals):
     states = np.flatnonzero(~is_theta)
     if len(states) != nlp.m or np.any(nlp.g_lb != nlp.g_ub):
         return None
-    x = np.array([v.value for v in nlp.variables], dtype=float)
+    x = nlp.current_point(clip=False)
     with np.errstate(all="ignore"):
         values = nlp._jac(x)
     if not np.all(np.isfinite(values)):
@@ -55,16 +58,23 @@ def residual_jacobian(nlp, parameters, residuals):
     theta_col = {i: k for k, i in enumerate(theta)}
     r = np.empty(len(residuals))
     out = np.zeros((len(residuals), len(parameters)))
-    for row, expr in enumerate(residuals):
-        r[row] = value(expr)
-        wrt = list(identify_variables(expr, include_fixed=False))
-        if not wrt:
-            continue
-        grads = differentiate(expr, wrt_list=wrt, mode=differentiate.Modes.reverse_numeric)
-        for v, g in zip(wrt, grads):
-            i = position[id(v)]
-            if i in theta_col:
-                out[row, theta_col[i]] += g
-            else:
-                out[row] += g * ds[state_row[i]]
+    by_copy: dict = {}
+    for row, (_, store, k) in enumerate(residuals):
+        by_copy.setdefault((id(store), k), (store, k, []))[2].append(row)
+    for store, k, rows in by_copy.values():
+        with nullcontext() if store is None else store.loaded(k):  # a copy's residuals: its values in the template
+            for row in rows:
+                expr = residuals[row][0]
+                r[row] = value(expr)
+                wrt = list(identify_variables(expr, include_fixed=False))
+                if not wrt:
+                    continue
+                grads = differentiate(expr, wrt_list=wrt, mode=differentiate.Modes.reverse_numeric)
+                for v, g in zip(wrt, grads):
+                    i = store.column(k, v) if store is not None else None
+                    i = position[id(v)] if i is None else i
+                    if i in theta_col:
+                        out[row, theta_col[i]] += g
+                    else:
+                        out[row] += g * ds[state_row[i]]
     return r, out

@@ -752,10 +752,11 @@ class CompiledNLP:
 
     on_iteration = None  # optional f(iteration, objective, primal infeasibility), called by IPOPT every iteration
 
-    def current_point(self) -> np.ndarray:
+    def current_point(self, clip: bool = True) -> np.ndarray:
+        """The variables' values (the copies' from their stores), within the bounds read last if ``clip``."""
         x = np.concatenate([np.array([0.0 if v.value is None else v.value for v in self.variables[:self._n_real]],
                                      dtype=float), *[s.x.reshape(-1) for s in self.copy_stores]])
-        return np.clip(x, self.x_lb, self.x_ub)
+        return np.clip(x, self.x_lb, self.x_ub) if clip else x
 
     def _write(self, x: np.ndarray):
         """The point x into the model's variables and the copies' stores."""
@@ -911,6 +912,12 @@ class CompiledNLP:
             return None
         red.refresh(x0, self.g_lb)
         return red
+
+    def objective_value(self) -> float:
+        """The objective at the model's current values (the copies' terms included), in the model's sense."""
+        self.refresh()
+        with np.errstate(all="ignore"):
+            return self.sign * self._obj(self.current_point())
 
     def multiplier(self, constraint) -> float:
         """IPOPT's multiplier of one constraint after a solve (Lagrangian f + lambda^T g)."""

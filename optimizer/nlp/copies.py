@@ -71,8 +71,9 @@ class CopyStore:
         nv = len(variables)
         self.x, self.lb, self.ub, self.p = (np.empty((k, nv)), np.empty((k, nv)), np.empty((k, nv)),
                                             np.empty((k, len(inputs))))
-        for row in range(k):  # every copy starts as the template is now
-            self._read(row)
+        self._read(0)
+        for array in (self.x, self.lb, self.ub, self.p, self.g_lb, self.g_ub):
+            array[1:] = array[0]  # every copy starts as the template is now
         self._labels: dict = {}
         self.variable_position = {id(v): j for j, v in enumerate(variables)}
         self.row_position = {id(c): j for j, c in enumerate(constraints)}
@@ -127,6 +128,21 @@ class CopyStore:
             return self.stand_ins[0][self._row(k) * len(self.variables) + j]
         j = self.row_position.get(id(component))
         return None if j is None else self.stand_ins[2][self._row(k) * len(self.constraints) + j]
+
+    def translated(self, k: int, by_id: dict) -> dict:
+        """{id(template variable or constraint): value} as {id(copy k's stand-in): value}; ids that are not
+        the template's are left out."""
+        row, nv, nr = self._row(k), len(self.variables), len(self.constraints)
+        out = {}
+        for key, v in by_id.items():
+            j = self.variable_position.get(key)
+            if j is not None:
+                out[id(self.stand_ins[0][row * nv + j])] = v
+                continue
+            j = self.row_position.get(key)
+            if j is not None:
+                out[id(self.stand_ins[2][row * nr + j])] = v
+        return out
 
     def label(self, k: int, component) -> object:
         """One object per (copy, template component): copies' variables are grouped by component too."""

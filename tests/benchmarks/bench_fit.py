@@ -83,7 +83,7 @@ def least_squares_fit(runs_path: Path):
 
 
 def main():
-    print(f"{'runs':>5}{'fit s':>8}{'compile s':>11}{'forms':>7}{'replicas':>9}{'IPOPT it':>10}{'least_sq s':>12}"
+    print(f"{'runs':>5}{'fit s':>8}{'compile s':>11}{'forms':>7}{'copies':>9}{'IPOPT it':>10}{'least_sq s':>12}"
           f"{'nfev':>6}{'ratio':>8}   largest relative difference of the estimates; fit phases (s)")
     with tempfile.TemporaryDirectory() as tmp:
         for n in (5, 10, 20):
@@ -99,7 +99,7 @@ def main():
             diff = float(np.max(np.abs(theta - theta_ls) / np.abs(theta_ls)))
             s = out.solver
             phases = ", ".join(f"{k} {v:.2f}" for k, v in s["phases_s"].items())
-            print(f"{n:>5}{t_fit:>8.2f}{s['times_s']['compile_s']:>11.2f}{s['forms']:>7}{s['replicated_runs']:>9}"
+            print(f"{n:>5}{t_fit:>8.2f}{s['times_s']['compile_s']:>11.2f}{s['forms']:>7}{s['copied_runs']:>9}"
                   f"{s['iterations']:>10}{t_ls:>12.2f}{nfev:>6}{t_ls / t_fit:>8.2f}   {diff:.1e}; {phases}")
 
 

@@ -349,7 +349,8 @@ def test_paused_collection_restores_the_collector_and_leaves_garbage_collectable
 
 def test_structure_keys_separate_what_prints_differently_and_join_what_prints_alike():
     import pyomo.environ as pyo
-    from tubewright.optimizer.nlp.bridge import _Printer, _structure
+    from tubewright.optimizer.nlp.bridge import _Printer
+    from tubewright.optimizer.nlp.structure import structure_key as _structure
 
     m = pyo.ConcreteModel()
     m.x = pyo.Var(range(4), initialize=1.0)

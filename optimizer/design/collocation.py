@@ -180,26 +180,28 @@ def collocation_value(m, var, xi: float):
 
 
 def initialise_from_simulation(m, case, result):
-    """Set every state and derivative variable from an adaptive-integrator solution of the same design."""
+    """Set every state and derivative variable from an adaptive-integrator solution of the same design (the
+    derivatives from the balances at all points at once: the numpy backend takes arrays)."""
     cols = result.columns
     layout = StateLayout.of(case)
     L = case.tube.length
     z = cols["z_m"]
-    names = case.names
-    n_t = case.tube.count
-    for x in m.xi:
-        zz = min(x * L, z[-1])
-        F = [max(float(np.interp(zz, z, cols[layout.column(s)])) / n_t, 0.0) for s in names]
-        tail = {state: float(np.interp(zz, z, cols[layout.column(state)])) for state in TAIL}
-        for s, f in zip(names, F):
-            m.F[s, x].set_value(f, skip_validation=True)
-        for state, v in tail.items():
-            getattr(m, state)[x].set_value(v, skip_validation=True)
-        d = axial_derivatives(NUMPY, case, F, tail["T"], tail["P"], tail["Tc"])
-        for s, rate in zip(names, d.dF):
-            m.dF[s, x].set_value(L * float(rate), skip_validation=True)
-        for state, rhs in d.tail.items():
-            getattr(m, f"d{state}")[x].set_value(L * float(rhs), skip_validation=True)
+    points = list(m.xi)
+    zz = np.minimum(np.asarray(points) * L, z[-1])
+    F = [np.maximum(np.interp(zz, z, cols[layout.column(s)]) / case.tube.count, 0.0) for s in case.names]
+    tail = {state: np.interp(zz, z, cols[layout.column(state)]) for state in TAIL}
+    d = axial_derivatives(NUMPY, case, F, tail["T"], tail["P"], tail["Tc"])
+
+    def put(var, index, values):
+        for key, v in zip(index, np.broadcast_to(values, zz.shape).tolist()):
+            var[key].set_value(v, skip_validation=True)
+
+    for s, f, rate in zip(case.names, F, d.dF):
+        put(m.F, [(s, x) for x in points], f)
+        put(m.dF, [(s, x) for x in points], L * rate)
+    for state, rhs in d.tail.items():
+        put(getattr(m, state), points, tail[state])
+        put(getattr(m, f"d{state}"), points, L * rhs)
 
 
 def state_scaling(m, case, result) -> dict:

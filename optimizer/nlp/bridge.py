@@ -1,7 +1,7 @@
 """The Pyomo-to-cyipopt bridge: a Pyomo NLP in, IPOPT (through cyipopt) out, without the PyNumero ASL library.
 
 Compilation, once per model:
-1. Every active constraint body is walked for its structure key (_structure); the first body of each key is
+1. Every active constraint body is walked for its structure key (nlp.structure); the first body of each key is
    printed as numpy code with its unfixed variables and its inputs (mutable Params, fixed Vars) replaced by
    numbered placeholders. That text is the constraint's *form*: the many constraints of a collocation model
    share a few dozen forms.
@@ -34,8 +34,7 @@ from tubewright.optimizer.nlp.copies import Copies, CopyStore
 from tubewright.optimizer.nlp.form_cache import FormCache
 from tubewright.optimizer.nlp.presolve import LinearElimination
 from tubewright.optimizer.nlp.pyomo_rules import install_rules
-
-INFINITY = 1.0e19
+from tubewright.optimizer.nlp.structure import INFINITY, split_bounds, structure_key, variable_bounds
 
 IPOPT_STATUS = {
     0: "optimal", 1: "acceptable", 2: "infeasible", 3: "search direction too small", 4: "diverging iterates",
@@ -219,75 +218,6 @@ _FOLD_KINDS = {EXPR.SumExpression: "sum", EXPR.LinearExpression: "sum", EXPR.Pro
                EXPR.NegationExpression: "negation", EXPR.PowExpression: "power"}
 
 
-def _structure(expr):
-    """The structure key of an expression, its unfixed variables and its inputs (in the printer's order of
-    first appearance). Two expressions with equal keys print to the same text, up to how equal subtrees are
-    shared, which does not change their value: the key lists, depth first as the printer visits them, every
-    operation's class and arity (and function name or strictness), every number, and for each leaf its
-    variable or input slot (x0.., p0..) or its value; a subtree met before is a reference. Walking is about
-    1.7 times faster than printing, so compilation prints one expression per key (A -> B -> C at 400 elements:
-    0.43 s against 0.75 s for 20,409 constraints)."""
-    out, memo, keep = [], {}, []
-    variables, var_slot, inputs, input_slot = [], {}, [], {}
-    app = out.append
-
-    def visit(node):
-        cls = node.__class__
-        if cls in EXPR.native_numeric_types:
-            app(float(node))
-            return
-        kind = _WALK_KINDS.get(cls)
-        if kind is None:
-            kind = _WALK_KINDS[cls] = _walk_kind(node)
-        if kind in ("operation", "function", "inequality"):
-            seen = memo.get(id(node))
-            if seen is not None:
-                app(("ref", seen))
-                return
-            args = node.args
-            for a in args:
-                visit(a)
-            app((cls, len(args), node.getname() if kind == "function" else
-                 node.strict if kind == "inequality" else None))
-            memo[id(node)] = len(memo)
-            keep.append(node)  # ids stay unique while memoised
-        elif kind == "named":
-            visit(node.expr)
-        elif kind == "var" and not node.fixed:
-            slot = var_slot.get(id(node))
-            if slot is None:
-                slot = var_slot[id(node)] = len(variables)
-                variables.append(node)
-            app(("x", slot))
-        elif kind == "var" or (kind == "param" and not node.is_constant()):
-            slot = input_slot.get(id(node))
-            if slot is None:
-                slot = input_slot[id(node)] = len(inputs)
-                inputs.append(node)
-            app(("p", slot))
-        else:
-            app(float(value(node)))
-
-    visit(expr)
-    return tuple(out), variables, inputs
-
-
-_WALK_KINDS: dict = {}
-
-
-def _walk_kind(node) -> str:
-    """How _structure treats a node of this class (decided on first sight of the class)."""
-    if not node.is_expression_type():
-        return "var" if node.is_variable_type() else "param" if node.is_parameter_type() else "other"
-    if node.is_named_expression_type():
-        return "named"
-    if isinstance(node, EXPR.UnaryFunctionExpression):
-        return "function"
-    if isinstance(node, EXPR.InequalityExpression):
-        return "inequality"
-    return "operation"
-
-
 @dataclass
 class _Form:
     """One form: compiled value, gradient and Hessian functions, and the index matrices of its members."""
@@ -453,7 +383,7 @@ class CompiledNLP:
                 continue
             lower, body, upper = con.to_bounded_expression()
             self._bound_parts[row] = (lower, upper)
-            key, con_vars, con_inputs = _structure(body)
+            key, con_vars, con_inputs = structure_key(body)
             known = texts.get(key)
             if known is None:
                 printer = _Printer()
@@ -714,41 +644,28 @@ class CompiledNLP:
         self._p = np.concatenate([np.array([value(p) for p in self.inputs[:self._p_real]], dtype=float),
                                   *[s.p.reshape(-1) for s in stores]])
         self._deriv_key, self._deriv_values = None, {}  # inputs changed: forget cached derivatives
-        bounds = np.array([v.bounds for v in self.variables[:self._n_real]], dtype=float).reshape(-1, 2)
-        self.x_lb = np.concatenate([np.where(np.isnan(bounds[:, 0]), -INFINITY, bounds[:, 0]),  # None -> nan
-                                    *[s.lb.reshape(-1) for s in stores]])
-        self.x_ub = np.concatenate([np.where(np.isnan(bounds[:, 1]), INFINITY, bounds[:, 1]),
-                                    *[s.ub.reshape(-1) for s in stores]])
+        lower, upper = variable_bounds(self.variables[:self._n_real])
+        self.x_lb = np.concatenate([lower, *[s.lb.reshape(-1) for s in stores]])
+        self.x_ub = np.concatenate([upper, *[s.ub.reshape(-1) for s in stores]])
         if self._bound_exprs is None:
             self._constraint_bounds()
         g_lb, g_ub = self._g_lb_const.copy(), self._g_ub_const.copy()
-        for bounds, rows, exprs in ((g_lb, *self._bound_exprs[0]), (g_ub, *self._bound_exprs[1])):
-            bounds[rows] = [value(e) for e in exprs]
+        for bounds, (rows, exprs) in zip((g_lb, g_ub), self._bound_exprs):
+            bounds[rows] = exprs.values()
         self.g_lb = np.concatenate([g_lb, *[s.g_lb.reshape(-1) for s in stores]])
         self.g_ub = np.concatenate([g_ub, *[s.g_ub.reshape(-1) for s in stores]])
 
     def _constraint_bounds(self):
         """Constraint bounds that are numbers are read once; those with inputs (mutable Params, fixed Vars)
         at every refresh. A constraint's expression cannot change without a new CompiledNLP anyway."""
-        lb, ub = np.empty(self._m_real), np.empty(self._m_real)
-        live = ([], []), ([], [])
+        parts = []
         for row, c in enumerate(self.constraints[:self._m_real]):
-            parts = self._bound_parts.pop(row, None)
-            if parts is None:
+            part = self._bound_parts.pop(row, None)
+            if part is None:
                 lower, _, upper = c.to_bounded_expression()
-                parts = (lower, upper)
-            for side, (out, (rows, exprs), missing) in enumerate(((lb, live[0], -INFINITY), (ub, live[1], INFINITY))):
-                e = parts[side]
-                if e is None:
-                    out[row] = missing
-                elif e.__class__ in EXPR.native_numeric_types or e.is_constant():
-                    out[row] = value(e)
-                else:
-                    out[row] = np.nan
-                    rows.append(row)
-                    exprs.append(e)
-        self._g_lb_const, self._g_ub_const = lb, ub
-        self._bound_exprs = tuple((np.asarray(rows, dtype=np.int64), exprs) for rows, exprs in live)
+                part = (lower, upper)
+            parts.append(part)
+        (self._g_lb_const, self._g_ub_const), self._bound_exprs = split_bounds(parts)
 
     on_iteration = None  # optional f(iteration, objective, primal infeasibility), called by IPOPT every iteration
 

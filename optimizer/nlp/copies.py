@@ -31,9 +31,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from pyomo.core import value
-from pyomo.core.expr.numvalue import native_numeric_types
-
-INFINITY = 1.0e19
+from tubewright.optimizer.nlp.structure import INFINITY, split_bounds, variable_bounds
 
 
 @dataclass
@@ -56,21 +54,12 @@ class CopyStore:
         self.count = k = spec.count
         self.variables, self.inputs, self.constraints = variables, inputs, constraints  # the template's
         self.first_column, self.first_input, self.first_row = first_column, first_input, first_row
-        self.live_bounds = []  # (side, template row position, expression)
-        template_bounds = np.empty((2, len(constraints)))
-        for j, parts in enumerate(bound_parts):
-            for side, e in enumerate(parts):
-                if e is None:
-                    template_bounds[side, j] = -INFINITY if side == 0 else INFINITY
-                    continue
-                if not (e.__class__ in native_numeric_types or e.is_constant()):
-                    self.live_bounds.append((side, j, e))
-                template_bounds[side, j] = value(e)
-        self.g_lb = np.tile(template_bounds[0], (k, 1))
-        self.g_ub = np.tile(template_bounds[1], (k, 1))
+        template_bounds, self.live_bounds = split_bounds(bound_parts)
         nv = len(variables)
         self.x, self.lb, self.ub, self.p = (np.empty((k, nv)), np.empty((k, nv)), np.empty((k, nv)),
                                             np.empty((k, len(inputs))))
+        self.g_lb = np.tile(template_bounds[0], (k, 1))
+        self.g_ub = np.tile(template_bounds[1], (k, 1))
         self._read(0)
         for array in (self.x, self.lb, self.ub, self.p, self.g_lb, self.g_ub):
             array[1:] = array[0]  # every copy starts as the template is now
@@ -82,13 +71,11 @@ class CopyStore:
                           [CopyConstraint(self, c, j) for c in range(k) for j in range(len(constraints))])
 
     def _read(self, row: int):
-        bounds = np.array([v.bounds for v in self.variables], dtype=float).reshape(-1, 2)  # None -> nan
         self.x[row] = [_number(v.value) for v in self.variables]
-        self.lb[row] = np.where(np.isnan(bounds[:, 0]), -INFINITY, bounds[:, 0])
-        self.ub[row] = np.where(np.isnan(bounds[:, 1]), INFINITY, bounds[:, 1])
+        self.lb[row], self.ub[row] = variable_bounds(self.variables)
         self.p[row] = [_number(value(p)) for p in self.inputs]
-        for side, j, expr in self.live_bounds:
-            (self.g_lb if side == 0 else self.g_ub)[row, j] = value(expr)
+        for bounds, (rows, exprs) in zip((self.g_lb, self.g_ub), self.live_bounds):
+            bounds[row, rows] = exprs.values()
 
     def capture(self, k: int):
         """The template's current inputs, variable values and bounds, and input-dependent constraint bounds,

@@ -644,9 +644,7 @@ class CompiledNLP:
         self._p = np.concatenate([np.array([value(p) for p in self.inputs[:self._p_real]], dtype=float),
                                   *[s.p.reshape(-1) for s in stores]])
         self._deriv_key, self._deriv_values = None, {}  # inputs changed: forget cached derivatives
-        lower, upper = variable_bounds(self.variables[:self._n_real])
-        self.x_lb = np.concatenate([lower, *[s.lb.reshape(-1) for s in stores]])
-        self.x_ub = np.concatenate([upper, *[s.ub.reshape(-1) for s in stores]])
+        self.x_lb, self.x_ub = self.variable_bounds()
         if self._bound_exprs is None:
             self._constraint_bounds()
         g_lb, g_ub = self._g_lb_const.copy(), self._g_ub_const.copy()
@@ -654,6 +652,12 @@ class CompiledNLP:
             bounds[rows] = exprs.values()
         self.g_lb = np.concatenate([g_lb, *[s.g_lb.reshape(-1) for s in stores]])
         self.g_ub = np.concatenate([g_ub, *[s.g_ub.reshape(-1) for s in stores]])
+
+    def variable_bounds(self) -> tuple[np.ndarray, np.ndarray]:
+        """(lower, upper) of every variable as the model and the copies' stores hold them now (+-INFINITY)."""
+        lower, upper = variable_bounds(self.variables[:self._n_real])
+        return (np.concatenate([lower, *[s.lb.reshape(-1) for s in self.copy_stores]]),
+                np.concatenate([upper, *[s.ub.reshape(-1) for s in self.copy_stores]]))
 
     def _constraint_bounds(self):
         """Constraint bounds that are numbers are read once; those with inputs (mutable Params, fixed Vars)

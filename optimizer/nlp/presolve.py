@@ -24,6 +24,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.linalg import spsolve_triangular
 from tubewright.optimizer.nlp.dangling import find_dangling
+from tubewright.optimizer.nlp.structure import INFINITY
 
 MAX_DEPTH = 8
 
@@ -41,31 +42,39 @@ class LinearElimination:
             for pos, row in enumerate(f.members):
                 if nlp.constraints[row].equality:
                     linear_rows[row] = (f, pos)
-        bounded = np.array([b != (None, None) for b in (v.bounds for v in nlp.variables)], dtype=bool)
-        appearances = np.bincount(nlp.jac_cols, minlength=n)
-        depth = np.zeros(n, dtype=np.int64)  # 0: kept; k: defined at substitution level k
-        in_chosen_rows = np.zeros(n, dtype=bool)
+        lower, upper = nlp.variable_bounds()
+        bounded = (lower > -INFINITY) | (upper < INFINITY)
+        # the choice is sequential (each pick changes what later rows may pick): plain Python lists are
+        # several times faster than numpy scalars for it
+        bounded_list = bounded.tolist()
+        appearances = np.bincount(nlp.jac_cols, minlength=n).tolist()
+        depth = [0] * n  # 0: kept; k: defined at substitution level k
+        in_chosen_rows = bytearray(n)
+        columns = {id(f): f.var_index.tolist() for f in nlp.forms if not f.pairs}
         rows, picks, picks_local = [], [], []
         for row in sorted(linear_rows):
             f, pos = linear_rows[row]
-            cols = f.var_index[pos]
-            best = None
+            cols = columns[id(f)][pos]
+            coefs = f.constant_gradient
+            best, fewest = -1, 0
             for local, col in enumerate(cols):
-                coef = f.constant_gradient[local]
-                if coef is None or coef == 0.0 or bounded[col] or depth[col] or in_chosen_rows[col]:
+                coef = coefs[local]
+                if coef is None or coef == 0.0 or bounded_list[col] or depth[col] or in_chosen_rows[col]:
                     continue
-                if best is None or appearances[col] < appearances[cols[best]]:
-                    best = local
-            if best is None:
+                if best < 0 or appearances[col] < fewest:
+                    best, fewest = local, appearances[col]
+            if best < 0:
                 continue
-            level = 1 + int(depth[cols].max())
+            level = 1 + max(depth[c] for c in cols)
             if level > MAX_DEPTH:
                 continue
             depth[cols[best]] = level
-            in_chosen_rows[cols] = True
+            for c in cols:
+                in_chosen_rows[c] = 1
             rows.append(row)
-            picks.append(int(cols[best]))
+            picks.append(cols[best])
             picks_local.append(best)
+        depth = np.asarray(depth, dtype=np.int64)
         self.rows = np.asarray(rows, dtype=np.int64)  # the defining rows, in order of choice
         self.eliminated = np.asarray(picks, dtype=np.int64)  # the variable each defines
         self._linear_rows = linear_rows

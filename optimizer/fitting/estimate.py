@@ -1,13 +1,17 @@
 """Weighted least squares of kinetic parameters over all laboratory runs at once, solved by IPOPT through
-the bridge: one collocation block per run (the tube model of optimizer.design.collocation, built from the
-same balances as the simulator), all blocks sharing the free kinetic parameters (k, E_a, reaction orders);
-every block starts from a simulation of its run at the starting parameters. A differential run (measured
-formation rates only) needs no block: its rates are the rate law at its feed conditions.
+the bridge: one collocation model per run (the tube model of optimizer.design.collocation, built from the
+same balances as the simulator), all sharing the free kinetic parameters (k, E_a, reaction orders); every
+run starts from a simulation of its run at the starting parameters. Runs whose models print alike (see
+_template_key) are one Pyomo block and its copies in the bridge (nlp.copies): building grows with the
+groups, not with the runs. A differential run (measured formation rates only) needs no block: its rates are
+the rate law at its feed conditions.
 
 Arrhenius laws are fitted about one reference temperature T_fit inside the data (optimizer.fitting.spec):
 the free parameters are k(T_fit) and E_a, and the case's own k_ref (at its T_ref) is the expression
 k(T_fit) exp(-E_a/R (1/T_ref - 1/T_fit)). The statistics (optimizer.fitting.statistics) use the Jacobian of
-the weighted residuals by central differences of adaptive-integrator simulations at the estimate."""
+the weighted residuals from the collocation model's sensitivities (optimizer.fitting.sensitivity), with
+central differences of adaptive-integrator simulations as the fall-back; the integrator checks the mesh at
+the estimate."""
 
 from __future__ import annotations
 

@@ -424,9 +424,9 @@ class CompiledNLP:
         t_forms = time.perf_counter()
         cache = FormCache()
         self.forms = [_build_form(*group, cache) for group in groups.values()]
-        self.objective_form = _build_form(self.objective.expr, obj_printer, obj_source, [0], [ovars], [oinputs],
-                                          cache)
-        self.objective_forms = [self.objective_form]
+        # the model's objective, then (nlp.copies) each template's term over its copies
+        self.objective_forms = [_build_form(self.objective.expr, obj_printer, obj_source, [0], [ovars], [oinputs],
+                                            cache)]
         self._n_real, self._m_real, self._p_real = len(self.variables), len(self.constraints), len(self.inputs)
         self.copy_stores = [self._attach(spec, cache) for spec in copies]
         self.sign = -1.0 if self.objective.sense == maximize else 1.0
@@ -581,7 +581,7 @@ class CompiledNLP:
 
     def _obj(self, x):
         total = 0.0
-        for f in self.objective_forms:  # the model's objective, then each template's term over its copies
+        for f in self.objective_forms:
             total += float(np.sum(np.broadcast_to(f.fn(*self._args(f, x))[0], (len(f.members),))))
         return self.sign * total
 

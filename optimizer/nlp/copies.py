@@ -12,9 +12,9 @@ here the template block alone is built and the bridge adds ``count`` copies of i
 - ``objective_term``, an expression of the template's (and shared) variables, is added to the objective
   once per copy: the model's objective holds the template's own term;
 - a copy's values live in arrays (``CopyStore``); the caller sets the template to a copy's data (inputs,
-  bounds, starting values) and calls ``CompiledNLP.capture(store, k)``; ``loaded(store, k)`` puts a
-  copy's values into the template for as long as a ``with`` block needs them (to evaluate an expression of
-  the template at the copy).
+  bounds, starting values) and calls ``store.capture(k)``; ``with store.loaded(k):`` puts a copy's
+  values into the template for as long as the block needs them (to evaluate an expression of the template
+  at the copy). The stores are ``CompiledNLP.copy_stores``, in the order of the ``copies`` given.
 
 The rows, columns and inputs of the copies are listed in ``CompiledNLP.constraints``, ``variables`` and
 ``inputs`` as light stand-ins (``CopyVar``, ``CopyInput``, ``CopyConstraint``) with the attributes the
@@ -110,26 +110,21 @@ class CopyStore:
 
     def instance(self, k: int, component):
         """Copy ``k``'s stand-in for a template variable or constraint (None if not the template's)."""
-        j = self.variable_position.get(id(component))
-        if j is not None:
-            return self.stand_ins[0][self._row(k) * len(self.variables) + j]
-        j = self.row_position.get(id(component))
-        return None if j is None else self.stand_ins[2][self._row(k) * len(self.constraints) + j]
+        return self._stand_in(self._row(k), id(component))
 
     def translated(self, k: int, by_id: dict) -> dict:
         """{id(template variable or constraint): value} as {id(copy k's stand-in): value}; ids that are not
         the template's are left out."""
-        row, nv, nr = self._row(k), len(self.variables), len(self.constraints)
-        out = {}
-        for key, v in by_id.items():
-            j = self.variable_position.get(key)
-            if j is not None:
-                out[id(self.stand_ins[0][row * nv + j])] = v
-                continue
-            j = self.row_position.get(key)
-            if j is not None:
-                out[id(self.stand_ins[2][row * nr + j])] = v
-        return out
+        row = self._row(k)
+        pairs = ((self._stand_in(row, key), v) for key, v in by_id.items())
+        return {id(stand_in): v for stand_in, v in pairs if stand_in is not None}
+
+    def _stand_in(self, row: int, key: int):
+        j = self.variable_position.get(key)
+        if j is not None:
+            return self.stand_ins[0][row * len(self.variables) + j]
+        j = self.row_position.get(key)
+        return None if j is None else self.stand_ins[2][row * len(self.constraints) + j]
 
     def label(self, k: int, component) -> object:
         """One object per (copy, template component): copies' variables are grouped by component too."""

@@ -44,8 +44,8 @@ class LinearElimination:
                     linear_rows[row] = (f, pos)
         lower, upper = nlp.variable_bounds()
         bounded = (lower > -INFINITY) | (upper < INFINITY)
-        # the choice is sequential (each pick changes what later rows may pick): plain Python lists are
-        # several times faster than numpy scalars for it
+        # the choice is sequential (each pick changes what later rows may pick): a loop over plain lists, as
+        # indexing numpy arrays one element at a time costs more than the work itself
         bounded_list = bounded.tolist()
         appearances = np.bincount(nlp.jac_cols, minlength=n).tolist()
         depth = [0] * n  # 0: kept; k: defined at substitution level k

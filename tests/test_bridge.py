@@ -305,6 +305,50 @@ def test_copies_of_a_template_solve_the_same_problem_as_built_blocks(compact):
     assert b.solve().objective == pytest.approx(a.solve().objective, rel=1e-10)
 
 
+def _determined(p=1.0):
+    """u fixed by three linear rows of its own (one with an input coefficient q): u0 = p, q u1 - 2 u0 = 1,
+    u1 + u2 = 3 p; x and y by a nonlinear problem that reads u."""
+    m = pyo.ConcreteModel()
+    m.p = pyo.Param(mutable=True, initialize=p)
+    m.q = pyo.Param(mutable=True, initialize=1.0)
+    m.u = pyo.Var(range(3), initialize=0.0)
+    m.u[2].setlb(-10.0)
+    m.u[2].setub(10.0)
+    m.x = pyo.Var(initialize=1.0, bounds=(0.1, 5.0))
+    m.y = pyo.Var(initialize=1.0)
+    m.fix0 = pyo.Constraint(expr=m.u[0] == m.p)
+    m.fix1 = pyo.Constraint(expr=m.q * m.u[1] - 2.0 * m.u[0] == 1.0)
+    m.fix2 = pyo.Constraint(expr=m.u[1] + m.u[2] == 3.0 * m.p)
+    m.link = pyo.Constraint(expr=m.x * m.u[0] + m.y == 2.0)
+    m.floor = pyo.Constraint(expr=m.x * m.u[1] >= 1.5)
+    m.obj = pyo.Objective(expr=(m.x - m.u[2]) ** 2 + m.y**2 * m.u[1] + m.x * m.y)
+    return m
+
+
+def test_determined_blocks_leave_ipopt_with_exact_multipliers():
+    # u follows from its own linear rows (nlp.presolve's determined blocks): the compact problem leaves it
+    # out and reports the same point and every multiplier as the whole problem (the reference, same IPOPT);
+    # a changed input coefficient is read at the next solve; values outside u's bounds fall back to the
+    # whole problem, which says the rows cannot hold.
+    full, compact = _determined(), _determined()
+    a = CompiledNLP(full, compact=False)
+    b = CompiledNLP(compact)
+    column = {id(v): j for j, v in enumerate(b.variables)}
+    assert sorted(b.compact.block_cols.tolist()) == sorted(column[id(v)] for v in compact.u.values())
+    assert b.times["ipopt_variables"] == 2
+    for q in (1.0, 1.5):
+        full.q, compact.q = q, q
+        out_a, out_b = a.solve(), b.solve()
+        assert out_a.success and out_b.success and "compact_fallback" not in out_b.times
+        assert out_b.objective == pytest.approx(out_a.objective, rel=1e-10)
+        assert out_b.x == pytest.approx(out_a.x, rel=1e-8, abs=1e-10)
+        assert out_b.multipliers == pytest.approx(out_a.multipliers, rel=1e-6, abs=1e-9)
+        assert pyo.value(compact.u[1]) == pytest.approx((1.0 + 2.0) / q, rel=1e-12)  # analytic: (1 + 2 p) / q
+    compact.p = 8.0  # u2 = 24 - 17 / 1.5 > 10
+    out = b.solve()
+    assert "leave a bound" in out.times["compact_fallback"] and not out.success
+
+
 def test_copies_refuse_a_template_outside_the_model():
     from tubewright.optimizer.nlp.copies import Copies
 

@@ -166,10 +166,10 @@ def test_ideal_bound_logsdon_biegler_temperature_profile():
 
 
 def test_output_only_states_are_solved_after_ipopt():
-    # The heat removed and the residence time feed no limit of this problem; with the fluid temperature free
-    # the coolant temperature feeds only the heat removed, and the pressure (no rate reads it here) nothing:
-    # IPOPT solves without them (nlp.dangling) and Newton's method fills them in; the reference is the same
-    # model with them inside.
+    # The heat removed and the residence time feed no limit of this problem, and the pressure (no rate reads
+    # it here) nothing: IPOPT solves without them (nlp.dangling) and Newton's method fills them in; the
+    # coolant temperature (held constant here) and the flow of the inert solvent S follow from their own
+    # linear rows alone, determined blocks (nlp.presolve). The reference is the same model with them inside.
     from tubewright.optimizer.design.ideal import free_temperature_profile
 
     p = DesignProblem(make(logsdon_biegler_data(10)))
@@ -177,7 +177,10 @@ def test_output_only_states_are_solved_after_ipopt():
     nlp = p.nlp
     cut = nlp.compact.dangling
     names = {nlp.variables[nlp.compact.kept[j]].name.split("[")[0] for j in cut.cols}
-    assert names == {"Q", "tau", "Tc", "P"} and len(cut.cols) == 4 * 31  # the inlet and 30 collocation points
+    assert names == {"Q", "tau", "P"} and len(cut.cols) == 3 * 31  # the inlet and 30 collocation points
+    blocks = [nlp.variables[j].name for j in nlp.compact.block_cols]
+    assert len(blocks) == 2 * (31 + 30) and {b.split("[")[0] for b in blocks} == {"Tc", "dTc", "F", "dF"}
+    assert all(b.startswith(("Tc[", "dTc[", "F[S,", "dF[S,")) for b in blocks)
     x0 = [v.value for v in nlp.variables]
     outs = []
     for dangling in (False, True):

@@ -434,7 +434,7 @@ class CompiledNLP:
         self.n, self.m = len(self.variables), len(self.constraints)
         t_compact = time.perf_counter()
         self.compact = LinearElimination(self) if compact else None
-        if self.compact is not None and not len(self.compact.rows):
+        if self.compact is not None and not len(self.compact.removed_rows):
             self.compact = None
         ipopt_n, ipopt_m = self._ipopt_size()
         self.times = {"compile_s": time.perf_counter() - t0, "differentiate_s": t_compact - t_forms,
@@ -445,6 +445,7 @@ class CompiledNLP:
         self._warm = None
         self._deriv_key, self._deriv_values = None, {}
         self._bound_exprs = None
+        self._compact_problem = None  # why the last solve could not use the compact problem
 
     def _attach(self, spec: Copies, cache) -> CopyStore:
         """Add ``spec.count`` copies of the template block: new columns, inputs and rows appended to the
@@ -805,7 +806,7 @@ class CompiledNLP:
             mult_g[rows] = info["mult_g"]
             zl[cols], zu[cols] = info["mult_x_L"], info["mult_x_U"]
             with np.errstate(all="ignore"):
-                mult_g[red.rows] = red.defining_multipliers(x, mult_g[red.kept_rows])
+                mult_g[red.removed_rows] = red.defining_multipliers(x, mult_g[red.kept_rows])
         total = time.perf_counter() - t0
         self._write(x)
         with np.errstate(all="ignore"):
@@ -820,18 +821,28 @@ class CompiledNLP:
             iterations=iterations[0], objective=self.sign * float(info["obj_val"]), constraint_violation=viol,
             x=x, multipliers=mult_g, bound_multipliers_lower=zl, bound_multipliers_upper=zu,
             times={"compile_s": self.times["compile_s"], "callbacks_s": timer["callbacks_s"],
-                   "ipopt_s": total - timer["callbacks_s"], "solve_s": total})
+                   "ipopt_s": total - timer["callbacks_s"], "solve_s": total,
+                   **({"compact_fallback": self._compact_problem} if self._compact_problem else {})})
 
     def _reduction(self, x0):
-        """The compact problem when it still applies to the current bounds (its defining rows are still
-        equalities, its eliminated variables still free), with its values read at x0; else None."""
+        """The compact problem when it still applies to the current bounds (its removed rows are still
+        equalities, its eliminated variables still free, its determined blocks solvable and inside their
+        bounds), with its values read at x0; else None (``times["compact_fallback"]`` of the solve says why)."""
         red = self.compact
+        self._compact_problem = None
         if red is None:
             return None
-        if (np.any(self.g_lb[red.rows] != self.g_ub[red.rows]) or np.any(self.x_lb[red.eliminated] > -INFINITY)
-                or np.any(self.x_ub[red.eliminated] < INFINITY)):
+        if (np.any(self.g_lb[red.removed_rows] != self.g_ub[red.removed_rows])
+                or np.any(self.x_lb[red.eliminated] > -INFINITY) or np.any(self.x_ub[red.eliminated] < INFINITY)):
+            self._compact_problem = "a removed row is no longer an equality or an eliminated variable has a bound"
             return None
         red.refresh(x0, self.g_lb)
+        cols, values = red.block_cols, red.block_values
+        if red.block_problem is None and (np.any(values < self.x_lb[cols]) or np.any(values > self.x_ub[cols])):
+            red.block_problem = "a determined block's values leave a bound"
+        if red.block_problem is not None:
+            self._compact_problem = red.block_problem
+            return None
         return red
 
     def objective_value(self) -> float:

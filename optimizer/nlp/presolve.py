@@ -14,15 +14,24 @@ already and appears in no row chosen before; among the candidates the one in the
 Rows chosen later may contain variables defined earlier, so the defining system is lower triangular in the
 order of choice (solved by substitution, at most ``MAX_DEPTH`` levels deep).
 
+Before that choice, *determined blocks* are taken out whole: a connected group of linear equality rows that
+holds only its own variables, as many rows as variables with a structurally non-singular pattern, fixes
+those variables from the inputs alone (an isothermal tube's temperatures and their derivatives; an inert
+species' flows when the tube count is given). Their values come from one sparse LU at each refresh (x = t
+there, T has no row for them); bounds are allowed on them, and a solve whose block values leave a bound, or
+whose block is singular, falls back to the whole problem.
+
 Values (coefficients, right-hand sides) are read at every refresh, so changed inputs re-solve without
 recompiling. The multipliers of the used rows are recovered from stationarity in the eliminated variables
-(a triangular solve), so every constraint keeps an exact multiplier."""
+(a triangular solve, or one sparse LU with determined blocks), so every constraint keeps an exact
+multiplier."""
 
 from __future__ import annotations
 
 import numpy as np
 import scipy.sparse as sp
-from scipy.sparse.linalg import spsolve_triangular
+from scipy.sparse.csgraph import connected_components, maximum_bipartite_matching
+from scipy.sparse.linalg import splu, spsolve_triangular
 from tubewright.optimizer.nlp.dangling import find_dangling
 from tubewright.optimizer.nlp.structure import INFINITY
 
@@ -44,15 +53,18 @@ class LinearElimination:
                     linear_rows[row] = (f, pos)
         lower, upper = nlp.variable_bounds()
         bounded = (lower > -INFINITY) | (upper < INFINITY)
+        self.block_rows, self.block_cols = _determined_blocks(n, linear_rows)
         # the choice is sequential (each pick changes what later rows may pick): a loop over plain lists, as
         # indexing numpy arrays one element at a time costs more than the work itself
         bounded_list = bounded.tolist()
         appearances = np.bincount(nlp.jac_cols, minlength=n).tolist()
-        depth = [0] * n  # 0: kept; k: defined at substitution level k
+        depth = [0] * n  # 0: kept; k: defined at substitution level k (a determined block: 1)
         in_chosen_rows = bytearray(n)
+        for c in self.block_cols.tolist():
+            depth[c], in_chosen_rows[c] = 1, 1
         columns = {id(f): f.var_index.tolist() for f in nlp.forms if not f.pairs}
         rows, picks, picks_local = [], [], []
-        for row in sorted(linear_rows):
+        for row in sorted(set(linear_rows) - set(self.block_rows.tolist())):
             f, pos = linear_rows[row]
             cols = columns[id(f)][pos]
             coefs = f.constant_gradient
@@ -80,7 +92,17 @@ class LinearElimination:
         self._linear_rows = linear_rows
         self.levels = int(depth.max()) if len(picks) else 0
         self.kept = np.flatnonzero(depth == 0)
-        self.kept_rows = np.setdiff1d(np.arange(m), self.rows)
+        self.removed_rows = np.concatenate([self.rows, self.block_rows])  # every row IPOPT does not see
+        self.kept_rows = np.setdiff1d(np.arange(m), self.removed_rows)
+        self._row_groups = self._grouped(rows)
+        self._block_groups = self._grouped(self.block_rows.tolist())
+        block_local = np.full(n, -1, dtype=np.int64)
+        block_local[self.block_cols] = np.arange(len(self.block_cols))
+        b_k = [linear_rows[row][0].var_index[linear_rows[row][1]] for row in self.block_rows.tolist()]
+        self._b_i = np.repeat(np.arange(len(b_k)), [len(cols) for cols in b_k]).astype(np.int64)
+        self._b_k = block_local[np.concatenate(b_k)] if b_k else np.zeros(0, dtype=np.int64)
+        self.block_values = np.zeros(len(self.block_cols))
+        self.block_problem = None  # why the determined blocks could not be solved at the last refresh
         self.n, self.m = len(self.kept), len(self.kept_rows)
         self._column = np.full(n, -1, dtype=np.int64)
         self._column[self.kept] = np.arange(self.n)
@@ -121,29 +143,44 @@ class LinearElimination:
         t_map.sort_indices()
         return t_map
 
-    def refresh(self, x_any: np.ndarray, g_lb: np.ndarray):
-        """Read the coefficients and right-hand sides of the defining rows (inputs may have changed)."""
-        nlp = self.nlp
-        coef = np.empty(len(self._w_k))
-        rhs = np.empty(len(self.rows))
+    def _grouped(self, rows) -> list:
+        """Rows of linear forms grouped by form: [(form, positions in ``rows``, member positions)]."""
         by_form: dict = {}
-        for i, row in enumerate(self.rows):
+        for i, row in enumerate(rows):
             f, pos = self._linear_rows[row]
-            by_form.setdefault(id(f), (f, []))[1].append((i, pos))
-        starts = np.concatenate([[0], np.cumsum(np.bincount(self._w_i, minlength=len(self.rows)))])
-        for f, items in by_form.values():
+            by_form.setdefault(id(f), (f, [], []))
+            by_form[id(f)][1].append(i)
+            by_form[id(f)][2].append(pos)
+        return [(f, np.asarray(idx, dtype=np.int64), np.asarray(pos, dtype=np.int64)) for f, idx, pos in
+                by_form.values()]
+
+    def _linear_parts(self, rows, groups, x_any, g_lb):
+        """(coefficients, right-hand sides) of linear rows written a.x = rhs: the coefficients of each row's
+        variables in its form's order, the rows one after another (read at any point: the rows are linear)."""
+        nlp = self.nlp
+        coef = np.empty(sum(f.var_index.shape[1] * len(idx) for f, idx, _ in groups))
+        rhs = np.empty(len(rows))
+        sizes = np.zeros(len(rows), dtype=np.int64)
+        for f, idx, _ in groups:
+            sizes[idx] = f.var_index.shape[1]
+        starts = np.concatenate([[0], np.cumsum(sizes)[:-1]]) if len(rows) else sizes
+        for f, idx, pos in groups:
             args = nlp._args(f, x_any)
             grads = f.derivatives(*args)[: f.var_index.shape[1]]
             values = np.broadcast_to(np.asarray(f.fn(*args)[0], dtype=float), (len(f.members),))
-            idx = np.array([i for i, _ in items])
-            pos = np.array([p for _, p in items])
-            nloc = f.var_index.shape[1]
             local = np.stack([np.broadcast_to(np.asarray(g, dtype=float), (len(f.members),))[pos] for g in grads])
-            for k in range(nloc):
+            for k in range(f.var_index.shape[1]):
                 coef[starts[idx] + k] = local[k]
             # body = a.x + c0; the row asks body = g_lb, so a.x = g_lb - c0 with c0 = body(x) - a.x
             ax = np.einsum("kj,jk->j", local, x_any[f.var_index[pos]])
-            rhs[idx] = g_lb[self.rows[idx]] - (values[pos] - ax)
+            rhs[idx] = g_lb[np.asarray(rows)[idx]] - (values[pos] - ax)
+        return coef, rhs
+
+    def refresh(self, x_any: np.ndarray, g_lb: np.ndarray):
+        """Read the coefficients and right-hand sides of the defining rows (inputs may have changed) and solve
+        the determined blocks."""
+        nlp = self.nlp
+        coef, rhs = self._linear_parts(self.rows, self._row_groups, x_any, g_lb)
         self._coef = coef
         own = coef[self._own]
         key = coef.tobytes()
@@ -153,15 +190,36 @@ class LinearElimination:
             self._jac_map = self._value_map(self._expand_jacobian(self.T), self._jac_keys, len(nlp.jac_rows))
             self._hess_map = self._value_map(self._expand_hessian(self.T), self._hess_keys, len(nlp.hess_rows))
             self._coef_key = key
-        # the constant part: x = T y + t with t from the right-hand sides (same substitution, y = 0)
+        self._solve_blocks(x_any, g_lb)
+        # the constant part: x = T y + t with t from the right-hand sides (same substitution, y = 0) and the
+        # determined blocks' values
         t = np.zeros(nlp.n)
+        t[self.block_cols] = self.block_values
         for _ in range(max(self.levels, 1)):
             t_new = np.zeros(nlp.n)
+            t_new[self.block_cols] = self.block_values
             other_sum = np.bincount(self._w_i[self._other], weights=coef[self._other] * t[self._w_k[self._other]],
                                     minlength=len(self.rows))
             t_new[self.eliminated] = (rhs - other_sum) / own
             t = t_new
         self.t = t
+
+    def _solve_blocks(self, x_any, g_lb):
+        self.block_problem = None
+        if not len(self.block_rows):
+            return
+        coef, rhs = self._linear_parts(self.block_rows, self._block_groups, x_any, g_lb)
+        nb = len(self.block_cols)
+        a = sp.csc_matrix((coef, (self._b_i, self._b_k)), shape=(nb, nb))
+        try:
+            with np.errstate(all="ignore"):
+                values = splu(a).solve(rhs)
+        except RuntimeError:
+            values = None
+        if values is None or not np.all(np.isfinite(values)):
+            self.block_problem = "a determined block is singular at these inputs"
+            return
+        self.block_values = values
 
     def full(self, y: np.ndarray) -> np.ndarray:
         return self.T @ y + self.t
@@ -231,16 +289,57 @@ class LinearElimination:
 
     # --- multipliers of the defining rows ---------------------------------------------------------------
     def defining_multipliers(self, x: np.ndarray, kept_lambda: np.ndarray) -> np.ndarray:
-        """Multipliers of the rows used to eliminate, from stationarity of the full Lagrangian in the
-        eliminated variables (they have no bounds): A_RE' lambda_R = -(grad_E f + J_KE' lambda_K)."""
+        """Multipliers of the removed rows (``removed_rows``: the defining rows, then the determined blocks'),
+        from stationarity of the full Lagrangian in the eliminated variables (they have no bounds, or, in a
+        determined block, keep inside them): A_RE' lambda_R = -(grad_E f + J_KE' lambda_K)."""
         nlp = self.nlp
+        eliminated = np.concatenate([self.eliminated, self.block_cols])
         jac = sp.csr_matrix((nlp._jac(x), (nlp.jac_rows, nlp.jac_cols)), shape=(nlp.m, nlp.n))
-        rhs = -(nlp._grad(x)[self.eliminated] + jac[self.kept_rows][:, self.eliminated].T @ kept_lambda)
-        a_re = jac[self.rows][:, self.eliminated].tocsr()  # lower triangular in the order of choice
-        return spsolve_triangular(a_re.T.tocsr(), rhs, lower=False)
+        rhs = -(nlp._grad(x)[eliminated] + jac[self.kept_rows][:, eliminated].T @ kept_lambda)
+        a_re = jac[self.removed_rows][:, eliminated]
+        if not len(self.block_rows):  # lower triangular in the order of choice
+            return spsolve_triangular(a_re.T.tocsr(), rhs, lower=False)
+        return splu(a_re.T.tocsc()).solve(rhs)  # block lower triangular
 
 
 def _component_labels(variables) -> np.ndarray:
     """A label per variable: the indexed Pyomo component it belongs to."""
     labels: dict = {}
     return np.array([labels.setdefault(id(v.parent_component()), len(labels)) for v in variables], dtype=np.int64)
+
+
+def _determined_blocks(n: int, linear_rows: dict) -> tuple[np.ndarray, np.ndarray]:
+    """(rows, columns) of the determined blocks among the linear equality rows (``linear_rows``: row ->
+    (form, member position)): the connected groups of those rows (through shared variables) with as many
+    rows as variables and a perfect bipartite matching."""
+    rows = sorted(linear_rows)
+    if not rows:
+        return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64)
+    entries = [linear_rows[row][0].var_index[linear_rows[row][1]] for row in rows]
+    r = np.repeat(np.arange(len(rows)), [len(e) for e in entries]).astype(np.int64)
+    c = np.concatenate(entries).astype(np.int64)
+    graph = sp.coo_matrix((np.ones(len(r)), (c, n + r)), shape=(n + len(rows), n + len(rows)))
+    _, label = connected_components(graph, directed=False)
+    row_label = label[n + np.arange(len(rows))]
+    cols = np.unique(c)
+    counts = len(label)
+    square = (np.bincount(row_label, minlength=counts) == np.bincount(label[cols], minlength=counts))
+    square &= np.bincount(row_label, minlength=counts) > 0
+    out_rows, out_cols = [], []
+    entry_label = row_label[r]
+    keep = square[entry_label]
+    order = np.argsort(entry_label[keep], kind="stable")
+    kr, kc, kl = r[keep][order], c[keep][order], entry_label[keep][order]
+    for group in np.split(np.arange(len(kl)), np.flatnonzero(np.diff(kl)) + 1):
+        if not len(group):
+            continue
+        g_rows, local_r = np.unique(kr[group], return_inverse=True)
+        g_cols, local_c = np.unique(kc[group], return_inverse=True)
+        pattern = sp.csr_matrix((np.ones(len(group)), (local_r.reshape(-1), local_c.reshape(-1))),
+                                shape=(len(g_rows), len(g_cols)))
+        if np.all(maximum_bipartite_matching(pattern, perm_type="column") >= 0):
+            out_rows.append(np.asarray(rows)[g_rows])
+            out_cols.append(g_cols)
+    if not out_rows:
+        return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64)
+    return np.concatenate(out_rows).astype(np.int64), np.concatenate(out_cols).astype(np.int64)

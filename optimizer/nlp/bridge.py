@@ -654,6 +654,11 @@ class CompiledNLP:
         self.g_lb = np.concatenate([g_lb, *[s.g_lb.reshape(-1) for s in stores]])
         self.g_ub = np.concatenate([g_ub, *[s.g_ub.reshape(-1) for s in stores]])
 
+    def equality_rows(self) -> np.ndarray:
+        """Per row, whether it is an equality (Pyomo's flag, a copy's from its template row)."""
+        return np.concatenate([np.array([c.equality for c in self.constraints[:self._m_real]], dtype=bool),
+                               *[np.tile([c.equality for c in s.constraints], s.count) for s in self.copy_stores]])
+
     def variable_bounds(self) -> tuple[np.ndarray, np.ndarray]:
         """(lower, upper) of every variable as the model and the copies' stores hold them now (+-INFINITY)."""
         lower, upper = variable_bounds(self.variables[:self._n_real])

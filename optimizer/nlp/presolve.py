@@ -44,13 +44,14 @@ class LinearElimination:
     def __init__(self, nlp):
         n, m = nlp.n, nlp.m
         self.nlp = nlp
+        equality = nlp.equality_rows()
         linear_rows = {}  # row -> (form, member position)
         for f in nlp.forms:
             if f.pairs:
                 continue
-            for pos, row in enumerate(f.members):
-                if nlp.constraints[row].equality:
-                    linear_rows[row] = (f, pos)
+            members = np.asarray(f.members, dtype=np.int64)
+            for pos in np.flatnonzero(equality[members]).tolist():
+                linear_rows[int(members[pos])] = (f, pos)
         lower, upper = nlp.variable_bounds()
         bounded = (lower > -INFINITY) | (upper < INFINITY)
         self.block_rows, self.block_cols = _determined_blocks(n, linear_rows)
@@ -123,7 +124,7 @@ class LinearElimination:
         in_objective[t_struct[np.unique(np.concatenate([f.var_index.reshape(-1) for f in nlp.objective_forms]))
                               ].indices] = True
         self.dangling = find_dangling(self.n, self.m, self.jac_rows, self.jac_cols, self.hess_rows, self.hess_cols,
-                                      ~bounded[self.kept], [nlp.constraints[r].equality for r in self.kept_rows],
+                                      ~bounded[self.kept], equality[self.kept_rows],
                                       in_objective, _component_labels([nlp.variables[i] for i in self.kept]))
 
     # --- the map x = T y + t -----------------------------------------------------------------------------
@@ -312,10 +313,10 @@ def _determined_blocks(n: int, linear_rows: dict) -> tuple[np.ndarray, np.ndarra
     """(rows, columns) of the determined blocks among the linear equality rows (``linear_rows``: row ->
     (form, member position)): the connected groups of those rows (through shared variables) with as many
     rows as variables and a perfect bipartite matching."""
-    rows = sorted(linear_rows)
-    if not rows:
+    if not linear_rows:
         return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64)
-    entries = [linear_rows[row][0].var_index[linear_rows[row][1]] for row in rows]
+    rows = np.array(sorted(linear_rows), dtype=np.int64)
+    entries = [linear_rows[row][0].var_index[linear_rows[row][1]] for row in rows.tolist()]
     r = np.repeat(np.arange(len(rows)), [len(e) for e in entries]).astype(np.int64)
     c = np.concatenate(entries).astype(np.int64)
     graph = sp.coo_matrix((np.ones(len(r)), (c, n + r)), shape=(n + len(rows), n + len(rows)))
@@ -338,7 +339,7 @@ def _determined_blocks(n: int, linear_rows: dict) -> tuple[np.ndarray, np.ndarra
         pattern = sp.csr_matrix((np.ones(len(group)), (local_r.reshape(-1), local_c.reshape(-1))),
                                 shape=(len(g_rows), len(g_cols)))
         if np.all(maximum_bipartite_matching(pattern, perm_type="column") >= 0):
-            out_rows.append(np.asarray(rows)[g_rows])
+            out_rows.append(rows[g_rows])
             out_cols.append(g_cols)
     if not out_rows:
         return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64)

@@ -465,3 +465,28 @@ def test_runs_as_copies_of_one_block_fit_as_the_blocks_built_one_by_one(tmp_path
     assert [r["fitted"] for r in shared.residuals] == pytest.approx([r["fitted"] for r in built.residuals],
                                                                      rel=1e-8)
     assert shared.solver["statistics_from"] == built.solver["statistics_from"] == "collocation sensitivities"
+
+
+def test_rates_measured_beside_conversions_follow_each_run(tmp_path):
+    # Tube runs that measure the formation rate at the feed as well as the conversion, at different feed
+    # temperatures and flows: the runs share one built block (copies), so the rate must be the rate law at
+    # each run's own feed. Checked by the mesh check, which recomputes every residual at the estimate from
+    # the adaptive integrator and the numpy rate law of each run's own case, and against building every
+    # run's block. Invented test data.
+    section = {"parameters": {"r1": {"k_ref": True, "activation_energy": True}},
+               "errors": {"rate": "3 %", "conversion": SIGMA}}
+    case, data, x = write_lab(tmp_path, fit_section=section)
+    rng = np.random.default_rng(4)
+    rows = ["feed.temperature [K],feed.molar_flows.A [mol/s],measured.conversion,measured.rate.A [mol/m^3/s]"]
+    for t, xi in zip(TEMPS, x):
+        fa = 0.01 if t < 350.0 else 0.006
+        q = (0.1 * fa + 0.018 * 0.5) / 1000.0
+        rate = -TRUE_K * math.exp(-TRUE_E / R * (1 / t - 1 / T_REF)) * fa / q
+        rows.append(f"{float(t)!r},{fa!r},{float(xi)!r},{rate * (1.0 + rng.normal(0, 0.03))!r}")
+    data.write_text("\n".join(rows) + "\n")
+    shared = fit(case, data)
+    built = fit(case, data, share_blocks=False)
+    assert shared.status == Status.OK and built.status == Status.OK, (shared.message, built.message)
+    assert shared.solver["copied_runs"] == 7 and built.solver["copied_runs"] == 0
+    assert shared.solver["mesh_check_sigma"] < 1e-2 and not shared.warnings
+    assert list(shared.estimates.values()) == pytest.approx(list(built.estimates.values()), rel=1e-8)

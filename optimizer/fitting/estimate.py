@@ -379,14 +379,21 @@ def _add_residuals(b, run, spec, pcase):
     f_in = [b.F[s, 0.0] for s in run.case.names]
     f_out = [b.F[s, 1.0] for s in run.case.names]
     length = run.case.tube.length
+    # a rate measured beside outlet quantities: the rate law at the feed, whose flows are the block's inputs
+    at_feed = replace(pcase, feed=replace(pcase.feed, molar_flows=tuple(b.feed_flow.values())))
 
     def temperature_at(tc):
         return collocation_value(b, b.T, spec.thermocouples[tc] / length)
 
+    def prediction(name):
+        if is_rate(name):
+            return predicted_rate(pyomo_backend(), at_feed, name)
+        return predicted(run.case, name, f_in, f_out, b.T[1.0], pcase.tube.count, temperature_at)
+
     b.measured = pyo.Param(range(len(names)), mutable=True, initialize=0.0)
     b.sigma = pyo.Param(range(len(names)), mutable=True, initialize=1.0)
-    b.residual = pyo.Expression(range(len(names)), rule=lambda b, j: (predicted(
-        run.case, names[j], f_in, f_out, b.T[1.0], pcase.tube.count, temperature_at) - b.measured[j]) / b.sigma[j])
+    b.residual = pyo.Expression(range(len(names)), rule=lambda b, j: (prediction(names[j]) - b.measured[j])
+                                / b.sigma[j])
     b.objective_term = pyo.Expression(expr=0.5 * sum(r**2 for r in b.residual.values()))
 
 

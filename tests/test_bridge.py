@@ -291,6 +291,7 @@ def test_copies_of_a_template_solve_the_same_problem_as_built_blocks(compact):
         x_k = store.instance(k, t.b[0].x)
         assert x_k.value == pytest.approx(pyo.value(full.b[k].x), rel=1e-9)
         assert out_b.x[store.column(k, t.b[0].x)] == x_k.value
+        assert np.array_equal(out_b.x[store.columns(k)], store.x[k - 1])
         with store.loaded(k):  # the copy's values and inputs in the template
             assert pyo.value(t.b[0].term) == pytest.approx(pyo.value(full.b[k].term), rel=1e-9)
             assert pyo.value(2.0 * t.b[0].x * t.b[0].y) == pytest.approx(pyo.value(full.b[k].q), rel=1e-7)

@@ -271,7 +271,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None,
             store = nlp.copy_stores[copied.index(members)] if len(members) > 1 else None
             for k, i in enumerate(members):
                 place[i] = (templates[members[0]], store, k)
-        x_scale, g_scale = _load_runs(usable, spec, place, [sim for _, sim in usable])
+        x_scale, g_scale, copy_scales = _load_runs(usable, spec, place, [sim for _, sim in usable])
         observations, weighted = [], []  # per measurement: (run, name, y, sigma), (expression, store, copy)
         d = iter(differential)
         for i, (run, sim) in enumerate(usable):
@@ -284,8 +284,11 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None,
                     weighted.append((b.residual[j], store if k else None, k))
     for k, v in enumerate(m.theta.values()):
         x_scale[id(v)] = 1.0 / max(abs(internal0[k]), 1.0)
-    scaling = (1.0 / max(nlp.objective_value(), 1.0), np.array([x_scale.get(id(v), 1.0) for v in nlp.variables]),
-               np.array([g_scale.get(id(c), 1.0) for c in nlp.constraints]))
+    x_s = np.array([x_scale.get(id(v), 1.0) for v in nlp.variables])
+    g_s = np.array([g_scale.get(id(c), 1.0) for c in nlp.constraints])
+    for store, k, var_s, con_s in copy_scales:
+        x_s[store.columns(k)], g_s[store.rows(k)] = var_s, con_s
+    scaling = (1.0 / max(nlp.objective_value(), 1.0), x_s, g_s)
     num = base.numerics
     opts = {"max_iter": 500, "tol": 1e-9, "mu_strategy": "adaptive", "mumps_pivtol": 1e-4,
             "mumps_pivot_order": num.mumps_pivot_order,
@@ -400,8 +403,9 @@ def _add_residuals(b, run, spec, pcase):
 def _load_runs(usable, spec, place, sims):
     """Every tube run's data into its block or its copy (``place``: usable index -> (template block, store,
     copy number)): its case's inputs, its measured values and sigmas, its states from ``sims[i]``. Returns
-    IPOPT's scale factors by id of variable and constraint, the copies' stand-ins included. Each template
-    ends holding its own run."""
+    IPOPT's scale factors: by id of variable and of constraint for the built blocks, and per copy (store,
+    copy number, factors of the template's variables, of its constraints). Each template ends holding its
+    own run."""
     from tubewright.optimizer.design.collocation import (
         initialise_from_simulation,
         load_case_inputs,
@@ -410,7 +414,7 @@ def _load_runs(usable, spec, place, sims):
     )
     from tubewright.optimizer.design.spec import DesignSpec
 
-    x_scale, g_scale = {}, {}
+    x_scale, g_scale, copy_scales = {}, {}, []
     copies_first = sorted(place, key=lambda i: place[i][2] == 0)
     for i in copies_first:
         run, sim = usable[i][0], sims[i]
@@ -423,10 +427,12 @@ def _load_runs(usable, spec, place, sims):
         var_s, con_s = tube_scale_factors(b, run.case, state_scaling(b, run.case, sim))
         if k:
             store.capture(k)
-            var_s, con_s = store.translated(k, var_s), store.translated(k, con_s)
-        x_scale.update(var_s)
-        g_scale.update(con_s)
-    return x_scale, g_scale
+            copy_scales.append((store, k, [var_s.get(id(v), 1.0) for v in store.variables],
+                                [con_s.get(id(c), 1.0) for c in store.constraints]))
+        else:
+            x_scale.update(var_s)
+            g_scale.update(con_s)
+    return x_scale, g_scale, copy_scales
 
 
 def on_rate_constants(values, is_k, fn):

@@ -106,25 +106,26 @@ class CopyStore:
     def column(self, k: int, variable) -> int | None:
         """The column of copy ``k``'s instance of a template variable, or None when it is not the template's."""
         j = self.variable_position.get(id(variable))
-        return None if j is None else self.first_column + self._row(k) * len(self.variables) + j
+        return None if j is None else self.columns(k).start + j
 
     def instance(self, k: int, component):
         """Copy ``k``'s stand-in for a template variable or constraint (None if not the template's)."""
-        return self._stand_in(self._row(k), id(component))
-
-    def translated(self, k: int, by_id: dict) -> dict:
-        """{id(template variable or constraint): value} as {id(copy k's stand-in): value}; ids that are not
-        the template's are left out."""
         row = self._row(k)
-        pairs = ((self._stand_in(row, key), v) for key, v in by_id.items())
-        return {id(stand_in): v for stand_in, v in pairs if stand_in is not None}
-
-    def _stand_in(self, row: int, key: int):
-        j = self.variable_position.get(key)
+        j = self.variable_position.get(id(component))
         if j is not None:
             return self.stand_ins[0][row * len(self.variables) + j]
-        j = self.row_position.get(key)
+        j = self.row_position.get(id(component))
         return None if j is None else self.stand_ins[2][row * len(self.constraints) + j]
+
+    def columns(self, k: int) -> slice:
+        """Copy ``k``'s columns in the compiled problem, in the order of the template's ``variables``."""
+        start = self.first_column + self._row(k) * len(self.variables)
+        return slice(start, start + len(self.variables))
+
+    def rows(self, k: int) -> slice:
+        """Copy ``k``'s rows in the compiled problem, in the order of the template's ``constraints``."""
+        start = self.first_row + self._row(k) * len(self.constraints)
+        return slice(start, start + len(self.constraints))
 
     def label(self, k: int, component) -> object:
         """One object per (copy, template component): copies' variables are grouped by component too."""

@@ -5,17 +5,17 @@ the number of forms against the number of runs, and the time of scipy.optimize.l
 adaptive integrator on the same problem (same start, same weighted residuals, 2-point Jacobian) with the
 ratio.
 
-Measured here (2 cores), 2026-12-03, two runs: 5/10/20 runs: fit 1.2-1.4/0.9/1.5 s (the 5-run fit also pays
-the first imports), compile 0.15-0.29/0.23-0.31/0.40-0.42 s with 32 forms at every size (one tube block built,
-the other runs its copies in the bridge, nlp.copies), 7-8 IPOPT iterations on 10,924 variables at 20 runs
-(determined blocks: each run's temperature, coolant temperature and N2 flow follow from the inputs);
-least_squares 1.1/4.4/5.5-5.7 s (15-19 simulations of every run); ratio 0.83-0.94 / 4.7-5.0 / 3.6-3.7,
-estimates equal within 4e-4 relative. At 20 runs the fit spends 0.1 s on the start simulations, 0.6 s building
-the template, loading the runs and compiling (0.4 s of it compiling: the presolve and the derivative
-structures still grow with the rows), 0.6 s in the estimation (0.4-0.47 s of it outside the callbacks: IPOPT
-with MUMPS, and the presolve's refresh) and 0.2 s on the statistics (the collocation model's own
-sensitivities, one sparse LU, and one integration per run to check the mesh). The target (the fit at least 5x
-faster than least_squares) is met at 10 runs, not at 20: there it needs the estimation itself to shrink.
+Measured here (2 cores), 2026-12-03, two runs: 5/10/20 runs: fit 1.1/1.0/1.5 s (the 5-run fit also pays the
+first imports), compile 0.15/0.25/0.38-0.43 s with 32 forms at every size (one tube block built, the other
+runs its copies in the bridge, nlp.copies), 7-8 IPOPT iterations on 10,924 variables at 20 runs (determined
+blocks: each run's temperature, coolant temperature and N2 flow follow from the inputs); least_squares
+1.2/4.4-4.6/5.4-6.1 s (15-19 simulations of every run); ratio 1.0 / 4.4-4.8 / 3.6-4.2, estimates equal within
+4e-4 relative. At 20 runs the fit spends 0.1 s on the start simulations, 0.55 s building the template, loading
+the runs and compiling (0.4 s of it compiling: the presolve and the derivative structures still grow with the
+rows), 0.57 s in the estimation (0.4 s of it outside the callbacks: IPOPT with MUMPS, and the presolve's
+refresh) and 0.2 s on the statistics (the collocation model's own sensitivities, one sparse LU, and one
+integration per run to check the mesh). The target (the fit at least 5x faster than least_squares) is not met
+at 20 runs: the estimation alone takes a tenth of the least_squares time.
 
 Run: .venv/bin/python tests/benchmarks/bench_fit.py"""
 

@@ -189,13 +189,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None,
                                 f"missing: the data ({data_path}) measure {name}; state its error (absolute, or "
                                 'relative as "2 %")')
     # the inputs are read and checked: only now the heavy imports (a bad file is refused at once)
-    import pyomo.core as pyo
     from tubewright.models.simulator import simulate
-    from tubewright.optimizer.design.collocation import build_tube_model
-    from tubewright.optimizer.design.spec import DesignSpec
-    from tubewright.optimizer.nlp.bridge import CompiledNLP
-    from tubewright.optimizer.nlp.copies import Copies
-    from tubewright.optimizer.nlp.garbage_collection import paused_collection
 
     t_fit = spec.reference_temperature or arrhenius_reference_temperature([r.case.feed.temperature for r in runs])
     theta0 = start_values(base, spec, t_fit)
@@ -235,60 +229,8 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None,
     internal0, low_i, up_i = (on_rate_constants(a, is_k, np.log) for a in (theta0, lower, upper))
     phases["start_simulations"] = time.perf_counter() - t_phase
     t_phase = time.perf_counter()
-    with paused_collection():  # the run blocks and their compilation: see nlp.garbage_collection
-        m = pyo.ConcreteModel(name="fit")
-        m.theta = pyo.Var(range(len(names)), bounds=lambda m, i: (low_i[i], up_i[i]),
-                          initialize=lambda m, i: internal0[i])
-        values = [pyo.exp(m.theta[k]) if is_k[k] else m.theta[k] for k in range(len(names))]
-        # runs whose tube blocks would print alike are built once: the first as a Pyomo block (the template),
-        # the others as its copies in the bridge (nlp.copies), loaded with their own data
-        groups: dict = {}
-        for i, (run, sim) in enumerate(usable):
-            if sim is not None:
-                groups.setdefault(_template_key(run, spec, nfe, ncp) if share_blocks else i, []).append(i)
-        m.run = pyo.Block(range(len(groups)))
-        templates = {}  # usable index of a group's first run -> its block
-        for g, members in enumerate(groups.values()):
-            run, sim = usable[members[0]]
-            b = templates[members[0]] = m.run[g]
-            _, pcase = build_tube_model(run.case, DesignSpec(), int(nfe or run.case.numerics.finite_elements),
-                                        int(ncp or run.case.numerics.collocation_points), block=b,
-                                        kinetics=kinetics_at(run.case, spec, t_fit, values, pyomo_backend()))
-            _add_residuals(b, run, spec, pcase)
-        differential = []  # the weighted residuals of the differential runs: rate laws of the parameters
-        for run, sim in usable:
-            if sim is None:
-                kinetics = kinetics_at(run.case, spec, t_fit, values, pyomo_backend())
-                differential += [(predicted_rate(pyomo_backend(), with_kinetics(run.case, kinetics), name) - y)
-                                 / sigma_of(spec, name, y) for name, y in run.measured.items()]
-        m.objective = pyo.Objective(expr=sum(b.objective_term for b in templates.values())
-                                    + 0.5 * sum(r**2 for r in differential))
-        copied = [members for members in groups.values() if len(members) > 1]
-        nlp = CompiledNLP(m, copies=[Copies(templates[ms[0]], len(ms) - 1, templates[ms[0]].objective_term)
-                                     for ms in copied])
-        place = {}  # usable index -> (template block, its store or None, copy number)
-        for members in groups.values():
-            store = nlp.copy_stores[copied.index(members)] if len(members) > 1 else None
-            for k, i in enumerate(members):
-                place[i] = (templates[members[0]], store, k)
-        x_scale, g_scale, copy_scales = _load_runs(usable, spec, place, [sim for _, sim in usable])
-        observations, weighted = [], []  # per measurement: (run, name, y, sigma), (expression, store, copy)
-        d = iter(differential)
-        for i, (run, sim) in enumerate(usable):
-            for j, (name, y) in enumerate(run.measured.items()):
-                observations.append((run, name, y, sigma_of(spec, name, y)))
-                if sim is None:
-                    weighted.append((next(d), None, 0))
-                else:
-                    b, store, k = place[i]
-                    weighted.append((b.residual[j], store if k else None, k))
-    for k, v in enumerate(m.theta.values()):
-        x_scale[id(v)] = 1.0 / max(abs(internal0[k]), 1.0)
-    x_s = np.array([x_scale.get(id(v), 1.0) for v in nlp.variables])
-    g_s = np.array([g_scale.get(id(c), 1.0) for c in nlp.constraints])
-    for store, k, var_s, con_s in copy_scales:
-        x_s[store.columns(k)], g_s[store.rows(k)] = var_s, con_s
-    scaling = (1.0 / max(nlp.objective_value(), 1.0), x_s, g_s)
+    m, nlp, place, observations, weighted, scaling = _fit_model(usable, spec, t_fit, is_k, (low_i, up_i), internal0,
+                                                                (nfe, ncp), share_blocks)
     num = base.numerics
     opts = {"max_iter": 500, "tol": 1e-9, "mu_strategy": "adaptive", "mumps_pivtol": 1e-4,
             "mumps_pivot_order": num.mumps_pivot_order,
@@ -298,7 +240,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None,
     solved = nlp.solve(options=opts, scaling=scaling)
     if spec.starts > 1:
         solved = _more_starts(m, nlp, usable, place, spec, t_fit, (low_i, up_i, is_k), solved, opts, scaling, out)
-    theta = np.array([pyo.value(v) for v in values])
+    theta = on_rate_constants([v.value for v in m.theta.values()], is_k, np.exp)
     out.solver = {**solved.as_dict(), "variables": nlp.n, "ipopt_variables": nlp.times["ipopt_variables"],
                   "forms": nlp.times["forms"], "copied_runs": nlp.times["copies"],
                   "compile_s": nlp.times["compile_s"], "runs": len(usable), **out.solver}
@@ -356,6 +298,77 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None,
     out.message = f"{len(names)} parameters from {n_obs} measurements of {len(usable)} runs"
     out.solver["seconds"] = time.perf_counter() - t0
     return out
+
+
+def _fit_model(usable, spec, t_fit, is_k, box, internal0, mesh, share_blocks):
+    """The fit's Pyomo model and its compiled NLP: the shared parameters ``m.theta`` (ln k and E_a within
+    ``box``, from ``internal0``), one tube block per group of alike runs (the others its copies in the
+    bridge), loaded with every run's data and starting values. Returns (model, CompiledNLP, place: usable
+    index -> (template block, store or None, copy number), observations (run, name, y, sigma) and weighted
+    residuals (expression, store or None, copy number) per measurement, IPOPT scaling)."""
+    import pyomo.core as pyo
+    from tubewright.optimizer.design.collocation import build_tube_model
+    from tubewright.optimizer.design.spec import DesignSpec
+    from tubewright.optimizer.nlp.bridge import CompiledNLP
+    from tubewright.optimizer.nlp.copies import Copies
+    from tubewright.optimizer.nlp.garbage_collection import paused_collection
+
+    (low_i, up_i), (nfe, ncp) = box, mesh
+    with paused_collection():  # the run blocks and their compilation: see nlp.garbage_collection
+        m = pyo.ConcreteModel(name="fit")
+        m.theta = pyo.Var(range(len(is_k)), bounds=lambda m, i: (low_i[i], up_i[i]),
+                          initialize=lambda m, i: internal0[i])
+        values = [pyo.exp(m.theta[k]) if is_k[k] else m.theta[k] for k in range(len(is_k))]
+        # runs whose tube blocks would print alike are built once: the first as a Pyomo block (the template),
+        # the others as its copies in the bridge (nlp.copies), loaded with their own data
+        groups: dict = {}
+        for i, (run, sim) in enumerate(usable):
+            if sim is not None:
+                groups.setdefault(_template_key(run, spec, nfe, ncp) if share_blocks else i, []).append(i)
+        m.run = pyo.Block(range(len(groups)))
+        templates = {}  # usable index of a group's first run -> its block
+        for g, members in enumerate(groups.values()):
+            run, sim = usable[members[0]]
+            b = templates[members[0]] = m.run[g]
+            _, pcase = build_tube_model(run.case, DesignSpec(), int(nfe or run.case.numerics.finite_elements),
+                                        int(ncp or run.case.numerics.collocation_points), block=b,
+                                        kinetics=kinetics_at(run.case, spec, t_fit, values, pyomo_backend()))
+            _add_residuals(b, run, spec, pcase)
+        differential = []  # the weighted residuals of the differential runs: rate laws of the parameters
+        for run, sim in usable:
+            if sim is None:
+                kinetics = kinetics_at(run.case, spec, t_fit, values, pyomo_backend())
+                differential += [(predicted_rate(pyomo_backend(), with_kinetics(run.case, kinetics), name) - y)
+                                 / sigma_of(spec, name, y) for name, y in run.measured.items()]
+        m.objective = pyo.Objective(expr=sum(b.objective_term for b in templates.values())
+                                    + 0.5 * sum(r**2 for r in differential))
+        copied = [members for members in groups.values() if len(members) > 1]
+        nlp = CompiledNLP(m, copies=[Copies(templates[ms[0]], len(ms) - 1, templates[ms[0]].objective_term)
+                                     for ms in copied])
+        place = {}  # usable index -> (template block, its store or None, copy number)
+        for members in groups.values():
+            store = nlp.copy_stores[copied.index(members)] if len(members) > 1 else None
+            for k, i in enumerate(members):
+                place[i] = (templates[members[0]], store, k)
+        x_scale, g_scale, copy_scales = _load_runs(usable, spec, place, [sim for _, sim in usable])
+        observations, weighted = [], []  # per measurement: (run, name, y, sigma), (expression, store, copy)
+        d = iter(differential)
+        for i, (run, sim) in enumerate(usable):
+            for j, (name, y) in enumerate(run.measured.items()):
+                observations.append((run, name, y, sigma_of(spec, name, y)))
+                if sim is None:
+                    weighted.append((next(d), None, 0))
+                else:
+                    b, store, k = place[i]
+                    weighted.append((b.residual[j], store if k else None, k))
+    for k, v in enumerate(m.theta.values()):
+        x_scale[id(v)] = 1.0 / max(abs(internal0[k]), 1.0)
+    x_s = np.array([x_scale.get(id(v), 1.0) for v in nlp.variables])
+    g_s = np.array([g_scale.get(id(c), 1.0) for c in nlp.constraints])
+    for store, k, var_s, con_s in copy_scales:
+        x_s[store.columns(k)], g_s[store.rows(k)] = var_s, con_s
+    scaling = (1.0 / max(nlp.objective_value(), 1.0), x_s, g_s)
+    return m, nlp, place, observations, weighted, scaling
 
 
 def _template_key(run, spec, nfe, ncp):

@@ -137,15 +137,25 @@ def _blocks(n, m, jac_rows, jac_cols, candidate, open_rows, equality, labels=Non
         graph = sp.coo_matrix((np.ones(len(r)), (c, n + r)), shape=(n + m, n + m))
         _, label = connected_components(graph, directed=False)
         entry_label = label[c]
-    order = np.argsort(entry_label, kind="stable")
+    return [(cols, rows) for rows, cols in square_groups(r, c, entry_label)
+            if all(equality[row] for row in rows)]
+
+
+def square_groups(r, c, label) -> list:
+    """[(rows, columns)] of the groups of entries (row r, column c) with equal ``label`` whose pattern has as
+    many rows as columns and a perfect bipartite matching (structurally non-singular)."""
+    r, c, label = np.asarray(r), np.asarray(c), np.asarray(label)
+    order = np.argsort(label, kind="stable")
     out = []
-    for group in np.split(order, np.flatnonzero(np.diff(entry_label[order])) + 1):  # the entries of one group
+    for group in np.split(order, np.flatnonzero(np.diff(label[order])) + 1):  # the entries of one group
+        if not len(group):
+            continue
         rows, local_r = np.unique(r[group], return_inverse=True)
         cols, local_c = np.unique(c[group], return_inverse=True)
-        if len(rows) != len(cols) or not all(equality[row] for row in rows):
+        if len(rows) != len(cols):
             continue
         pattern = sp.csr_matrix((np.ones(len(group)), (local_r.reshape(-1), local_c.reshape(-1))),
                                 shape=(len(rows), len(cols)))
         if np.all(maximum_bipartite_matching(pattern, perm_type="column") >= 0):
-            out.append((cols, rows))
+            out.append((rows, cols))
     return out

@@ -30,9 +30,9 @@ from __future__ import annotations
 
 import numpy as np
 import scipy.sparse as sp
-from scipy.sparse.csgraph import connected_components, maximum_bipartite_matching
+from scipy.sparse.csgraph import connected_components
 from scipy.sparse.linalg import splu, spsolve_triangular
-from tubewright.optimizer.nlp.dangling import find_dangling
+from tubewright.optimizer.nlp.dangling import find_dangling, square_groups
 from tubewright.optimizer.nlp.structure import INFINITY
 
 MAX_DEPTH = 8
@@ -325,22 +325,9 @@ def _determined_blocks(n: int, linear_rows: dict) -> tuple[np.ndarray, np.ndarra
     cols = np.unique(c)
     counts = len(label)
     square = (np.bincount(row_label, minlength=counts) == np.bincount(label[cols], minlength=counts))
-    square &= np.bincount(row_label, minlength=counts) > 0
-    out_rows, out_cols = [], []
-    entry_label = row_label[r]
-    keep = square[entry_label]
-    order = np.argsort(entry_label[keep], kind="stable")
-    kr, kc, kl = r[keep][order], c[keep][order], entry_label[keep][order]
-    for group in np.split(np.arange(len(kl)), np.flatnonzero(np.diff(kl)) + 1):
-        if not len(group):
-            continue
-        g_rows, local_r = np.unique(kr[group], return_inverse=True)
-        g_cols, local_c = np.unique(kc[group], return_inverse=True)
-        pattern = sp.csr_matrix((np.ones(len(group)), (local_r.reshape(-1), local_c.reshape(-1))),
-                                shape=(len(g_rows), len(g_cols)))
-        if np.all(maximum_bipartite_matching(pattern, perm_type="column") >= 0):
-            out_rows.append(rows[g_rows])
-            out_cols.append(g_cols)
-    if not out_rows:
+    keep = square[row_label[r]]  # counts first: only the square groups are matched
+    found = square_groups(r[keep], c[keep], row_label[r[keep]])
+    if not found:
         return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64)
-    return np.concatenate(out_rows).astype(np.int64), np.concatenate(out_cols).astype(np.int64)
+    return (np.concatenate([rows[g_rows] for g_rows, _ in found]).astype(np.int64),
+            np.concatenate([g_cols for _, g_cols in found]).astype(np.int64))

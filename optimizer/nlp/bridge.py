@@ -614,9 +614,14 @@ class CompiledNLP:
             out[f.members] = f.fn(*self._args(f, x))[0]
         return out
 
-    def _jac(self, x):
+    def _jac(self, x, wanted=None):
+        """The Jacobian entries at x. ``wanted``: a mask of the rows asked for; a form with none of them gives
+        zeros (the rows the presolve took out of IPOPT's problem need not be evaluated for it)."""
         parts = []
         for k, f in enumerate(self.forms):
+            if wanted is not None and not wanted[f.members].any():
+                parts.append(np.zeros(f.var_index.size))
+                continue
             vals = self._derivatives(k, f, x)[: f.var_index.shape[1]]
             parts.append(_rows(vals, len(f.members)).T.reshape(-1))
         return np.concatenate(parts) if parts else np.zeros(0)
@@ -626,8 +631,11 @@ class CompiledNLP:
         for k, f in enumerate(self.forms):
             if not f.pairs:
                 continue
-            vals = self._derivatives(k, f, x)[f.n_grad:]
             w = lagrange[f.members]
+            if not w.any():  # rows out of IPOPT's problem, or inactive: nothing to add
+                parts.append(np.zeros(len(f.pairs) * len(f.members)))
+                continue
+            vals = self._derivatives(k, f, x)[f.n_grad:]
             # (pair, member) order, as the coordinates were stacked in _structure
             parts.append((_rows(vals, len(f.members)) * w).reshape(-1))
         for i, f in enumerate(self.objective_forms):
@@ -725,7 +733,9 @@ class CompiledNLP:
             jac_structure, hess_structure = (self.jac_rows, self.jac_cols), (self.hess_rows, self.hess_cols)
             cols, rows = slice(None), slice(None)
         else:
-            calls = (red.objective, red.gradient, red.constraints, red.jacobian, red.hessian)
+            wanted = np.zeros(self.m, dtype=bool)
+            wanted[red.kept_rows] = True
+            calls = (red.objective, red.gradient, red.constraints, lambda y: red.jacobian(y, wanted), red.hessian)
             jac_structure, hess_structure = (red.jac_rows, red.jac_cols), (red.hess_rows, red.hess_cols)
             cols, rows = red.kept, red.kept_rows
         cut = red.dangling if red is not None and dangling else None
@@ -734,6 +744,7 @@ class CompiledNLP:
         if cut is not None:  # IPOPT's point z holds the compact problem's variables but the block's
             y_block = x0[red.kept][cut.cols]
             compact_calls = calls
+            wanted[red.kept_rows[cut.rows]] = False
 
             def expand(z):
                 return cut.expand(z, y_block)

@@ -280,8 +280,9 @@ class LinearElimination:
     def constraints(self, y):
         return self.nlp._cons(self.full(y))[self.kept_rows]
 
-    def jacobian(self, y):
-        return self._jac_map @ self.nlp._jac(self.full(y))
+    def jacobian(self, y, wanted=None):
+        """The reduced Jacobian (``wanted``: the full rows to evaluate, see CompiledNLP._jac)."""
+        return self._jac_map @ self.nlp._jac(self.full(y), wanted)
 
     def hessian(self, y, lagrange, obj_factor):
         full_lambda = np.zeros(self.nlp.m)

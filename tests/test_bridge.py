@@ -350,6 +350,28 @@ def test_determined_blocks_leave_ipopt_with_exact_multipliers():
     assert "leave a bound" in out.times["compact_fallback"] and not out.success
 
 
+def test_bounds_of_inputs_are_evaluated_once_per_distinct_expression_and_stay_apart():
+    # x_i = 2 p_i q + 1 for i = 0..3 (Pyomo moves the input part into the bound): four bounds of one
+    # structure, three distinct (p_2 is p_1), each read anew after an input changes.
+    from tubewright.optimizer.nlp.structure import InputValues
+
+    m = pyo.ConcreteModel()
+    m.p = pyo.Param(range(3), mutable=True, initialize={0: 1.0, 1: 2.0, 2: 3.0})
+    m.q = pyo.Param(mutable=True, initialize=0.5)
+    m.x = pyo.Var(range(4), initialize=0.0)
+    which = [0, 1, 1, 2]
+    m.c = pyo.Constraint(range(4), rule=lambda m, i: m.x[i] == 2.0 * m.p[which[i]] * m.q + 1.0)
+    m.obj = pyo.Objective(expr=sum((m.x[i] - 1.0) ** 2 for i in range(4)))
+    bounds = InputValues([m.c[i].to_bounded_expression()[0] for i in range(4)])
+    assert len(bounds._exprs) == 3
+    assert bounds.values() == pytest.approx([2.0, 3.0, 3.0, 4.0])
+    nlp = CompiledNLP(m, compact=False)
+    m.p[1] = 5.0
+    m.q = 1.0
+    assert nlp.solve().success
+    assert [pyo.value(m.x[i]) for i in range(4)] == pytest.approx([3.0, 11.0, 11.0, 7.0], rel=1e-9)
+
+
 def test_copies_refuse_a_template_outside_the_model():
     from tubewright.optimizer.nlp.copies import Copies
 

@@ -7,11 +7,12 @@ Compilation, once per model:
    share a few dozen forms.
 2. One representative per form is differentiated with Pyomo's reverse symbolic differentiation (first and
    second derivatives, lower triangle); each derivative is printed with the same placeholders and compiled.
-3. Every form is then evaluated vectorised over all its members with numpy. Repeated Hessian coordinates
+3. Copies of a template block (nlp.copies), if asked for, join the template's forms as more members.
+   Every form is then evaluated vectorised over all its members with numpy. Repeated Hessian coordinates
    are merged once, at build time, through an index for ``numpy.bincount``.
 4. The compact NLP (nlp.presolve): variables that a linear equality defines explicitly (pyomo.dae's
-   derivative variables) are eliminated before IPOPT sees the problem; the point and every multiplier are
-   reported for the whole model.
+   derivative variables) are eliminated, and variables that their own linear rows determine are solved,
+   before IPOPT sees the problem; the point and every multiplier are reported for the whole model.
 
 Inputs (mutable Params and fixed Vars), variable bounds and constraint bounds are read at each ``solve``,
 so a changed parameter is re-solved without recompiling. Changing which variables are fixed needs a new

@@ -372,6 +372,42 @@ def test_bounds_of_inputs_are_evaluated_once_per_distinct_expression_and_stay_ap
     assert [pyo.value(m.x[i]) for i in range(4)] == pytest.approx([3.0, 11.0, 11.0, 7.0], rel=1e-9)
 
 
+def test_a_sum_of_thousands_of_terms_compiles():
+    # Python's compiler nests a + b + c ... and overflows at a few thousand terms: a long sum is printed as
+    # one call. min sum_i x_i over 5,000 variables with x_i >= i / 1000: x_i = i / 1000 (analytic), the
+    # objective at the start equal to Pyomo's.
+    n = 5_000
+    m = pyo.ConcreteModel()
+    m.x = pyo.Var(range(n), bounds=lambda m, i: (i / 1000.0, None), initialize=5.0)
+    m.keep = pyo.Constraint(expr=m.x[0] + m.x[1] >= -1.0)
+    m.obj = pyo.Objective(expr=pyo.quicksum(m.x[i] for i in range(n)))
+    nlp = CompiledNLP(m)
+    nlp.refresh()
+    assert nlp._obj(nlp.current_point()) == pytest.approx(pyo.value(m.obj), rel=1e-12)
+    out = nlp.solve()
+    assert out.success and out.objective == pytest.approx(sum(i / 1000.0 for i in range(n)), rel=1e-7)
+
+
+@pytest.mark.slow
+def test_large_compact_problems_keep_their_hessian_coordinates():
+    # 47,000 kept variables: row * n + column passes 2**31 (the compact structure once overflowed 32-bit
+    # sparse indices and IPOPT refused the Hessian). min sum x with x_i (x_i + 1) >= 2 (d_i = x_i + 1
+    # eliminated): x_i = 1 (analytic).
+    n = 47_000
+    m = pyo.ConcreteModel()
+    m.x = pyo.Var(range(n), bounds=(0.0, None), initialize=2.0)
+    m.d = pyo.Var(range(n), initialize=3.0)
+    m.define = pyo.Constraint(range(n), rule=lambda m, i: m.d[i] == m.x[i] + 1.0)
+    m.floor = pyo.Constraint(range(n), rule=lambda m, i: m.x[i] * m.d[i] >= 2.0)
+    m.obj = pyo.Objective(expr=pyo.quicksum(m.x[i] for i in range(n)))
+    nlp = CompiledNLP(m)
+    red = nlp.compact
+    assert red is not None and red.n == n
+    assert np.all(red.hess_rows >= red.hess_cols) and red.hess_rows.max() == n - 1
+    out = nlp.solve()
+    assert out.success and out.objective == pytest.approx(n, rel=1e-7)
+
+
 def test_copies_refuse_a_template_outside_the_model():
     from tubewright.optimizer.nlp.copies import Copies
 

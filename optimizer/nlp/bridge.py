@@ -139,7 +139,7 @@ def _format_of(node):
     if isinstance(node, EXPR.InequalityExpression):
         return lambda n, a: f"{a[0]} {'<' if n.strict else '<='} {a[1]}"
     if isinstance(node, (EXPR.SumExpression, EXPR.LinearExpression)):
-        return lambda n, a: " + ".join(a)
+        return lambda n, a: _sum_text(a)
     if isinstance(node, (EXPR.ProductExpression, EXPR.MonomialTermExpression)):
         return lambda n, a: f"{a[0]} * {a[1]}"
     if isinstance(node, EXPR.DivisionExpression):
@@ -153,6 +153,15 @@ def _format_of(node):
     if isinstance(node, EXPR.UnaryFunctionExpression):
         return lambda n, a: f"np.{n.getname()}({a[0]})"
     raise TypeError(f"the bridge cannot print expressions of type {type(node).__name__}")
+
+
+LONG_SUM = 64  # terms beyond which a sum is printed as one call: Python's compiler nests a + b + c ... and
+# overflows its recursion limit at a few thousand terms (an objective over thousands of measurements)
+
+
+def _sum_text(terms) -> str:
+    """A printed sum: a + b + ... when short, else sum((a, b, ...), 0.0) (a flat tuple, as deep as one term)."""
+    return " + ".join(terms) if len(terms) <= LONG_SUM else f"sum(({', '.join(terms)},), 0.0)"
 
 
 def _literal(text: str):
@@ -191,7 +200,7 @@ def _folded(node, args):
         terms = [a for a, v in zip(args, numbers) if v != 0.0]
         if len(terms) == len(args):
             return None
-        return " + ".join(terms) if terms else "0.0"
+        return _sum_text(terms) if terms else "0.0"
     if kind == "product":
         if 0.0 in numbers:
             return "0.0"

@@ -258,16 +258,21 @@ class LinearElimination:
         w = np.where(diagonal_full & (a != b), 0.5 * w, w)
         return q, np.maximum(a, b), np.minimum(a, b), w
 
+    def _key(self, rows, cols) -> np.ndarray:
+        """One integer per (row, column): row * n + column, in 64 bits (scipy's sparse indices may be 32-bit,
+        and the product overflows them from about 46,000 kept variables on)."""
+        return np.asarray(rows, dtype=np.int64) * self.n + np.asarray(cols, dtype=np.int64)
+
     def _structure(self, expanded):
         """Sorted unique reduced coordinates of expanded entries (q, row, col, weight): rows, cols, keys."""
         _, rows, cols, _ = expanded
-        keys = np.unique(rows * self.n + cols)
+        keys = np.unique(self._key(rows, cols))
         return keys // self.n, keys % self.n, keys
 
     def _value_map(self, expanded, keys, n_full):
         """The sparse matrix taking the full entries' values to the reduced structure ``keys``."""
         q, rows, cols, weights = expanded
-        target = np.searchsorted(keys, rows * self.n + cols)
+        target = np.searchsorted(keys, self._key(rows, cols))
         return sp.csr_matrix((weights, (target, q)), shape=(len(keys), n_full))
 
     # --- reduced callbacks ------------------------------------------------------------------------------

@@ -295,6 +295,9 @@ def test_copies_of_a_template_solve_the_same_problem_as_built_blocks(compact):
         with store.loaded(k):  # the copy's values and inputs in the template
             assert pyo.value(t.b[0].term) == pytest.approx(pyo.value(full.b[k].term), rel=1e-9)
             assert pyo.value(2.0 * t.b[0].x * t.b[0].y) == pytest.approx(pyo.value(full.b[k].q), rel=1e-7)
+        y_own = t.b[0].y.value
+        with store.loaded(k, [t.b[0].x]):  # only x of the copy: y keeps the template's own value
+            assert t.b[0].x.value == x_k.value and t.b[0].y.value == y_own
     assert pyo.value(t.b[0].p) == 1.0 and t.b[0].w.value == 1.0  # the template's own values are back
     assert pyo.value(t.b[0].x) == pytest.approx(pyo.value(full.b[0].x), rel=1e-9)
     # a changed input of a copy is read at the next solve, without recompiling

@@ -61,12 +61,13 @@ def residual_jacobian(nlp, parameters, residuals):
     by_copy: dict = {}
     for row, (_, store, k) in enumerate(residuals):
         by_copy.setdefault((id(store), k), (store, k, []))[2].append(row)
+    wrt_of = [list(identify_variables(expr, include_fixed=False)) for expr, _, _ in residuals]
     for store, k, rows in by_copy.values():
-        with nullcontext() if store is None else store.loaded(k):  # a copy's residuals: its values in the template
+        # a copy's residuals: its values in the template (those of the residuals' own variables)
+        with nullcontext() if store is None else store.loaded(k, [v for row in rows for v in wrt_of[row]]):
             for row in rows:
-                expr = residuals[row][0]
+                expr, wrt = residuals[row][0], wrt_of[row]
                 r[row] = value(expr)
-                wrt = list(identify_variables(expr, include_fixed=False))
                 if not wrt:
                     continue
                 grads = differentiate(expr, wrt_list=wrt, mode=differentiate.Modes.reverse_numeric)

@@ -83,22 +83,28 @@ class CopyStore:
         self._read(self._row(k))
 
     @contextmanager
-    def loaded(self, k: int):
-        """Within the block, the template's variables and inputs hold copy ``k``'s values (0: its own)."""
+    def loaded(self, k: int, variables=None):
+        """Within the block, the template's variables and inputs hold copy ``k``'s values (0: its own).
+        ``variables``: only these of the template's (an expression's), the others left as they are."""
         if k == 0:
             yield
             return
         row = self._row(k)
-        saved_x = [v.value for v in self.variables]
+        if variables is None:
+            positions = range(len(self.variables))
+        else:
+            positions = sorted({self.variable_position[id(v)] for v in variables if id(v) in self.variable_position})
+        chosen = [self.variables[j] for j in positions]
+        saved_x = [v.value for v in chosen]
         saved_p = [p.value for p in self.inputs]
         try:
-            for v, x in zip(self.variables, self.x[row].tolist()):
+            for v, x in zip(chosen, self.x[row, list(positions)].tolist()):
                 v.set_value(x, skip_validation=True)
             for p, x in zip(self.inputs, self.p[row].tolist()):
                 _set_input(p, x)
             yield
         finally:
-            for v, x in zip(self.variables, saved_x):
+            for v, x in zip(chosen, saved_x):
                 v.set_value(x, skip_validation=True)
             for p, x in zip(self.inputs, saved_p):
                 _set_input(p, x)

@@ -474,13 +474,7 @@ class CompiledNLP:
         t_rows = [r for r, c in enumerate(self.constraints[:self._m_real]) if id(c) in own_rows]
         if not t_rows:
             raise ValueError(f"copies of {block.name}: the template has no active constraint of the model")
-        bound_parts = []
-        for r in t_rows:
-            parts = self._bound_parts.get(r)
-            if parts is None:
-                lower, _, upper = self.constraints[r].to_bounded_expression()
-                parts = (lower, upper)
-            bound_parts.append(parts)
+        bound_parts = [self._bound_part(r) for r in t_rows]
         first_col, first_input, first_row = len(self.variables), len(self.inputs), len(self.constraints)
         store = CopyStore(spec, [self.variables[j] for j in t_cols], [self.inputs[j] for j in t_inputs],
                           [self.constraints[r] for r in t_rows], bound_parts, first_col, first_input, first_row)
@@ -686,14 +680,18 @@ class CompiledNLP:
     def _constraint_bounds(self):
         """Constraint bounds that are numbers are read once; those with inputs (mutable Params, fixed Vars)
         at every refresh. A constraint's expression cannot change without a new CompiledNLP anyway."""
-        parts = []
-        for row, c in enumerate(self.constraints[:self._m_real]):
-            part = self._bound_parts.pop(row, None)
-            if part is None:
-                lower, _, upper = c.to_bounded_expression()
-                part = (lower, upper)
-            parts.append(part)
+        parts = [self._bound_part(row) for row in range(self._m_real)]
+        self._bound_parts = {}  # read once: not needed again
         (self._g_lb_const, self._g_ub_const), self._bound_exprs = split_bounds(parts)
+
+    def _bound_part(self, row: int) -> tuple:
+        """(lower, upper) of a model row as Pyomo gives them, kept from the compilation's walk when it read
+        them (Pyomo builds body and bounds anew at every access)."""
+        part = self._bound_parts.get(row)
+        if part is None:
+            lower, _, upper = self.constraints[row].to_bounded_expression()
+            part = (lower, upper)
+        return part
 
     on_iteration = None  # optional f(iteration, objective, primal infeasibility), called by IPOPT every iteration
 

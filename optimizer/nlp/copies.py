@@ -50,7 +50,6 @@ class CopyStore:
                  first_row):
         """``bound_parts``: per template row its (lower, upper) bound as Pyomo gives them (None, a number or
         an expression with inputs): the expressions are evaluated per copy, the rest are the same for all."""
-        self.spec = spec
         self.count = k = spec.count
         self.variables, self.inputs, self.constraints = variables, inputs, constraints  # the template's
         self.first_column, self.first_input, self.first_row = first_column, first_input, first_row
@@ -154,14 +153,25 @@ def _set_input(p, x):
         p.set_value(x)
 
 
-class CopyVar:
-    """Copy ``k``'s instance of template variable ``j`` (k counted from 0 in the store's arrays)."""
+class _StandIn:
+    """Copy ``k``'s instance (k counted from 0 in the store's arrays) of the template's item ``j`` in the
+    store's list named by ``_pool``."""
 
     __slots__ = ("store", "k", "j")
-    fixed = False
+    _pool = ""
 
     def __init__(self, store, k, j):
         self.store, self.k, self.j = store, k, j
+
+    @property
+    def name(self) -> str:
+        return f"{getattr(self.store, self._pool)[self.j].name} (copy {self.k + 1})"
+
+
+class CopyVar(_StandIn):
+    __slots__ = ()
+    _pool = "variables"
+    fixed = False
 
     @property
     def value(self) -> float:
@@ -175,42 +185,23 @@ class CopyVar:
         lo, up = self.store.lb[self.k, self.j], self.store.ub[self.k, self.j]
         return (None if lo <= -INFINITY else float(lo), None if up >= INFINITY else float(up))
 
-    @property
-    def name(self) -> str:
-        return f"{self.store.variables[self.j].name} (copy {self.k + 1})"
-
     def parent_component(self):
         return self.store.label(self.k + 1, self.store.variables[self.j].parent_component())
 
 
-class CopyInput:
-    __slots__ = ("store", "k", "j")
-
-    def __init__(self, store, k, j):
-        self.store, self.k, self.j = store, k, j
+class CopyInput(_StandIn):
+    __slots__ = ()
+    _pool = "inputs"
 
     @property
     def value(self) -> float:
         return float(self.store.p[self.k, self.j])
 
-    def set_value(self, x):
-        self.store.p[self.k, self.j] = x
 
-    @property
-    def name(self) -> str:
-        return f"{self.store.inputs[self.j].name} (copy {self.k + 1})"
-
-
-class CopyConstraint:
-    __slots__ = ("store", "k", "j")
-
-    def __init__(self, store, k, j):
-        self.store, self.k, self.j = store, k, j
+class CopyConstraint(_StandIn):
+    __slots__ = ()
+    _pool = "constraints"
 
     @property
     def equality(self) -> bool:
         return self.store.constraints[self.j].equality
-
-    @property
-    def name(self) -> str:
-        return f"{self.store.constraints[self.j].name} (copy {self.k + 1})"

@@ -309,6 +309,69 @@ def test_copies_of_a_template_solve_the_same_problem_as_built_blocks(compact):
     assert b.solve().objective == pytest.approx(a.solve().objective, rel=1e-10)
 
 
+def _chain(count, shared_defined=False, bounded_copy=False):
+    """The compact problem (made after the copies are loaded) of a template block of linear defining rows
+    (a = 2 y + p; c = a + y + z with z shared by all copies;
+    d = c - 3 y), a nonlinear row y d = 2 + p, and ``count`` copies. ``shared_defined``: the template also
+    holds, first, z = 2 p + e, 0 <= e <= 10 (a row that defines the shared z); ``bounded_copy``: the last copy's c
+    has a bound."""
+    from tubewright.optimizer.nlp.copies import Copies
+    from tubewright.optimizer.nlp.presolve import LinearElimination
+
+    m = pyo.ConcreteModel()
+    m.z = pyo.Var(initialize=0.5)
+    m.b = pyo.Block([0])
+    b = m.b[0]
+    b.p = pyo.Param(mutable=True, initialize=1.0)
+    b.a, b.c, b.d, b.e = (pyo.Var(initialize=1.0) for _ in range(4))
+    b.y = pyo.Var(initialize=1.0, bounds=(0.1, 10.0))
+    if shared_defined:  # the first row, and e has bounds: z is its only candidate
+        b.e.setlb(0.0)
+        b.e.setub(10.0)
+        b.def_z = pyo.Constraint(expr=m.z == 2.0 * b.p + b.e)
+    b.def_a = pyo.Constraint(expr=b.a == 2.0 * b.y + b.p)
+    b.def_c = pyo.Constraint(expr=b.c == b.a + b.y + m.z)
+    b.def_d = pyo.Constraint(expr=b.d == b.c - 3.0 * b.y)
+    b.nl = pyo.Constraint(expr=b.y * b.d == 2.0 + b.p)
+    b.term = pyo.Expression(expr=(b.a - b.p) ** 2 + b.c**2 + b.d**2 + b.e**2)
+    m.obj = pyo.Objective(expr=b.term + m.z**2)
+    nlp = CompiledNLP(m, compact=False, copies=[Copies(b, count, objective_term=b.term)])
+    store = nlp.copy_stores[0]
+    for k in range(1, count + 1):
+        b.p = 1.0 + k
+        store.capture(k)
+    if bounded_copy:
+        store.lb[count - 1, store.variable_position[id(b.c)]] = -50.0
+    b.p = 1.0
+    nlp.compact = LinearElimination(nlp)
+    return nlp
+
+
+@pytest.mark.parametrize("kind, replicated", [({}, True), ({"shared_defined": True}, False),
+                                              ({"bounded_copy": True}, False)])
+def test_copies_take_their_templates_choice_only_where_a_scan_would_agree(monkeypatch, kind, replicated):
+    # The compact problem gives the copies of a template the template's defining rows without scanning
+    # them (presolve._Choice.replicate) when nothing outside the template could tell them apart; else (a
+    # template row defines a variable the copies share; a copy's variable has a bound the template's has
+    # not) the copies' rows are scanned. Either way the choice is the one a scan of every row makes (the
+    # reference: the same compilation with replication switched off), and the solve agrees.
+    from tubewright.optimizer.nlp import presolve
+
+    calls = []
+    original = presolve._Choice.replicate
+    monkeypatch.setattr(presolve._Choice, "replicate", lambda self, s: calls.append(original(self, s)) or calls[-1])
+    nlp = _chain(3, **kind)
+    assert calls == [replicated]
+    monkeypatch.setattr(presolve._Choice, "replicate", lambda self, s: False)
+    scanned = _chain(3, **kind)
+    for name in ("rows", "eliminated", "kept", "kept_rows", "jac_rows", "jac_cols", "hess_rows", "hess_cols"):
+        assert np.array_equal(getattr(nlp.compact, name), getattr(scanned.compact, name)), name
+    assert len(nlp.compact.eliminated) >= 3 * 4 - (1 if kind.get("bounded_copy") else 0)
+    a, b = nlp.solve(), scanned.solve()
+    assert a.success and b.success
+    assert a.x == pytest.approx(b.x, rel=1e-9, abs=1e-12)
+
+
 def _determined(p=1.0):
     """u fixed by three linear rows of its own (one with an input coefficient q): u0 = p, q u1 - 2 u0 = 1,
     u1 + u2 = 3 p; x and y by a nonlinear problem that reads u."""

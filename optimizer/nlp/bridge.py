@@ -35,7 +35,7 @@ from tubewright.optimizer.nlp.copies import Copies, CopyStore
 from tubewright.optimizer.nlp.form_cache import FormCache
 from tubewright.optimizer.nlp.presolve import LinearElimination
 from tubewright.optimizer.nlp.pyomo_rules import install_rules
-from tubewright.optimizer.nlp.structure import INFINITY, split_bounds, structure_key, variable_bounds
+from tubewright.optimizer.nlp.structure import INFINITY, sorted_unique, split_bounds, structure_key, variable_bounds
 
 IPOPT_STATUS = {
     0: "optimal", 1: "acceptable", 2: "infeasible", 3: "search direction too small", 4: "diverging iterates",
@@ -477,7 +477,8 @@ class CompiledNLP:
         bound_parts = [self._bound_part(r) for r in t_rows]
         first_col, first_input, first_row = len(self.variables), len(self.inputs), len(self.constraints)
         store = CopyStore(spec, [self.variables[j] for j in t_cols], [self.inputs[j] for j in t_inputs],
-                          [self.constraints[r] for r in t_rows], bound_parts, first_col, first_input, first_row)
+                          [self.constraints[r] for r in t_rows], bound_parts, first_col, first_input, first_row,
+                          t_cols, t_rows)
         copy = np.arange(count)[:, None]
         vmap = np.tile(np.arange(first_col, dtype=np.int64), (count, 1))  # (copy, column) -> its column
         vmap[:, t_cols] = first_col + copy * len(t_cols) + np.arange(len(t_cols))
@@ -575,8 +576,7 @@ class CompiledNLP:
                 i, j = f.var_index[:, a], f.var_index[:, b]
                 keys.append(np.maximum(i, j) * n + np.minimum(i, j))
         allk = np.concatenate(keys) if keys else np.zeros(0, dtype=np.int64)
-        unique, self._hess_inverse = np.unique(allk, return_inverse=True)
-        self._hess_inverse = self._hess_inverse.reshape(-1)
+        unique, self._hess_inverse = sorted_unique(allk, return_inverse=True)
         self.hess_rows, self.hess_cols = unique // n, unique % n
 
     # --- evaluation -------------------------------------------------------------------------------------
@@ -676,6 +676,18 @@ class CompiledNLP:
         lower, upper = variable_bounds(self.variables[:self._n_real])
         return (np.concatenate([lower, *[s.lb.reshape(-1) for s in self.copy_stores]]),
                 np.concatenate([upper, *[s.ub.reshape(-1) for s in self.copy_stores]]))
+
+    def component_labels(self) -> np.ndarray:
+        """A label per variable: its indexed Pyomo component; a copy's variables by copy and component."""
+        ids: dict = {}
+        labels = [np.array([ids.setdefault(id(v.parent_component()), len(ids)) for v in self.variables[:self._n_real]],
+                           dtype=np.int64)]
+        start = len(ids)
+        for s in self.copy_stores:
+            components, local = np.unique(labels[0][s.template_columns], return_inverse=True)
+            labels.append((start + np.arange(s.count)[:, None] * len(components) + local).reshape(-1))
+            start += s.count * len(components)
+        return np.concatenate(labels)
 
     def _constraint_bounds(self):
         """Constraint bounds that are numbers are read once; those with inputs (mutable Params, fixed Vars)

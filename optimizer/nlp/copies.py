@@ -47,10 +47,13 @@ class CopyStore:
     """The values of the copies of one template: row k - 1 of each array holds copy k (k = 1..count)."""
 
     def __init__(self, spec: Copies, variables, inputs, constraints, bound_parts, first_column, first_input,
-                 first_row):
+                 first_row, template_columns, template_rows):
         """``bound_parts``: per template row its (lower, upper) bound as Pyomo gives them (None, a number or
-        an expression with inputs): the expressions are evaluated per copy, the rest are the same for all."""
+        an expression with inputs): the expressions are evaluated per copy, the rest are the same for all.
+        ``template_columns``, ``template_rows``: the template's variables and rows in the compiled problem."""
         self.count = k = spec.count
+        self.template_columns = np.asarray(template_columns, dtype=np.int64)
+        self.template_rows = np.asarray(template_rows, dtype=np.int64)
         self.variables, self.inputs, self.constraints = variables, inputs, constraints  # the template's
         self.first_column, self.first_input, self.first_row = first_column, first_input, first_row
         template_bounds, self.live_bounds = split_bounds(bound_parts)
@@ -62,7 +65,6 @@ class CopyStore:
         self._read(0)
         for array in (self.x, self.lb, self.ub, self.p, self.g_lb, self.g_ub):
             array[1:] = array[0]  # every copy starts as the template is now
-        self._labels: dict = {}
         self.variable_position = {id(v): j for j, v in enumerate(variables)}
         self.row_position = {id(c): j for j, c in enumerate(constraints)}
         self.stand_ins = ([CopyVar(self, c, j) for c in range(k) for j in range(nv)],
@@ -132,10 +134,6 @@ class CopyStore:
         start = self.first_row + self._row(k) * len(self.constraints)
         return slice(start, start + len(self.constraints))
 
-    def label(self, k: int, component) -> object:
-        """One object per (copy, template component): copies' variables are grouped by component too."""
-        return self._labels.setdefault((k, id(component)), object())
-
     def _row(self, k: int) -> int:
         if not 1 <= k <= self.count:
             raise IndexError(f"copy {k} of a template with {self.count} copies (1..{self.count})")
@@ -184,9 +182,6 @@ class CopyVar(_StandIn):
     def bounds(self):
         lo, up = self.store.lb[self.k, self.j], self.store.ub[self.k, self.j]
         return (None if lo <= -INFINITY else float(lo), None if up >= INFINITY else float(up))
-
-    def parent_component(self):
-        return self.store.label(self.k + 1, self.store.variables[self.j].parent_component())
 
 
 class CopyInput(_StandIn):

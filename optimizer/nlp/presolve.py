@@ -33,7 +33,7 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 from scipy.sparse.linalg import splu, spsolve_triangular
 from tubewright.optimizer.nlp.dangling import find_dangling, square_groups
-from tubewright.optimizer.nlp.structure import INFINITY
+from tubewright.optimizer.nlp.structure import INFINITY, sorted_unique
 
 MAX_DEPTH = 8
 
@@ -45,63 +45,47 @@ class LinearElimination:
         n, m = nlp.n, nlp.m
         self.nlp = nlp
         equality = nlp.equality_rows()
-        linear_rows = {}  # row -> (form, member position)
-        for f in nlp.forms:
+        # per row: the linear form that holds it (its index in nlp.forms; -1: not a linear equality) and the
+        # row's member position in that form
+        self._form_of, self._position = np.full(m, -1, dtype=np.int64), np.zeros(m, dtype=np.int64)
+        for i, f in enumerate(nlp.forms):
             if f.pairs:
                 continue
             members = np.asarray(f.members, dtype=np.int64)
-            for pos in np.flatnonzero(equality[members]).tolist():
-                linear_rows[int(members[pos])] = (f, pos)
+            pos = np.flatnonzero(equality[members])
+            self._form_of[members[pos]], self._position[members[pos]] = i, pos
+        self._arity = np.array([f.var_index.shape[1] for f in nlp.forms] + [0], dtype=np.int64)  # [-1]: none
         lower, upper = nlp.variable_bounds()
         bounded = (lower > -INFINITY) | (upper < INFINITY)
-        self.block_rows, self.block_cols = _determined_blocks(n, linear_rows)
-        # the choice is sequential (each pick changes what later rows may pick): a loop over plain lists, as
-        # indexing numpy arrays one element at a time costs more than the work itself
-        bounded_list = bounded.tolist()
-        appearances = np.bincount(nlp.jac_cols, minlength=n).tolist()
-        depth = [0] * n  # 0: kept; k: defined at substitution level k (a determined block: 1)
-        in_chosen_rows = bytearray(n)
-        for c in self.block_cols.tolist():
-            depth[c], in_chosen_rows[c] = 1, 1
-        columns = {id(f): f.var_index.tolist() for f in nlp.forms if not f.pairs}
-        rows, picks, picks_local = [], [], []
-        for row in sorted(set(linear_rows) - set(self.block_rows.tolist())):
-            f, pos = linear_rows[row]
-            cols = columns[id(f)][pos]
-            coefs = f.constant_gradient
-            best, fewest = -1, 0
-            for local, col in enumerate(cols):
-                coef = coefs[local]
-                if coef is None or coef == 0.0 or bounded_list[col] or depth[col] or in_chosen_rows[col]:
-                    continue
-                if best < 0 or appearances[col] < fewest:
-                    best, fewest = local, appearances[col]
-            if best < 0:
-                continue
-            level = 1 + max(depth[c] for c in cols)
-            if level > MAX_DEPTH:
-                continue
-            depth[cols[best]] = level
-            for c in cols:
-                in_chosen_rows[c] = 1
-            rows.append(row)
-            picks.append(cols[best])
-            picks_local.append(best)
-        depth = np.asarray(depth, dtype=np.int64)
-        self.rows = np.asarray(rows, dtype=np.int64)  # the defining rows, in order of choice
-        self.eliminated = np.asarray(picks, dtype=np.int64)  # the variable each defines
-        self._linear_rows = linear_rows
-        self.levels = int(depth.max()) if len(picks) else 0
+        self.block_rows, self.block_cols = self._determined_blocks(n)
+        choice = _Choice(self, bounded, np.bincount(nlp.jac_cols, minlength=n))
+        open_rows = self._form_of >= 0
+        open_rows[self.block_rows] = False
+        in_copies = np.zeros(m, dtype=bool)
+        for store in nlp.copy_stores:
+            in_copies[store.first_row:store.first_row + store.count * len(store.constraints)] = True
+        choice.scan(np.flatnonzero(open_rows & ~in_copies))
+        # a copy takes its template's choice when nothing outside the template could tell them apart (see
+        # _Choice.replicate), else its rows are scanned like the model's own
+        for store in nlp.copy_stores:
+            if not choice.replicate(store):
+                rows = np.arange(store.first_row, store.first_row + store.count * len(store.constraints))
+                choice.scan(rows[open_rows[rows]])
+        depth = choice.depth
+        self.rows = np.concatenate(choice.rows)  # the defining rows, in order of choice
+        self.eliminated = np.concatenate(choice.picks)  # the variable each defines
+        self.levels = int(depth.max()) if len(self.eliminated) else 0
         self.kept = np.flatnonzero(depth == 0)
         self.removed_rows = np.concatenate([self.rows, self.block_rows])  # every row IPOPT does not see
-        self.kept_rows = np.setdiff1d(np.arange(m), self.removed_rows)
-        self._row_groups = self._grouped(rows)
-        self._block_groups = self._grouped(self.block_rows.tolist())
+        kept_row = np.ones(m, dtype=bool)
+        kept_row[self.removed_rows] = False
+        self.kept_rows = np.flatnonzero(kept_row)
+        self._row_groups = self._grouped(self.rows)
+        self._block_groups = self._grouped(self.block_rows)
         block_local = np.full(n, -1, dtype=np.int64)
         block_local[self.block_cols] = np.arange(len(self.block_cols))
-        b_k = [linear_rows[row][0].var_index[linear_rows[row][1]] for row in self.block_rows.tolist()]
-        self._b_i = np.repeat(np.arange(len(b_k)), [len(cols) for cols in b_k]).astype(np.int64)
-        self._b_k = block_local[np.concatenate(b_k)] if b_k else np.zeros(0, dtype=np.int64)
+        self._b_i, b_cols = self._row_entries(self.block_rows)
+        self._b_k = block_local[b_cols]
         self.block_values = np.zeros(len(self.block_cols))
         self.block_problem = None  # why the determined blocks could not be solved at the last refresh
         self.n, self.m = len(self.kept), len(self.kept_rows)
@@ -110,10 +94,8 @@ class LinearElimination:
         self._row_of = np.full(m, -1, dtype=np.int64)
         self._row_of[self.kept_rows] = np.arange(self.m)
         # defining rows' variables as (choice, column) pairs: the structure of W in x_E = W x + w0
-        w_k = [linear_rows[row][0].var_index[linear_rows[row][1]] for row in rows]
-        self._w_i = np.repeat(np.arange(len(rows)), [len(cols) for cols in w_k]).astype(np.int64)
-        self._w_k = np.concatenate(w_k).astype(np.int64) if w_k else np.zeros(0, dtype=np.int64)
-        own = self._w_k == self.eliminated[self._w_i] if len(rows) else np.zeros(0, dtype=bool)
+        self._w_i, self._w_k = self._row_entries(self.rows)
+        own = self._w_k == self.eliminated[self._w_i]
         self._own, self._other = np.flatnonzero(own), np.flatnonzero(~own)
         # structures from a map with positive weights (no cancellation: every possible entry is present)
         t_struct = self._map(np.ones(len(self._other)), np.ones(len(self._own)))
@@ -121,11 +103,45 @@ class LinearElimination:
         self.hess_rows, self.hess_cols, self._hess_keys = self._structure(self._expand_hessian(t_struct))
         self._coef_key = None
         in_objective = np.zeros(self.n, dtype=bool)
-        in_objective[t_struct[np.unique(np.concatenate([f.var_index.reshape(-1) for f in nlp.objective_forms]))
+        in_objective[t_struct[sorted_unique(np.concatenate([f.var_index.reshape(-1) for f in nlp.objective_forms]))
                               ].indices] = True
         self.dangling = find_dangling(self.n, self.m, self.jac_rows, self.jac_cols, self.hess_rows, self.hess_cols,
                                       ~bounded[self.kept], equality[self.kept_rows],
-                                      in_objective, _component_labels([nlp.variables[i] for i in self.kept]))
+                                      in_objective, nlp.component_labels()[self.kept])
+
+    def _row_entries(self, rows) -> tuple[np.ndarray, np.ndarray]:
+        """The variables of linear rows as (i, column) per entry, i the row's position in ``rows``: row after
+        row, each in its form's order (the layout of _linear_parts' coefficients)."""
+        rows = np.asarray(rows, dtype=np.int64)
+        forms = self._form_of[rows]
+        arity = self._arity[forms]
+        starts = np.cumsum(arity) - arity
+        cols = np.empty(int(arity.sum()), dtype=np.int64)
+        for f, idx, pos in self._grouped(rows):
+            width = f.var_index.shape[1]
+            cols[(starts[idx][:, None] + np.arange(width)).reshape(-1)] = f.var_index[pos].reshape(-1)
+        return np.repeat(np.arange(len(rows), dtype=np.int64), arity), cols
+
+    def _determined_blocks(self, n: int) -> tuple[np.ndarray, np.ndarray]:
+        """(rows, columns) of the determined blocks among the linear equality rows: the connected groups of
+        those rows (through shared variables) with as many rows as variables and a perfect bipartite
+        matching."""
+        rows = np.flatnonzero(self._form_of >= 0)
+        if not len(rows):
+            return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64)
+        r, c = self._row_entries(rows)
+        graph = sp.coo_matrix((np.ones(len(r)), (c, n + r)), shape=(n + len(rows), n + len(rows)))
+        _, label = connected_components(graph, directed=False)
+        row_label = label[n + np.arange(len(rows))]
+        cols = sorted_unique(c)
+        counts = len(label)
+        square = (np.bincount(row_label, minlength=counts) == np.bincount(label[cols], minlength=counts))
+        keep = square[row_label[r]]  # counts first: only the square groups are matched
+        found = square_groups(r[keep], c[keep], row_label[r[keep]])
+        if not found:
+            return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64)
+        return (np.concatenate([rows[g_rows] for g_rows, _ in found]).astype(np.int64),
+                np.concatenate([g_cols for _, g_cols in found]).astype(np.int64))
 
     # --- the map x = T y + t -----------------------------------------------------------------------------
     def _map(self, other_coef, own_coef) -> sp.csr_matrix:
@@ -145,15 +161,14 @@ class LinearElimination:
         return t_map
 
     def _grouped(self, rows) -> list:
-        """Rows of linear forms grouped by form: [(form, positions in ``rows``, member positions)]."""
-        by_form: dict = {}
-        for i, row in enumerate(rows):
-            f, pos = self._linear_rows[row]
-            by_form.setdefault(id(f), (f, [], []))
-            by_form[id(f)][1].append(i)
-            by_form[id(f)][2].append(pos)
-        return [(f, np.asarray(idx, dtype=np.int64), np.asarray(pos, dtype=np.int64)) for f, idx, pos in
-                by_form.values()]
+        """Linear rows grouped by form: [(form, positions in ``rows``, member positions)]."""
+        rows = np.asarray(rows, dtype=np.int64)
+        forms = self._form_of[rows]
+        out = []
+        for i in sorted_unique(forms).tolist():
+            idx = np.flatnonzero(forms == i)
+            out.append((self.nlp.forms[i], idx, self._position[rows[idx]]))
+        return out
 
     def _linear_parts(self, rows, groups, x_any, g_lb):
         """(coefficients, right-hand sides) of linear rows written a.x = rhs: the coefficients of each row's
@@ -266,7 +281,7 @@ class LinearElimination:
     def _structure(self, expanded):
         """Sorted unique reduced coordinates of expanded entries (q, row, col, weight): rows, cols, keys."""
         _, rows, cols, _ = expanded
-        keys = np.unique(self._key(rows, cols))
+        keys = sorted_unique(self._key(rows, cols))
         return keys // self.n, keys % self.n, keys
 
     def _value_map(self, expanded, keys, n_full):
@@ -309,31 +324,100 @@ class LinearElimination:
         return splu(a_re.T.tocsc()).solve(rhs)  # block lower triangular
 
 
-def _component_labels(variables) -> np.ndarray:
-    """A label per variable: the indexed Pyomo component it belongs to."""
-    labels: dict = {}
-    return np.array([labels.setdefault(id(v.parent_component()), len(labels)) for v in variables], dtype=np.int64)
+class _Choice:
+    """The sequential choice of defining rows (module docstring): for each linear equality row in turn, the
+    variable it defines, if any. ``depth`` per column: 0 kept, k defined at substitution level k."""
 
+    def __init__(self, elimination, bounded, appearances):
+        self.elim = elimination
+        self.bounded, self.appearances = bounded, appearances
+        n = len(bounded)
+        self.depth = np.zeros(n, dtype=np.int64)
+        self.in_chosen = np.zeros(n, dtype=bool)  # appears in a row chosen so far
+        self.depth[elimination.block_cols] = 1
+        self.in_chosen[elimination.block_cols] = True
+        self.rows, self.picks = [np.zeros(0, dtype=np.int64)], [np.zeros(0, dtype=np.int64)]
 
-def _determined_blocks(n: int, linear_rows: dict) -> tuple[np.ndarray, np.ndarray]:
-    """(rows, columns) of the determined blocks among the linear equality rows (``linear_rows``: row ->
-    (form, member position)): the connected groups of those rows (through shared variables) with as many
-    rows as variables and a perfect bipartite matching."""
-    if not linear_rows:
-        return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64)
-    rows = np.array(sorted(linear_rows), dtype=np.int64)
-    entries = [linear_rows[row][0].var_index[linear_rows[row][1]] for row in rows.tolist()]
-    r = np.repeat(np.arange(len(rows)), [len(e) for e in entries]).astype(np.int64)
-    c = np.concatenate(entries).astype(np.int64)
-    graph = sp.coo_matrix((np.ones(len(r)), (c, n + r)), shape=(n + len(rows), n + len(rows)))
-    _, label = connected_components(graph, directed=False)
-    row_label = label[n + np.arange(len(rows))]
-    cols = np.unique(c)
-    counts = len(label)
-    square = (np.bincount(row_label, minlength=counts) == np.bincount(label[cols], minlength=counts))
-    keep = square[row_label[r]]  # counts first: only the square groups are matched
-    found = square_groups(r[keep], c[keep], row_label[r[keep]])
-    if not found:
-        return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64)
-    return (np.concatenate([rows[g_rows] for g_rows, _ in found]).astype(np.int64),
-            np.concatenate([g_cols for _, g_cols in found]).astype(np.int64))
+    def scan(self, rows):
+        """Choose among ``rows``, in their order: the variable without bounds, with a constant non-zero
+        coefficient, not defined and in no chosen row, in the fewest rows (the first of equals); none when a
+        row would nest deeper than MAX_DEPTH. A loop over plain lists: indexing numpy arrays one element at a
+        time costs more than the work itself."""
+        rows = np.asarray(rows, dtype=np.int64)
+        if not len(rows):
+            return
+        forms = [f.constant_gradient for f in self.elim.nlp.forms]
+        form_of = self.elim._form_of[rows].tolist()
+        _, entries = self.elim._row_entries(rows)
+        arity = self.elim._arity[self.elim._form_of[rows]]
+        starts = (np.cumsum(arity) - arity).tolist()
+        entries = entries.tolist()
+        bounded, appearances = self.bounded.tolist(), self.appearances.tolist()
+        depth, in_chosen = self.depth.tolist(), bytearray(self.in_chosen.tobytes())
+        chosen, picks = [], []
+        for i, row in enumerate(rows.tolist()):
+            coefs = forms[form_of[i]]
+            cols = entries[starts[i]:starts[i] + len(coefs)]
+            best, fewest = -1, 0
+            for local, col in enumerate(cols):
+                coef = coefs[local]
+                if coef is None or coef == 0.0 or bounded[col] or depth[col] or in_chosen[col]:
+                    continue
+                if best < 0 or appearances[col] < fewest:
+                    best, fewest = local, appearances[col]
+            if best < 0:
+                continue
+            level = 1 + max(depth[c] for c in cols)
+            if level > MAX_DEPTH:
+                continue
+            depth[cols[best]] = level
+            for c in cols:
+                in_chosen[c] = 1
+            chosen.append(row)
+            picks.append(cols[best])
+        self.depth = np.asarray(depth, dtype=np.int64)
+        self.in_chosen = np.frombuffer(bytes(in_chosen), dtype=bool).copy()
+        self.rows.append(np.asarray(chosen, dtype=np.int64))
+        self.picks.append(np.asarray(picks, dtype=np.int64))
+
+    def replicate(self, store) -> bool:
+        """Give every copy of ``store`` (nlp.copies) its template's choice, after the model's own rows were
+        scanned; False (nothing changed) where a scan of the copies' rows could choose otherwise. A scan
+        would choose the same when (a) the template's variables appear in no row but the template's (so
+        their row counts and states are the copies' too), (b) the shared variables in the template's linear
+        rows were defined by no row and its rows defined none of them (a shared variable is then either no
+        candidate in a copy's row or one that lost in the template's: its row count is the same), and (c)
+        the copies' variables have the template's pattern of bounds and the copies take the template's part
+        in the determined blocks."""
+        elim, nlp = self.elim, self.elim.nlp
+        t_rows, t_cols = store.template_rows, store.template_columns
+        n_rows, n_cols, count = len(t_rows), len(t_cols), store.count
+        local_col = np.full(len(self.depth), -1, dtype=np.int64)
+        local_col[t_cols] = np.arange(n_cols)
+        local_row = np.full(len(elim._form_of), -1, dtype=np.int64)
+        local_row[t_rows] = np.arange(n_rows)
+        outside = local_row[nlp.jac_rows[local_col[nlp.jac_cols] >= 0]] < 0
+        if outside.any():  # (a)
+            return False
+        linear = t_rows[elim._form_of[t_rows] >= 0]
+        _, cols = elim._row_entries(linear)
+        if np.any(self.depth[cols[local_col[cols] < 0]]):  # (b)
+            return False
+        copy_cols = store.first_column + np.arange(count * n_cols).reshape(count, n_cols)
+        copy_rows = store.first_row + np.arange(count * n_rows).reshape(count, n_rows)
+        is_block_row = np.zeros(len(elim._form_of), dtype=bool)
+        is_block_row[elim.block_rows] = True
+        is_block_col = np.zeros(len(self.depth), dtype=bool)
+        is_block_col[elim.block_cols] = True
+        for flags, copies, template in ((self.bounded, copy_cols, t_cols), (is_block_col, copy_cols, t_cols),
+                                        (is_block_row, copy_rows, t_rows)):
+            if np.any(flags[copies] != flags[template]):  # (c)
+                return False
+        chosen, picks = np.concatenate(self.rows), np.concatenate(self.picks)
+        mine = local_row[chosen] >= 0
+        rows, cols = local_row[chosen[mine]], local_col[picks[mine]]  # (b): the picks are the template's own
+        self.depth[copy_cols] = self.depth[t_cols]
+        self.in_chosen[copy_cols] = self.in_chosen[t_cols]
+        self.rows.append(copy_rows[:, rows].reshape(-1))
+        self.picks.append(copy_cols[:, cols].reshape(-1))
+        return True

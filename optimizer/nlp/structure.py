@@ -124,3 +124,19 @@ def variable_bounds(variables) -> tuple[np.ndarray, np.ndarray]:
     bounds = np.array([v.bounds for v in variables], dtype=float).reshape(-1, 2)  # None -> nan
     return (np.where(np.isnan(bounds[:, 0]), -INFINITY, bounds[:, 0]),
             np.where(np.isnan(bounds[:, 1]), INFINITY, bounds[:, 1]))
+
+
+def sorted_unique(keys, return_inverse: bool = False):
+    """np.unique of a 1-D integer array by one sort (and, with ``return_inverse``, the index of each key in
+    the result). numpy 2.4's np.unique without the inverse takes a hash path that is about five times
+    slower than a sort on the 10^5-10^6 structure keys of a compilation."""
+    keys = np.asarray(keys).reshape(-1)
+    if not return_inverse:
+        s = np.sort(keys)
+        return s[np.concatenate([[True], s[1:] != s[:-1]])] if len(s) else s
+    order = np.argsort(keys, kind="stable")
+    s = keys[order]
+    first = np.concatenate([[True], s[1:] != s[:-1]]) if len(s) else np.zeros(0, dtype=bool)
+    inverse = np.empty(len(keys), dtype=np.int64)
+    inverse[order] = np.cumsum(first) - 1
+    return s[first], inverse

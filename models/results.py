@@ -13,6 +13,7 @@ from .state import StateLayout
 from .summary import profile_columns, summarise
 
 PROFILE_POINTS = 201
+SUMMARY_POINTS = 2001  # the grid of the summary figures (extremes, outlet), from the dense solution
 
 
 @dataclass
@@ -55,9 +56,11 @@ def hot_spot_position(sol, z, T, i_t: int) -> float:
     return float(best.x) if best.success and -best.fun >= T[i] else float(z[i])
 
 
-def build_result(case, sol, status: Status, code: Reason, reason: str, t0: float, points=()) -> SimulationResult:
-    """The result from a solve_ivp solution (dense when available): summary on a fine grid, profile
-    columns on PROFILE_POINTS points plus the hot spot and the given ``points`` [m] (those reached)."""
+def build_result(case, sol, status: Status, code: Reason, reason: str, t0: float, points=(),
+                 grid: int = SUMMARY_POINTS) -> SimulationResult:
+    """The result from a solve_ivp solution (dense when available): summary on a grid of ``grid`` points
+    (with the integrator's steps), profile columns on PROFILE_POINTS points plus the hot spot and the given
+    ``points`` [m] (those reached)."""
     elapsed = time.perf_counter() - t0
     if sol is None or getattr(sol, "t", None) is None or len(sol.t) < 2:
         return SimulationResult(status, reason, {}, {}, [], {"simulate_s": elapsed}, code)
@@ -65,7 +68,7 @@ def build_result(case, sol, status: Status, code: Reason, reason: str, t0: float
     z_end = float(sol.t[-1])
     exact = np.asarray([p for p in points if 0.0 <= p <= z_end], dtype=float)
     if sol.sol is not None:
-        z = np.union1d(np.union1d(np.linspace(0.0, z_end, 2001), sol.t), exact)
+        z = np.union1d(np.union1d(np.linspace(0.0, z_end, grid), sol.t), exact)
         y = sol.sol(z)
         i_t = layout.index("T")
         z_hot = hot_spot_position(sol, z, y[i_t], i_t)

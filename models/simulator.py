@@ -18,7 +18,7 @@ from .backend import NUMPY
 from .balances import axial_derivatives
 from .checks import run_checks
 from .outcomes import Reason, Status
-from .results import SimulationResult, build_result
+from .results import SUMMARY_POINTS, SimulationResult, build_result
 from .state import StateLayout
 
 
@@ -171,11 +171,13 @@ def shoot_countercurrent(case, guess: float | None = None, integrator=None, tc_i
 
 
 
-def simulate(case, checks: bool = True, coolant_guess: float | None = None, points=()) -> SimulationResult:
+def simulate(case, checks: bool = True, coolant_guess: float | None = None, points=(),
+             grid: int = SUMMARY_POINTS) -> SimulationResult:
     """Simulate one case. ``checks`` adds the validity and safety findings (which re-simulate for the
     runaway sensitivities). ``coolant_guess``: a starting guess of the counter-current coolant outlet
     temperature [K] (for re-simulations of a nearby case). ``points``: axial positions [m] the profile
-    columns hold exactly (from the dense solution; thermocouples of a kinetics fit)."""
+    columns hold exactly (from the dense solution; thermocouples of a kinetics fit). ``grid``: points of the
+    summary's grid (a kinetics fit, which reads only profiles and outlet values, takes PROFILE_POINTS)."""
     t0 = time.perf_counter()
     tc_start = None
     if case.coolant.kind.enters_at == "outlet":
@@ -186,7 +188,7 @@ def simulate(case, checks: bool = True, coolant_guess: float | None = None, poin
                                 f"counter-current shooting failed: {why}", t0)
     sol = integrate(case, tc_start)
     status, code, reason = stop_reason(case, sol)
-    result = build_result(case, sol, status, code, reason, t0, points)
+    result = build_result(case, sol, status, code, reason, t0, points, grid)
     if checks and result.summary:
         t1 = time.perf_counter()
         result.findings = run_checks(case, result, partial(simulate, checks=False))

@@ -24,6 +24,7 @@ from tubewright.models.backend import NUMPY, pyomo_backend
 from tubewright.models.errors import CaseError
 from tubewright.models.outcomes import Reason, Status
 from tubewright.models.reactions import arrhenius
+from tubewright.models.results import PROFILE_POINTS
 from tubewright.models.summary import conversion
 from tubewright.optimizer.fitting.data import read_runs
 from tubewright.optimizer.fitting.sensitivity import residual_jacobian
@@ -37,6 +38,7 @@ from tubewright.optimizer.fitting.statistics import (
 JACOBIAN_STEP = 1e-4  # relative step of the central differences of the residual Jacobian (fall-back)
 MESH_TOLERANCE_SIGMA = 0.1  # collocation and integrator residuals at the estimate further apart: a warning
 JACOBIAN_RTOL = 1e-10  # integrator tolerance of those simulations (the step's effect is ~1e-4 relative)
+MESH_CHECK_RTOL = 1e-8  # integrator tolerance of the mesh check alone: its error stays far below 0.1 sigma
 
 
 @dataclass
@@ -146,18 +148,26 @@ def sigma_of(spec, name: str, measured: float) -> float:
     return value if how == "absolute" else value * max(abs(measured), 1e-300)
 
 
-def simulate_predictions(run_case, names, thermocouples=None):
+def _start_simulation(run_case):
+    """A run simulated at starting parameters, to start its collocation model from: profiles only (the
+    summary on the profile grid)."""
+    from tubewright.models.simulator import simulate
+
+    return simulate(run_case, checks=False, grid=PROFILE_POINTS)
+
+
+def simulate_predictions(run_case, names, thermocouples=None, rtol: float = JACOBIAN_RTOL):
     """The measured quantities of one run: outlet quantities and the temperatures at the thermocouples
-    (name -> position [m]) from the adaptive integrator (None where it stops early), formation rates at the
-    feed conditions."""
+    (name -> position [m]) from the adaptive integrator at ``rtol`` (None where it stops early), formation
+    rates at the feed conditions."""
     from tubewright.models.simulator import simulate
 
     if all(is_rate(q) for q in names):
         return [float(predicted_rate(NUMPY, run_case, q)) for q in names], None
     thermocouples = thermocouples or {}
     points = [thermocouples[q.partition(".")[2]] for q in names if q.startswith("axial_temperature.")]
-    sim = simulate(replace(run_case, numerics=replace(run_case.numerics, rtol=JACOBIAN_RTOL)), checks=False,
-                   points=points)
+    sim = simulate(replace(run_case, numerics=replace(run_case.numerics, rtol=rtol)), checks=False,
+                   points=points, grid=PROFILE_POINTS)
     if not sim.ok:
         return None, sim
     cols, n = sim.columns, run_case.tube.count
@@ -188,9 +198,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None,
                 raise CaseError(str(case_path), f"fit.errors.{name.partition('.')[0]}",
                                 f"missing: the data ({data_path}) measure {name}; state its error (absolute, or "
                                 'relative as "2 %")')
-    # the inputs are read and checked: only now the heavy imports (a bad file is refused at once)
-    from tubewright.models.simulator import simulate
-
+    # the inputs are read and checked: only now the heavy imports (the simulator, in _start_simulation)
     t_fit = spec.reference_temperature or arrhenius_reference_temperature([r.case.feed.temperature for r in runs])
     theta0 = start_values(base, spec, t_fit)
     lower = np.array([p.lower * s if p.is_constant else p.lower for p, s in zip(spec.parameters, theta0)])
@@ -211,7 +219,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None,
                 continue
             usable.append((run, None))
             continue
-        sim = simulate(start_case, checks=False)
+        sim = _start_simulation(start_case)
         if not sim.ok:
             out.excluded.append({"row": run.row, "reason": f"cannot be simulated at the starting parameters: "
                                  f"{sim.reason}"})
@@ -461,8 +469,6 @@ MAX_DRAWS_PER_START = 20  # random starts whose runs cannot all be simulated are
 def _more_starts(m, nlp, usable, place, spec, t_fit, box, first, opts, scaling, out):
     """Solve again from ``spec.starts - 1`` random points (seeded; ln k and E_a uniform within the bounds),
     each run's block initialised from its simulation there; keep the best converged optimum."""
-    from tubewright.models.simulator import simulate
-
     low, up, is_k = box
     rng = np.random.default_rng(spec.seed)
     best, best_x = first, [v.value for v in nlp.variables]
@@ -477,8 +483,8 @@ def _more_starts(m, nlp, usable, place, spec, t_fit, box, first, opts, scaling, 
             if first_sim is None:  # a differential run: nothing to integrate
                 sims.append(None)
                 continue
-            sim = simulate(with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, kinetics_values, NUMPY)),
-                           checks=False)
+            sim = _start_simulation(with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, kinetics_values,
+                                                                        NUMPY)))
             if not sim.ok:
                 break
             sims.append(sim)
@@ -508,18 +514,18 @@ def _more_starts(m, nlp, usable, place, spec, t_fit, box, first, opts, scaling, 
 def _residuals_and_jacobian(usable, spec, t_fit, theta, jacobian: bool = True):
     """((weighted residuals at ``theta``, their Jacobian by central differences or None), the row of a run
     that could not be simulated or None), both from the adaptive integrator."""
-    def residuals_at(values):
+    def residuals_at(values, rtol=JACOBIAN_RTOL):
         r = []
         for run, _ in usable:
             names = list(run.measured)
             case = with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, values, NUMPY))
-            pred, _ = simulate_predictions(case, names, spec.thermocouples)
+            pred, _ = simulate_predictions(case, names, spec.thermocouples, rtol)
             if pred is None:
                 return None, run.row
             r.extend((p - run.measured[q]) / sigma_of(spec, q, run.measured[q]) for p, q in zip(pred, names))
         return np.array(r), None
 
-    r0, failed = residuals_at(theta)
+    r0, failed = residuals_at(theta, JACOBIAN_RTOL if jacobian else MESH_CHECK_RTOL)
     if failed is not None or not jacobian:
         return (r0, None), failed
     jac = np.empty((len(r0), len(theta)))

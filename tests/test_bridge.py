@@ -581,6 +581,20 @@ def _block_names(nlp):
     return sorted(nlp.variables[nlp.compact.kept[j]].name for j in cut.cols)
 
 
+def test_square_groups_keep_only_the_structurally_nonsingular_square_ones():
+    # Label 5: rows {3, 4} x columns {7, 8}, a perfect matching exists (4-7, 3-8); label 2: 3 x 3 where
+    # rows 1 and 2 reach column 0 only (no perfect matching); label 9: 2 rows, 1 column. By hand.
+    from tubewright.optimizer.nlp.dangling import square_groups
+
+    entries = [(3, 7, 5), (3, 8, 5), (4, 7, 5),
+               (0, 0, 2), (1, 0, 2), (2, 0, 2), (0, 1, 2), (0, 2, 2),
+               (5, 4, 9), (6, 4, 9)]
+    r, c, label = (np.array(v) for v in zip(*entries))
+    found = square_groups(r, c, label)
+    assert [(rows.tolist(), cols.tolist()) for rows, cols in found] == [([3, 4], [7, 8])]
+    assert square_groups(r[label == 2][:1], c[label == 2][:1], label[label == 2][:1])[0][0].tolist() == [0]
+
+
 def test_a_dangling_block_is_left_to_newton_with_the_same_point_and_multipliers():
     # Reference: the same model solved with the block inside IPOPT's problem.
     nlp = CompiledNLP(dangling_model())

@@ -19,6 +19,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components, maximum_bipartite_matching
 from scipy.sparse.linalg import splu
+from tubewright.optimizer.nlp.structure import sorted_unique
 
 NEWTON_STEPS = 20
 STEP_TOLERANCE = 1e-10  # relative: a Newton step this small ends the recovery (one step more than a linear block needs)
@@ -143,19 +144,26 @@ def _blocks(n, m, jac_rows, jac_cols, candidate, open_rows, equality, labels=Non
 
 def square_groups(r, c, label) -> list:
     """[(rows, columns)] of the groups of entries (row r, column c) with equal ``label`` whose pattern has as
-    many rows as columns and a perfect bipartite matching (structurally non-singular)."""
-    r, c, label = np.asarray(r), np.asarray(c), np.asarray(label)
-    order = np.argsort(label, kind="stable")
-    out = []
-    for group in np.split(order, np.flatnonzero(np.diff(label[order])) + 1):  # the entries of one group
-        if not len(group):
-            continue
-        rows, local_r = np.unique(r[group], return_inverse=True)
-        cols, local_c = np.unique(c[group], return_inverse=True)
-        if len(rows) != len(cols):
-            continue
-        pattern = sp.csr_matrix((np.ones(len(group)), (local_r.reshape(-1), local_c.reshape(-1))),
-                                shape=(len(rows), len(cols)))
-        if np.all(maximum_bipartite_matching(pattern, perm_type="column") >= 0):
-            out.append((rows, cols))
-    return out
+    many rows as columns and a perfect bipartite matching (structurally non-singular), in the order of
+    their labels, rows and columns sorted. All groups are matched at once: the groups' patterns side by
+    side form a block-diagonal matrix, whose maximum matching is the union of the groups' own."""
+    r, c, label = (np.asarray(a, dtype=np.int64).reshape(-1) for a in (r, c, label))
+    if not len(r):
+        return []
+    width = int(max(r.max(), c.max())) + 1
+    row_keys, row_of = sorted_unique(label * width + r, return_inverse=True)  # (group, row) pairs, sorted
+    col_keys, col_of = sorted_unique(label * width + c, return_inverse=True)
+    groups = sorted_unique(label)
+    row_group = np.searchsorted(groups, row_keys // width)
+    col_group = np.searchsorted(groups, col_keys // width)
+    n_rows, n_cols = np.bincount(row_group, minlength=len(groups)), np.bincount(col_group, minlength=len(groups))
+    square = n_rows == n_cols
+    keep = square[row_group[row_of]]
+    pattern = sp.csr_matrix((np.ones(int(keep.sum())), (row_of[keep], col_of[keep])),
+                            shape=(len(row_keys), len(col_keys)))
+    matched = maximum_bipartite_matching(pattern, perm_type="column") >= 0
+    unmatched = np.bincount(row_group, weights=~matched, minlength=len(groups))
+    row_starts, col_starts = np.cumsum(n_rows) - n_rows, np.cumsum(n_cols) - n_cols
+    return [(row_keys[row_starts[g]:row_starts[g] + n_rows[g]] % width,
+             col_keys[col_starts[g]:col_starts[g] + n_cols[g]] % width)
+            for g in np.flatnonzero(square & (unmatched == 0)).tolist()]

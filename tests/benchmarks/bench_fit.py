@@ -5,17 +5,18 @@ the number of forms against the number of runs, and the time of scipy.optimize.l
 adaptive integrator on the same problem (same start, same weighted residuals, 2-point Jacobian) with the
 ratio.
 
-Measured here (2 cores), 2026-12-03, two runs: 5/10/20 runs: fit 1.1/1.0/1.5 s (the 5-run fit also pays the
-first imports), compile 0.15/0.25/0.38-0.43 s with 32 forms at every size (one tube block built, the other
-runs its copies in the bridge, nlp.copies), 7-8 IPOPT iterations on 10,924 variables at 20 runs (determined
-blocks: each run's temperature, coolant temperature and N2 flow follow from the inputs); least_squares
-1.2/4.4-4.6/5.4-6.1 s (15-19 simulations of every run); ratio 1.0 / 4.4-4.8 / 3.6-4.2, estimates equal within
-4e-4 relative. At 20 runs the fit spends 0.1 s on the start simulations, 0.55 s building the template, loading
-the runs and compiling (0.4 s of it compiling: the presolve and the derivative structures still grow with the
-rows), 0.57 s in the estimation (0.4 s of it outside the callbacks: IPOPT with MUMPS, and the presolve's
-refresh) and 0.2 s on the statistics (the collocation model's own sensitivities, one sparse LU, and one
-integration per run to check the mesh). The target (the fit at least 5x faster than least_squares) is not met
-at 20 runs: the estimation alone takes a tenth of the least_squares time.
+Measured here (2 cores), 2026-12-03, two runs after the presolve's replicated choices and the fit's lean
+simulations: 5/10/20 runs: fit 1.25-1.37 (first imports) / 0.77-0.89 / 1.34-1.61 s, compile 0.12-0.15 /
+0.18-0.22 / 0.23-0.26 s with 32 forms at every size (one tube block built, the other runs its copies in the
+bridge, nlp.copies), 7-8 IPOPT iterations on 10,924 variables at 20 runs; least_squares 1.0-1.2 / 3.7-4.0 /
+5.1-5.2 s (15-19 evaluations of every run); ratio 0.8 / 4.2-5.1 / 3.2-3.8, estimates equal within 4e-4
+relative. The least_squares side got faster too (it was 5.4-7.8 s at 20 runs): both sides' simulations now
+build their summary on the profile grid (simulate(grid=...)). At 20 runs the fit spends 0.07-0.08 s on the
+start simulations, 0.43-0.44 s building the template, loading the runs and compiling, 0.59-0.82 s in the
+estimation (IPOPT with MUMPS about 0.3-0.45 s, callbacks 0.12 s) and 0.2-0.25 s on the statistics (the
+collocation model's own sensitivities, one sparse LU, and one integration per run to check the mesh). The
+target (the fit at least 5x faster than least_squares) is not met at 20 runs: the fit costs about 0.06 s per
+run, least_squares about 0.25 s.
 
 Run: .venv/bin/python tests/benchmarks/bench_fit.py"""
 

@@ -134,6 +134,10 @@ class CopyStore:
         start = self.first_row + self._row(k) * len(self.constraints)
         return slice(start, start + len(self.constraints))
 
+    def all_rows(self) -> slice:
+        """The rows of every copy in the compiled problem (copy after copy)."""
+        return slice(self.first_row, self.first_row + self.count * len(self.constraints))
+
     def _row(self, k: int) -> int:
         if not 1 <= k <= self.count:
             raise IndexError(f"copy {k} of a template with {self.count} copies (1..{self.count})")

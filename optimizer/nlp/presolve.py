@@ -63,13 +63,13 @@ class LinearElimination:
         open_rows[self.block_rows] = False
         in_copies = np.zeros(m, dtype=bool)
         for store in nlp.copy_stores:
-            in_copies[store.first_row:store.first_row + store.count * len(store.constraints)] = True
+            in_copies[store.all_rows()] = True
         choice.scan(np.flatnonzero(open_rows & ~in_copies))
         # a copy takes its template's choice when nothing outside the template could tell them apart (see
         # _Choice.replicate), else its rows are scanned like the model's own
         for store in nlp.copy_stores:
             if not choice.replicate(store):
-                rows = np.arange(store.first_row, store.first_row + store.count * len(store.constraints))
+                rows = np.arange(m)[store.all_rows()]
                 choice.scan(rows[open_rows[rows]])
         depth = choice.depth
         self.rows = np.concatenate(choice.rows)  # the defining rows, in order of choice
@@ -384,9 +384,9 @@ class _Choice:
         """Give every copy of ``store`` (nlp.copies) its template's choice, after the model's own rows were
         scanned; False (nothing changed) where a scan of the copies' rows could choose otherwise. A scan
         would choose the same when (a) the template's variables appear in no row but the template's (so
-        their row counts and states are the copies' too), (b) the shared variables in the template's linear
-        rows were defined by no row and its rows defined none of them (a shared variable is then either no
-        candidate in a copy's row or one that lost in the template's: its row count is the same), and (c)
+        their row counts and states are the copies' too), (b) no row defined a shared variable of the
+        template's linear rows (such a variable is then either no candidate in a copy's row or one that lost
+        in the template's row, with the same row count), and (c)
         the copies' variables have the template's pattern of bounds and the copies take the template's part
         in the determined blocks."""
         elim, nlp = self.elim, self.elim.nlp

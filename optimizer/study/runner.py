@@ -84,18 +84,21 @@ def run_local(tasks, workers: int, on_done, poll: float = 0.05):
 
 @contextlib.contextmanager
 def _interrupt_flag():
-    """Ctrl-C raises KeyboardInterrupt and also sets a flag that the loop checks: an interrupt that arrives
-    while a worker is being forked can be raised inside the interpreter's fork hooks, which print it and
-    swallow it ("Exception ignored in ... _releaseLock"); the flag makes sure it still stops the run.
-    Only the main thread can install a signal handler; elsewhere the flag stays unset."""
+    """Ctrl-C sets a flag that the loop checks at every turn (at least every ``poll`` seconds), which then
+    raises KeyboardInterrupt. The handler itself does not raise: an exception raised where the signal
+    lands could land inside the interpreter's fork hooks while a worker is started, which print it as
+    "Exception ignored in ... _releaseLock" with a traceback and swallow it. A second Ctrl-C raises at once
+    (the loop may be busy recording a result). Only the main thread can install a signal handler;
+    elsewhere the flag stays unset."""
     flag = {"set": False}
     if threading.current_thread() is not threading.main_thread():
         yield flag
         return
 
     def on_sigint(signum, frame):
+        if flag["set"]:
+            raise KeyboardInterrupt
         flag["set"] = True
-        raise KeyboardInterrupt
 
     previous = signal.signal(signal.SIGINT, on_sigint)
     try:

@@ -203,7 +203,7 @@ def _blocks(constants=(2.0, 2.0, 2.0)):
         b.x = pyo.Var(initialize=1.0, bounds=(0.1, 10))
         b.y = pyo.Var(initialize=1.0, bounds=(0.1, 10))
         b.first = pyo.Constraint(expr=c * b.x * b.y == 1.0)
-        b.second = pyo.Constraint(expr=b.y + m.z >= 0.2 * b.p)
+        b.second = pyo.Constraint(expr=b.y + m.z + 0.1 * m.z**2 >= 0.2 * b.p)  # (z, z): one entry for all
     m.obj = pyo.Objective(expr=sum((m.b[i].x - m.b[i].p) ** 2 for i in range(3)) + m.z**2)
     return m
 
@@ -235,7 +235,7 @@ def test_a_replica_whose_numbers_differ_is_printed():
 
 def _copied_blocks(built: int, ps=(1.0, 2.0, 3.0), flows=(1.0, 1.5, 0.8)):
     """min sum_i (x_i - p_i)^2 / w_i + z^2 + z w_i with 2 x_i y_i = q_i (q_i an input of the row's bound) and
-    y_i + z >= 0.2 p_i: the first ``built`` blocks in Pyomo, whose last is the template; the objective
+    y_i + z + 0.1 z^2 >= 0.2 p_i: the first ``built`` blocks in Pyomo, whose last is the template; the objective
     holds each built block's term as a named Expression."""
     m = pyo.ConcreteModel()
     m.z = pyo.Var(initialize=0.5)
@@ -249,7 +249,7 @@ def _copied_blocks(built: int, ps=(1.0, 2.0, 3.0), flows=(1.0, 1.5, 0.8)):
         b.x = pyo.Var(initialize=1.0, bounds=(0.1, 10))
         b.y = pyo.Var(initialize=1.0, bounds=(0.1, 10))
         b.first = pyo.Constraint(expr=2.0 * b.x * b.y == b.q)
-        b.second = pyo.Constraint(expr=b.y + m.z >= 0.2 * b.p)
+        b.second = pyo.Constraint(expr=b.y + m.z + 0.1 * m.z**2 >= 0.2 * b.p)  # (z, z): one entry for all
         b.term = pyo.Expression(expr=(b.x - b.p) ** 2 / b.w + m.z * b.w)
     m.obj = pyo.Objective(expr=sum(m.b[i].term for i in range(built)) + m.z**2)
     return m

@@ -571,10 +571,21 @@ class CompiledNLP:
         self.jac_cols = np.concatenate(jc) if jc else np.zeros(0, dtype=np.int64)
         keys = []  # (row, column) of the lower triangle as one integer, row * n + column: a 1-D unique is fast
         n = max(len(self.variables), 1)
+        # a pair whose two variables are the same for every member (variables the members share: a fit's
+        # kinetic parameters) is one Hessian entry, the sum of its members' values (_hess): per form with
+        # pairs, (pairs entered per member, pairs entered once)
+        self._hess_split = []
         for f in [*self.forms, *self.objective_forms]:
-            for a, b in f.pairs:
-                i, j = f.var_index[:, a], f.var_index[:, b]
-                keys.append(np.maximum(i, j) * n + np.minimum(i, j))
+            if not f.pairs:
+                continue
+            same = np.all(f.var_index == f.var_index[:1], axis=0)
+            once = np.array([same[a] and same[b] for a, b in f.pairs], dtype=bool)
+            split = (np.flatnonzero(~once), np.flatnonzero(once))
+            self._hess_split.append(split)
+            for p, rows in zip(split, (slice(None), slice(0, 1))):
+                for a, b in (f.pairs[q] for q in p.tolist()):
+                    i, j = f.var_index[rows, a], f.var_index[rows, b]
+                    keys.append(np.maximum(i, j) * n + np.minimum(i, j))
         allk = np.concatenate(keys) if keys else np.zeros(0, dtype=np.int64)
         unique, self._hess_inverse = sorted_unique(allk, return_inverse=True)
         self.hess_rows, self.hess_cols = unique // n, unique % n
@@ -632,20 +643,18 @@ class CompiledNLP:
 
     def _hess(self, x, lagrange, obj_factor):
         parts = []
-        for k, f in enumerate(self.forms):
+        split = iter(self._hess_split)  # the forms with pairs, in _structure's order
+        for k, f in [*enumerate(self.forms), *((-1 - i, f) for i, f in enumerate(self.objective_forms))]:
             if not f.pairs:
                 continue
-            w = lagrange[f.members]
-            if not w.any():  # rows out of IPOPT's problem, or inactive: nothing to add
-                parts.append(np.zeros(len(f.pairs) * len(f.members)))
+            per_member, once = next(split)
+            w = lagrange[f.members] if k >= 0 else obj_factor * self.sign
+            if k >= 0 and not w.any():  # rows out of IPOPT's problem, or inactive: nothing to add
+                parts.append(np.zeros(len(per_member) * len(f.members) + len(once)))
                 continue
-            vals = self._derivatives(k, f, x)[f.n_grad:]
-            # (pair, member) order, as the coordinates were stacked in _structure
-            parts.append((_rows(vals, len(f.members)) * w).reshape(-1))
-        for i, f in enumerate(self.objective_forms):
-            if f.pairs:
-                vals = self._derivatives(-1 - i, f, x)[f.n_grad:]
-                parts.append(_rows(vals, len(f.members)).reshape(-1) * (obj_factor * self.sign))
+            vals = _rows(self._derivatives(k, f, x)[f.n_grad:], len(f.members)) * w  # (pair, member)
+            parts.append(vals[per_member].reshape(-1))
+            parts.append(vals[once].sum(axis=1))
         if not parts:
             return np.zeros(len(self.hess_rows))
         return np.bincount(self._hess_inverse, weights=np.concatenate(parts), minlength=len(self.hess_rows))

@@ -86,3 +86,32 @@ def test_the_directory_names_the_software(monkeypatch, tmp_path):
 
     monkeypatch.setattr(form_cache.Path, "home", staticmethod(no_home))
     assert form_cache.cache_directory() is None  # no home directory: no cache, and no failure
+
+
+def test_a_new_software_directory_removes_all_but_the_latest_others(monkeypatch, tmp_path):
+    # Five other software directories written at different times, a foreign directory and a foreign file
+    # inside the oldest: the first compilation of a new version keeps the KEEP_OTHER latest, removes the
+    # older ones' entries and the emptied directory, and leaves whatever this cache did not write.
+    import os
+
+    root = tmp_path / "forms"
+    names = [f"v1-py311-pyomo6.{k}.0-{k:016x}" for k in range(5)]
+    for age, name in enumerate(names):
+        d = root / name
+        d.mkdir(parents=True)
+        (d / ("ab" * 32)).write_bytes(b"entry")
+        os.utime(d, (1_000_000 - age * 1000, 1_000_000 - age * 1000))  # older down the list
+    (root / "notes").mkdir()
+    (root / "notes" / ("cd" * 32)).write_bytes(b"not ours")
+    oldest_keep = root / names[4] / "README"
+    oldest_keep.write_text("a user's file")
+    os.utime(root / names[4], (1, 1))
+    nlp = _compiled(monkeypatch, root)
+    assert nlp.times["form_cache"]["written"] == 3 and not nlp.times["form_cache"]["problems"]
+    assert all((root / n / ("ab" * 32)).exists() for n in names[:form_cache.KEEP_OTHER])
+    assert not (root / names[3]).exists()  # emptied and removed
+    assert not (root / names[4] / ("ab" * 32)).exists() and oldest_keep.exists()  # only our entries removed
+    assert (root / "notes" / ("cd" * 32)).exists()
+    again = _compiled(monkeypatch, root)  # the directory exists now: nothing more is removed
+    assert again.times["form_cache"]["hits"] == 3
+    assert all((root / n / ("ab" * 32)).exists() for n in names[:form_cache.KEEP_OTHER])

@@ -18,6 +18,12 @@ problem is counted in ``CompiledNLP.times["form_cache"]``.
 
 Entries are Python ``marshal`` data, like the interpreter's own ``__pycache__``: the directory is trusted
 as much as the installed code is.
+
+Every new software version (and, in an editable install, every edit of the bridge) starts a directory of
+its own; the first compilation that creates one removes the entries of all but the ``KEEP_OTHER`` most
+recently written other directories (only names of this cache's making: software tags, entry keys,
+temporary files), so the cache does not grow with every upgrade. A removed directory that another
+installation still uses costs it one compilation without the cache.
 """
 
 from __future__ import annotations
@@ -25,12 +31,16 @@ from __future__ import annotations
 import hashlib
 import marshal
 import os
+import re
 import sys
 import tempfile
 from pathlib import Path
 
 FORMAT = 1  # raise when the record layout below changes
 _SOURCES = ("bridge.py", "pyomo_rules.py", "form_cache.py")
+KEEP_OTHER = 3  # directories of other software versions kept when a new one is created
+_TAG_NAME = re.compile(r"v\d+-py\d+-pyomo[\w.+-]*-[0-9a-f]{16}")
+_ENTRY_NAME = re.compile(r"[0-9a-f]{64}|\.tmp-\w+")
 
 
 def cache_directory() -> Path | None:
@@ -113,7 +123,9 @@ class FormCache:
         record = (FORMAT, text, nx, npar, value_code, derivatives_code, n_grad, [tuple(p) for p in pairs],
                   list(constant_gradient))
         try:
-            self.directory.mkdir(parents=True, exist_ok=True)
+            if not self.directory.is_dir():
+                self.directory.mkdir(parents=True, exist_ok=True)
+                self._prune_others()
             fd, tmp = tempfile.mkstemp(dir=self.directory, prefix=".tmp-")
             try:
                 with os.fdopen(fd, "wb") as fh:
@@ -127,6 +139,22 @@ class FormCache:
             self._writable = False
             return
         self.written += 1
+
+    def _prune_others(self) -> None:
+        """Remove the entries (and then the directory, if empty) of the other software directories beside
+        this one, all but the KEEP_OTHER most recently written; a problem is recorded, never raised."""
+        try:
+            others = [d for d in self.directory.parent.iterdir()
+                      if d != self.directory and d.is_dir() and _TAG_NAME.fullmatch(d.name)]
+            others.sort(key=lambda d: d.stat().st_mtime, reverse=True)
+            for old in others[KEEP_OTHER:]:
+                for entry in old.iterdir():
+                    if entry.is_file() and _ENTRY_NAME.fullmatch(entry.name):
+                        entry.unlink()
+                if not any(old.iterdir()):
+                    old.rmdir()
+        except OSError as exc:
+            self.problems.append(f"removing older software directories beside {self.directory}: {exc}")
 
     def summary(self) -> dict:
         return {"directory": None if self.directory is None else str(self.directory), "hits": self.hits,

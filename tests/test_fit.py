@@ -490,3 +490,35 @@ def test_rates_measured_beside_conversions_follow_each_run(tmp_path):
     assert shared.solver["copied_runs"] == 7 and built.solver["copied_runs"] == 0
     assert shared.solver["mesh_check_sigma"] < 1e-2 and not shared.warnings
     assert list(shared.estimates.values()) == pytest.approx(list(built.estimates.values()), rel=1e-8)
+
+
+def test_a_copys_start_values_by_array_are_the_values_written_into_the_block():
+    # The fit starts each copy of a built run block from arrays (collocation.state_positions and
+    # flat_states) instead of writing the run into the block: the same values as
+    # initialise_from_simulation writes, variable by variable, for every state and derivative of the block.
+    # Invented test data (a cooled liquid tube, so that every state varies).
+    import pyomo.environ as pyo
+    from builders import make
+    from tubewright.models.simulator import simulate
+    from tubewright.optimizer.design.collocation import (
+        STATES,
+        build_tube_model,
+        flat_states,
+        initialise_from_simulation,
+        simulation_states,
+        state_positions,
+    )
+    from tubewright.optimizer.design.spec import DesignSpec
+
+    case = make(liquid_case(**{"numerics.finite_elements": 6, "coolant": {"mode": "constant", "temperature": "340 K"},
+                               "heat_transfer": {"overall": "150 W/m^2/K"}}))
+    sim = simulate(case, checks=False)
+    m, _ = build_tube_model(case, DesignSpec(), 6, 3)
+    variables = [v for name in STATES for v in getattr(m, name).values()]
+    assert len(variables) == sum(len(getattr(m, name)) for name in STATES) > 100
+    initialise_from_simulation(m, case, sim)
+    m.other = pyo.Var(initialize=1.0)
+    positions = state_positions(m, case, variables + [m.other])  # a variable that is no state: -1
+    assert positions[-1] == -1 and np.all(positions[:-1] >= 0) and len(set(positions[:-1])) == len(variables)
+    by_array = flat_states(simulation_states(m, case, sim))[positions[:-1]]
+    assert by_array.tolist() == [pyo.value(v) for v in variables]

@@ -179,29 +179,68 @@ def collocation_value(m, var, xi: float):
     return sum(w * var[t] for w, t in zip(weights, nodes) if w != 0.0)
 
 
-def initialise_from_simulation(m, case, result):
-    """Set every state and derivative variable from an adaptive-integrator solution of the same design (the
-    derivatives from the balances at all points at once: the numpy backend takes arrays)."""
+STATES = ("F", "dF", *TAIL, *(f"d{state}" for state in TAIL))  # the state and derivative variables
+
+
+def simulation_states(m, case, result) -> dict:
+    """Every state and derivative variable of a tube model at the points of m.xi, from an adaptive-integrator
+    solution of the same design: {"F": (species, points), "dF": (species, points), "T": (points,), "dT": ...}
+    (the derivatives from the balances at all points at once: the numpy backend takes arrays)."""
     cols = result.columns
     layout = StateLayout.of(case)
     L = case.tube.length
     z = cols["z_m"]
-    points = list(m.xi)
-    zz = np.minimum(np.asarray(points) * L, z[-1])
+    zz = np.minimum(np.asarray(list(m.xi)) * L, z[-1])
     F = [np.maximum(np.interp(zz, z, cols[layout.column(s)]) / case.tube.count, 0.0) for s in case.names]
     tail = {state: np.interp(zz, z, cols[layout.column(state)]) for state in TAIL}
     d = axial_derivatives(NUMPY, case, F, tail["T"], tail["P"], tail["Tc"])
+    out = {"F": np.array(F), "dF": np.array([np.broadcast_to(L * rate, zz.shape) for rate in d.dF])}
+    for state, rhs in d.tail.items():
+        out[state], out[f"d{state}"] = tail[state], np.broadcast_to(L * rhs, zz.shape)
+    return out
 
-    def put(var, index, values):
-        for key, v in zip(index, np.broadcast_to(values, zz.shape).tolist()):
+
+def initialise_from_simulation(m, case, result):
+    """Set every state and derivative variable from an adaptive-integrator solution of the same design."""
+    values = simulation_states(m, case, result)
+    points = list(m.xi)
+
+    def put(var, index, column):
+        for key, v in zip(index, column.tolist()):
             var[key].set_value(v, skip_validation=True)
 
-    for s, f, rate in zip(case.names, F, d.dF):
-        put(m.F, [(s, x) for x in points], f)
-        put(m.dF, [(s, x) for x in points], L * rate)
-    for state, rhs in d.tail.items():
-        put(getattr(m, state), points, tail[state])
-        put(getattr(m, f"d{state}"), points, L * rhs)
+    for name in STATES:
+        if name in ("F", "dF"):
+            for s, column in zip(case.names, values[name]):
+                put(getattr(m, name), [(s, x) for x in points], column)
+        else:
+            put(getattr(m, name), points, values[name])
+
+
+def state_positions(m, case, variables) -> np.ndarray:
+    """Per variable of the tube model ``m``, its position in ``flat_states`` of ``simulation_states``, or -1
+    for a variable that is no state or derivative: the values of many variables by one indexing."""
+    points = {x: j for j, x in enumerate(m.xi)}
+    species = {s: i for i, s in enumerate(case.names)}
+    offset, start = {}, 0
+    for name in STATES:
+        offset[name] = start
+        start += (len(species) if name in ("F", "dF") else 1) * len(points)
+    component = {id(getattr(m, name)): name for name in STATES}
+    out = np.full(len(variables), -1, dtype=np.int64)
+    for k, v in enumerate(variables):
+        name = component.get(id(v.parent_component()))
+        if name in ("F", "dF"):
+            s, x = v.index()
+            out[k] = offset[name] + species[s] * len(points) + points[x]
+        elif name is not None:
+            out[k] = offset[name] + points[v.index()]
+    return out
+
+
+def flat_states(values: dict) -> np.ndarray:
+    """The arrays of ``simulation_states`` one after another, in the order ``state_positions`` counts."""
+    return np.concatenate([np.asarray(values[name], dtype=float).reshape(-1) for name in STATES])
 
 
 def state_scaling(m, case, result) -> dict:
@@ -215,27 +254,46 @@ def state_scaling(m, case, result) -> dict:
     return {"F": f_ref, **{s: max(float(np.max(np.abs(cols[layout.column(s)]))), floor[s]) for s in TAIL}}
 
 
-def tube_scale_factors(m, case, scales) -> tuple[dict, dict]:
-    """IPOPT scale factors of one tube model: {id(variable): factor} for the states and their derivatives,
-    {id(constraint): factor} for the balances, the collocation equations and the inlet conditions; factors
-    are 1 / typical magnitude (``scales`` from ``state_scaling``)."""
+def tube_scale_keys(m, case) -> tuple[dict, dict]:
+    """Which scale applies to each variable and constraint of a tube model: {id: key} with the keys ("F",
+    species) for a flow, its derivative and its balances, (state,) for the other states, ("feed", species)
+    for the inlet flow rows (see ``scale_factor``)."""
     var, con = {}, {}
     for (sp, x), v in m.F.items():
-        var[id(v)] = var[id(m.dF[sp, x])] = 1.0 / scales["F"][sp]
+        var[id(v)] = var[id(m.dF[sp, x])] = ("F", sp)
     for state in TAIL:
         for x in m.xi:
-            var[id(getattr(m, state)[x])] = var[id(getattr(m, f"d{state}")[x])] = 1.0 / scales[state]
+            var[id(getattr(m, state)[x])] = var[id(getattr(m, f"d{state}")[x])] = (state,)
     for (sp, _), c in m.ode_F.items():
-        con[id(c)] = 1.0 / scales["F"][sp]
+        con[id(c)] = ("F", sp)
     for (state, _), c in m.ode.items():
-        con[id(c)] = 1.0 / scales[state]
+        con[id(c)] = (state,)
     for state in ("F", *TAIL):
         for idx, c in getattr(m, f"d{state}_disc_eq").items():
-            con[id(c)] = 1.0 / (scales["F"][idx[0]] if state == "F" else scales[state])
-    feed = case.feed.molar_flows
+            con[id(c)] = ("F", idx[0]) if state == "F" else (state,)
     for sp, c in m.inlet_F.items():
-        con[id(c)] = 1.0 / max(feed[case.index(sp)], 1e-3 * sum(feed))
+        con[id(c)] = ("feed", sp)
     for c, state in ((m.inlet_T, "T"), (m.inlet_P, "P"), (m.coolant_in, "Tc"), (m.inlet_Q, "Q"),
                      (m.inlet_tau, "tau")):
-        con[id(c)] = 1.0 / scales[state]
+        con[id(c)] = (state,)
     return var, con
+
+
+def scale_factor(key: tuple, case, scales) -> float:
+    """The IPOPT scale factor of a ``tube_scale_keys`` key: 1 / typical magnitude (``scales`` from
+    ``state_scaling``; an inlet flow row by its feed flow, at least 1e-3 of the total)."""
+    if key[0] == "F":
+        return 1.0 / scales["F"][key[1]]
+    if key[0] == "feed":
+        feed = case.feed.molar_flows
+        return 1.0 / max(feed[case.index(key[1])], 1e-3 * sum(feed))
+    return 1.0 / scales[key[0]]
+
+
+def tube_scale_factors(m, case, scales) -> tuple[dict, dict]:
+    """IPOPT scale factors of one tube model: {id(variable): factor} for the states and their derivatives,
+    {id(constraint): factor} for the balances, the collocation equations and the inlet conditions (see
+    ``tube_scale_keys`` and ``scale_factor``)."""
+    var_keys, con_keys = tube_scale_keys(m, case)
+    factor = {key: scale_factor(key, case, scales) for key in {*var_keys.values(), *con_keys.values()}}
+    return {i: factor[key] for i, key in var_keys.items()}, {i: factor[key] for i, key in con_keys.items()}

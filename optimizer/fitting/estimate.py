@@ -423,36 +423,53 @@ def _add_residuals(b, run, spec, pcase):
 
 def _load_runs(usable, spec, place, sims):
     """Every tube run's data into its block or its copy (``place``: usable index -> (template block, store,
-    copy number)): its case's inputs, its measured values and sigmas, its states from ``sims[i]``. Returns
-    IPOPT's scale factors: by id of variable and of constraint for the built blocks, and per copy (store,
-    copy number, factors of the template's variables, of its constraints). Each template ends holding its
-    own run."""
+    copy number)): its case's inputs, its measured values and sigmas, its states from ``sims[i]`` (a copy's
+    as an array, collocation.state_positions). Returns IPOPT's scale factors: by id of variable and of
+    constraint for the built blocks, and per copy (store, copy number, factors of the template's variables,
+    of its constraints). Each template ends holding its own run."""
     from tubewright.optimizer.design.collocation import (
+        flat_states,
         initialise_from_simulation,
         load_case_inputs,
+        scale_factor,
+        simulation_states,
+        state_positions,
         state_scaling,
         tube_scale_factors,
+        tube_scale_keys,
     )
     from tubewright.optimizer.design.spec import DesignSpec
 
     x_scale, g_scale, copy_scales = {}, {}, []
+    layouts = {}  # per store: where its template's variables sit among the states, and their scale keys
     copies_first = sorted(place, key=lambda i: place[i][2] == 0)
     for i in copies_first:
         run, sim = usable[i][0], sims[i]
         b, store, k = place[i]
         load_case_inputs(b, run.case, DesignSpec())
-        initialise_from_simulation(b, run.case, sim)
         for j, (name, y) in enumerate(run.measured.items()):
             b.measured[j] = y
             b.sigma[j] = sigma_of(spec, name, y)
-        var_s, con_s = tube_scale_factors(b, run.case, state_scaling(b, run.case, sim))
-        if k:
-            store.capture(k)
-            copy_scales.append((store, k, [var_s.get(id(v), 1.0) for v in store.variables],
-                                [con_s.get(id(c), 1.0) for c in store.constraints]))
-        else:
+        scales = state_scaling(b, run.case, sim)
+        if not k:
+            initialise_from_simulation(b, run.case, sim)
+            var_s, con_s = tube_scale_factors(b, run.case, scales)
             x_scale.update(var_s)
             g_scale.update(con_s)
+            continue
+        if id(store) not in layouts:
+            var_keys, con_keys = tube_scale_keys(b, run.case)
+            keys = sorted({*var_keys.values(), *con_keys.values()}, key=repr)
+            slot = {key: n for n, key in enumerate(keys)}  # len(keys): no key, factor 1
+            layouts[id(store)] = (state_positions(b, run.case, store.variables),
+                                  np.array([0.0 if v.value is None else v.value for v in store.variables]), keys,
+                                  np.array([slot.get(var_keys.get(id(v)), len(keys)) for v in store.variables]),
+                                  np.array([slot.get(con_keys.get(id(c)), len(keys)) for c in store.constraints]))
+        positions, others, keys, var_slot, con_slot = layouts[id(store)]
+        values = np.where(positions >= 0, flat_states(simulation_states(b, run.case, sim))[positions], others)
+        store.capture(k, values)
+        factors = np.array([scale_factor(key, run.case, scales) for key in keys] + [1.0])
+        copy_scales.append((store, k, factors[var_slot], factors[con_slot]))
     return x_scale, g_scale, copy_scales
 
 

@@ -71,17 +71,18 @@ class CopyStore:
                           [CopyInput(self, c, j) for c in range(k) for j in range(len(inputs))],
                           [CopyConstraint(self, c, j) for c in range(k) for j in range(len(constraints))])
 
-    def _read(self, row: int):
-        self.x[row] = [_number(v.value) for v in self.variables]
+    def _read(self, row: int, values=None):
+        self.x[row] = [_number(v.value) for v in self.variables] if values is None else values
         self.lb[row], self.ub[row] = variable_bounds(self.variables)
         self.p[row] = [_number(value(p)) for p in self.inputs]
         for bounds, (rows, exprs) in zip((self.g_lb, self.g_ub), self.live_bounds):
             bounds[row, rows] = exprs.values()
 
-    def capture(self, k: int):
+    def capture(self, k: int, values=None):
         """The template's current inputs, variable values and bounds, and input-dependent constraint bounds,
-        as copy ``k``'s (1..count)."""
-        self._read(self._row(k))
+        as copy ``k``'s (1..count). ``values``: the copy's variable values, in the order of ``variables``,
+        instead of the template's (a caller that computes them as arrays need not write them into Pyomo)."""
+        self._read(self._row(k), values)
 
     @contextmanager
     def loaded(self, k: int, variables=None):

@@ -5,18 +5,19 @@ the number of forms against the number of runs, and the time of scipy.optimize.l
 adaptive integrator on the same problem (same start, same weighted residuals, 2-point Jacobian) with the
 ratio (the median of PAIRS interleaved pairs, with their range).
 
-Measured here (2 cores), 2026-12-03, two runs after the presolve's replicated choices and the fit's lean
-simulations: 5/10/20 runs: fit 1.25-1.37 (first imports) / 0.77-0.89 / 1.34-1.61 s, compile 0.12-0.15 /
-0.18-0.22 / 0.23-0.26 s with 32 forms at every size (one tube block built, the other runs its copies in the
-bridge, nlp.copies), 7-8 IPOPT iterations on 10,924 variables at 20 runs; least_squares 1.0-1.2 / 3.7-4.0 /
-5.1-5.2 s (15-19 evaluations of every run); ratio 0.8 / 4.2-5.1 / 3.2-3.8, estimates equal within 4e-4
-relative. The least_squares side got faster too (it was 5.4-7.8 s at 20 runs): both sides' simulations now
-build their summary on the profile grid (simulate(grid=...)). At 20 runs the fit spends 0.07-0.08 s on the
-start simulations, 0.43-0.44 s building the template, loading the runs and compiling, 0.59-0.82 s in the
-estimation (IPOPT with MUMPS about 0.3-0.45 s, callbacks 0.12 s) and 0.2-0.25 s on the statistics (the
-collocation model's own sensitivities, one sparse LU, and one integration per run to check the mesh). The
-target (the fit at least 5x faster than least_squares) is not met at 20 runs: the fit costs about 0.06 s per
-run, least_squares about 0.25 s.
+Measured here (2 cores), 2026-12-03, at the session's last code (median of three pairs, in a slow phase of
+the machine whose speed drifts by tens of per cent): 5/10/20 runs: fit 0.58 / 0.96 / 1.74 s, compile 0.15 /
+0.21 / 0.37 s with 32 forms at every size (one tube block built, the other runs its copies in the bridge,
+nlp.copies), 7-8 IPOPT iterations on 10,924 variables at 20 runs; least_squares 1.4 / 4.9 / 6.9 s (15-19
+evaluations of every run); ratio 2.5 / 5.05 (4.77-5.45) / 3.94 (3.74-3.96), estimates equal within 4e-4
+relative. Earlier today, in a faster phase, single pairs gave 20 runs: fit 1.34-1.61 s, least_squares
+5.1-5.2 s, ratio 3.2-3.8. The least_squares side got faster this session too (5.4-7.8 s at 20 runs before):
+both sides' simulations now build their summary on the profile grid (simulate(grid=...)). At 20 runs the
+fit spends 0.1 s on the start simulations, 0.4-0.55 s building the template, loading the runs (0.05 s) and
+compiling, 0.6-0.8 s in the estimation (IPOPT with MUMPS about 0.35-0.45 s, callbacks 0.13-0.16 s) and
+0.2 s on the statistics (the collocation model's own sensitivities, one sparse LU, and one integration per
+run to check the mesh). The target (the fit at least 5x faster than least_squares) is met at 10 runs and not
+at 20: the fit costs about 0.06 s per run (0.03 of it IPOPT), least_squares about 0.25-0.35 s.
 
 Run: .venv/bin/python tests/benchmarks/bench_fit.py"""
 

@@ -492,20 +492,22 @@ def test_rates_measured_beside_conversions_follow_each_run(tmp_path):
     assert list(shared.estimates.values()) == pytest.approx(list(built.estimates.values()), rel=1e-8)
 
 
-def test_a_copys_start_values_by_array_are_the_values_written_into_the_block():
-    # The fit starts each copy of a built run block from arrays (collocation.state_positions and
-    # flat_states) instead of writing the run into the block: the same values as
-    # initialise_from_simulation writes, variable by variable, for every state and derivative of the block.
-    # Invented test data (a cooled liquid tube, so that every state varies).
+def test_start_values_by_array_are_the_simulation_at_each_point():
+    # A run's starting values come from arrays (collocation.simulation_states, flat_states) placed by
+    # state_positions, for a copy (the fit) as for the block itself (initialise_from_simulation): every
+    # state and derivative variable gets a position of its own, and at each point the states equal the
+    # simulation's profile there (per tube) and the derivatives L times the balances evaluated at that one
+    # point (the scalar path of models.balances). Invented test data (a cooled liquid tube: all states vary).
     import pyomo.environ as pyo
     from builders import make
+    from tubewright.models.backend import NUMPY
+    from tubewright.models.balances import axial_derivatives
     from tubewright.models.simulator import simulate
+    from tubewright.models.state import TAIL, StateLayout
     from tubewright.optimizer.design.collocation import (
         STATES,
         build_tube_model,
-        flat_states,
         initialise_from_simulation,
-        simulation_states,
         state_positions,
     )
     from tubewright.optimizer.design.spec import DesignSpec
@@ -515,10 +517,19 @@ def test_a_copys_start_values_by_array_are_the_values_written_into_the_block():
     sim = simulate(case, checks=False)
     m, _ = build_tube_model(case, DesignSpec(), 6, 3)
     variables = [v for name in STATES for v in getattr(m, name).values()]
-    assert len(variables) == sum(len(getattr(m, name)) for name in STATES) > 100
-    initialise_from_simulation(m, case, sim)
     m.other = pyo.Var(initialize=1.0)
     positions = state_positions(m, case, variables + [m.other])  # a variable that is no state: -1
-    assert positions[-1] == -1 and np.all(positions[:-1] >= 0) and len(set(positions[:-1])) == len(variables)
-    by_array = flat_states(simulation_states(m, case, sim))[positions[:-1]]
-    assert by_array.tolist() == [pyo.value(v) for v in variables]
+    assert positions[-1] == -1 and sorted(positions[:-1].tolist()) == list(range(len(variables)))
+    initialise_from_simulation(m, case, sim)
+    cols, layout, L, n = sim.columns, StateLayout.of(case), case.tube.length, case.tube.count
+    for x in list(m.xi)[::5]:
+        z = x * L
+        F = [float(np.interp(z, cols["z_m"], cols[layout.column(s)])) / n for s in case.names]
+        tail = {state: float(np.interp(z, cols["z_m"], cols[layout.column(state)])) for state in TAIL}
+        d = axial_derivatives(NUMPY, case, F, tail["T"], tail["P"], tail["Tc"])
+        for s, f, rate in zip(case.names, F, d.dF):
+            assert pyo.value(m.F[s, x]) == pytest.approx(max(f, 0.0), rel=1e-12, abs=1e-300)
+            assert pyo.value(m.dF[s, x]) == pytest.approx(L * float(rate), rel=1e-9, abs=1e-15)
+        for state in TAIL:
+            assert pyo.value(getattr(m, state)[x]) == pytest.approx(tail[state], rel=1e-12)
+            assert pyo.value(getattr(m, f"d{state}")[x]) == pytest.approx(L * float(d.tail[state]), rel=1e-9, abs=1e-12)

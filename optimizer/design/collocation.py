@@ -202,19 +202,10 @@ def simulation_states(m, case, result) -> dict:
 
 def initialise_from_simulation(m, case, result):
     """Set every state and derivative variable from an adaptive-integrator solution of the same design."""
-    values = simulation_states(m, case, result)
-    points = list(m.xi)
-
-    def put(var, index, column):
-        for key, v in zip(index, column.tolist()):
-            var[key].set_value(v, skip_validation=True)
-
-    for name in STATES:
-        if name in ("F", "dF"):
-            for s, column in zip(case.names, values[name]):
-                put(getattr(m, name), [(s, x) for x in points], column)
-        else:
-            put(getattr(m, name), points, values[name])
+    variables = [v for name in STATES for v in getattr(m, name).values()]
+    values = flat_states(simulation_states(m, case, result))[state_positions(m, case, variables)]
+    for v, x in zip(variables, values.tolist()):
+        v.set_value(x, skip_validation=True)
 
 
 def state_positions(m, case, variables) -> np.ndarray:

@@ -90,6 +90,7 @@ class FormCache:
         self.written = 0
         self.problems: list[str] = []
         self._writable = True  # until a write fails: then one problem is recorded, not one per form
+        self._ready = False  # the directory exists (checked at the first write)
 
     def get(self, text: str, nx: int, npar: int):
         """The record written for this form, or None: (value code, derivatives code, n_grad, pairs,
@@ -123,9 +124,11 @@ class FormCache:
         record = (FORMAT, text, nx, npar, value_code, derivatives_code, n_grad, [tuple(p) for p in pairs],
                   list(constant_gradient))
         try:
-            if not self.directory.is_dir():
-                self.directory.mkdir(parents=True, exist_ok=True)
-                self._prune_others()
+            if not self._ready:  # checked at the first write; a new directory prunes the older ones
+                if not self.directory.is_dir():
+                    self.directory.mkdir(parents=True, exist_ok=True)
+                    self._prune_others()
+                self._ready = True
             fd, tmp = tempfile.mkstemp(dir=self.directory, prefix=".tmp-")
             try:
                 with os.fdopen(fd, "wb") as fh:

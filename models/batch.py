@@ -11,7 +11,7 @@ integration carries the axial model (axial_model) or the two-dimensional one (ra
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy.integrate import BDF, solve_ivp
@@ -21,9 +21,10 @@ from scipy.sparse.linalg import splu
 from .limits import LIMITS
 from .outcomes import Reason, Status
 from .parameters import apply
-from .simulator import complex_step_columns, simulate, state_rhs
+from .results import PROFILE_POINTS
+from .simulator import complex_step_columns, simulate, state_rhs, stop_events
 from .state import StateLayout
-from .summary import outlet_figures, pointwise_maxima
+from .summary import outlet_figures, pointwise_maxima, profile_columns
 
 TRAP_BAND = 25.0  # K
 GRID = 801  # axial points per tube length on which the hot spot and the other pointwise maxima are located
@@ -227,6 +228,97 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None, model:
                 if key in target:
                     target[key][j] = val
     return BatchResult(status, reason, outputs, time.perf_counter() - t0, censored, int(handover.sum()), codes)
+
+
+@dataclass
+class Profiles:
+    """The axial profiles of one case from an integration shared with other cases (``simulate_profiles``):
+    the part of a SimulationResult that a kinetics fit reads (no summary, no checks)."""
+
+    columns: dict  # as SimulationResult.columns: "z_m", the state columns (flows of the whole reactor), ...
+    status: Status = Status.OK
+    reason: str = "integrated to the tube outlet (with other cases)"
+
+    @property
+    def ok(self) -> bool:
+        return True
+
+
+def sample_values(case) -> dict:
+    """The values of ``case`` at the paths that the balances take as arrays of samples (models.parameters):
+    feed temperature, pressure and flows, coolant temperature and mass flow (those set)."""
+    values = {"feed.temperature": case.feed.temperature, "feed.pressure": case.feed.pressure,
+              **{f"feed.molar_flows.{s}": f for s, f in zip(case.names, case.feed.molar_flows)}}
+    for key in ("temperature", "mass_flow"):
+        if getattr(case.coolant, key) is not None:
+            values[f"coolant.{key}"] = getattr(case.coolant, key)
+    return values
+
+
+def sample_groups(cases) -> list[list[int]]:
+    """The cases (by position) in groups whose members differ only in ``sample_values``: each member equals
+    the group's first case with the member's sample values set (the raw TOML tables aside, which keep the
+    overrides as text). One integration can carry a group."""
+    groups: list[tuple] = []
+    for i, case in enumerate(cases):
+        for first, members in groups:
+            if replace(apply(first, sample_values(case)), raw={}) == replace(case, raw={}):
+                members.append(i)
+                break
+        else:
+            groups.append((case, [i]))
+    return [members for _, members in groups]
+
+
+def simulate_profiles(cases, rtol: float | None = None, points=(), grid: int = PROFILE_POINTS) -> list:
+    """The profiles of many cases: the members of each ``sample_groups`` group integrated together (scipy's
+    BDF on the stacked states, block-diagonal Jacobian by the complex step), with the columns of
+    SimulationResult on ``grid`` points plus ``points`` [m]. A case alone in its group, counter-current
+    coolant (shooting), a group whose integration fails or reaches the temperature ceiling or the pressure
+    floor: simulated one at a time (``simulate``, whose result tells why it stopped). ``rtol``: instead of
+    the cases' own. Returns per case a ``Profiles`` or a SimulationResult (``ok``, ``reason``, ``columns``)."""
+    cases = [c if rtol is None else replace(c, numerics=replace(c.numerics, rtol=rtol)) for c in cases]
+    out: list = [None] * len(cases)
+    for members in sample_groups(cases):
+        first = cases[members[0]]
+        if len(members) > 1 and first.coolant.kind.enters_at != "outlet":
+            columns = _integrate_group(first, [cases[i] for i in members], points, grid)
+            if columns is not None:
+                for i, col in zip(members, columns):
+                    out[i] = Profiles(col)
+                continue
+        for i in members:
+            out[i] = simulate(cases[i], checks=False, points=points, grid=grid)
+    return out
+
+
+def _integrate_group(first, members, points, grid):
+    """The profile columns of ``members`` (cases equal to ``first`` but for their sample values) from one
+    integration, or None when it fails or stops (the caller simulates them one at a time)."""
+    n = len(members)
+    arrays = {path: np.array([sample_values(c)[path] for c in members]) for path in sample_values(first)}
+    case = apply(first, arrays)
+    layout = StateLayout.of(first)
+    ns, num, length = layout.size, first.numerics, first.tube.length
+    y0 = layout.initial(case, samples=n)
+    rhs = batch_rhs(state_rhs(case), ns, n)
+    events = stop_events(first, lambda y: np.min(layout.get(y.reshape(n, ns).T, "P")),
+                         lambda y: np.max(layout.get(y.reshape(n, ns).T, "T")))
+    try:
+        with np.errstate(all="ignore"):
+            sol = solve_ivp(rhs, (0.0, length), y0.T.ravel(), method=block_bdf(ns), jac=block_jacobian(rhs, ns, n),
+                            rtol=num.rtol, atol=(num.atol * np.maximum(np.abs(y0), 1.0)).T.ravel(),
+                            events=events, dense_output=True)
+    except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+        return None
+    if sol.status != 0:  # failed, or an event stopped it short of the outlet
+        return None
+    z = np.union1d(np.linspace(0.0, length, grid), np.asarray([p for p in points if 0.0 <= p <= length], float))
+    Y = sol.sol(z).reshape(n, ns, z.size)
+    Y[:, :, -1] = sol.y[:, -1].reshape(n, ns)
+    if not np.all(np.isfinite(Y)):
+        return None
+    return [profile_columns(c, z, Y[k]) for k, c in enumerate(members)]
 
 
 _REPORTED = ("max_temperature_K", "max_temperature_position_m", "conversion", "pressure_drop_Pa",

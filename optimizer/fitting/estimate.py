@@ -148,12 +148,12 @@ def sigma_of(spec, name: str, measured: float) -> float:
     return value if how == "absolute" else value * max(abs(measured), 1e-300)
 
 
-def _start_simulation(run_case):
-    """A run simulated at starting parameters, to start its collocation model from: profiles only (the
-    summary on the profile grid)."""
-    from tubewright.models.simulator import simulate
+def _start_simulations(run_cases) -> list:
+    """The runs simulated at starting parameters, to start their collocation models from: profiles only
+    (runs that differ only in feed and coolant conditions share one integration, models.batch)."""
+    from tubewright.models.batch import simulate_profiles
 
-    return simulate(run_case, checks=False, grid=PROFILE_POINTS)
+    return simulate_profiles(run_cases, grid=PROFILE_POINTS)
 
 
 def simulate_predictions(run_case, names, thermocouples=None, rtol: float = JACOBIAN_RTOL):
@@ -164,13 +164,21 @@ def simulate_predictions(run_case, names, thermocouples=None, rtol: float = JACO
 
     if all(is_rate(q) for q in names):
         return [float(predicted_rate(NUMPY, run_case, q)) for q in names], None
-    thermocouples = thermocouples or {}
-    points = [thermocouples[q.partition(".")[2]] for q in names if q.startswith("axial_temperature.")]
     sim = simulate(replace(run_case, numerics=replace(run_case.numerics, rtol=rtol)), checks=False,
-                   points=points, grid=PROFILE_POINTS)
-    if not sim.ok:
-        return None, sim
-    cols, n = sim.columns, run_case.tube.count
+                   points=thermocouple_points(names, thermocouples), grid=PROFILE_POINTS)
+    return (predictions_from(run_case, names, thermocouples, sim.columns) if sim.ok else None), sim
+
+
+def thermocouple_points(names, thermocouples) -> list:
+    """The positions [m] of the measured axial temperatures among ``names``."""
+    return [(thermocouples or {})[q.partition(".")[2]] for q in names if q.startswith("axial_temperature.")]
+
+
+def predictions_from(run_case, names, thermocouples, cols) -> list:
+    """The measured quantities ``names`` of one run from its simulated profile columns (SimulationResult's,
+    holding the thermocouple positions exactly)."""
+    thermocouples = thermocouples or {}
+    n = run_case.tube.count
     f_in = [cols[f"F_{s}_mol_s"][0] / n for s in run_case.names]
     f_out = [cols[f"F_{s}_mol_s"][-1] / n for s in run_case.names]
 
@@ -178,7 +186,7 @@ def simulate_predictions(run_case, names, thermocouples=None, rtol: float = JACO
         return float(np.interp(thermocouples[tc], cols["z_m"], cols["T_K"]))
 
     return [float(predicted_rate(NUMPY, run_case, q) if is_rate(q) else
-                  predicted(run_case, q, f_in, f_out, cols["T_K"][-1], n, temperature_at)) for q in names], sim
+                  predicted(run_case, q, f_in, f_out, cols["T_K"][-1], n, temperature_at)) for q in names]
 
 
 def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None,
@@ -198,7 +206,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None,
                 raise CaseError(str(case_path), f"fit.errors.{name.partition('.')[0]}",
                                 f"missing: the data ({data_path}) measure {name}; state its error (absolute, or "
                                 'relative as "2 %")')
-    # the inputs are read and checked: only now the heavy imports (the simulator, in _start_simulation)
+    # the inputs are read and checked: only now the heavy imports (the simulator, in _start_simulations)
     t_fit = spec.reference_temperature or arrhenius_reference_temperature([r.case.feed.temperature for r in runs])
     theta0 = start_values(base, spec, t_fit)
     lower = np.array([p.lower * s if p.is_constant else p.lower for p, s in zip(spec.parameters, theta0)])
@@ -210,16 +218,18 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None,
     t_phase = time.perf_counter()
     # the runs that the model can simulate at the start; the others are listed, not fitted
     usable = []
-    for run in runs:
-        start_case = with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, theta0, NUMPY))
-        if all(is_rate(q) for q in run.measured):  # a differential run: no tube to integrate
+    start_cases = [with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, theta0, NUMPY)) for run in runs]
+    tube_runs = [i for i, run in enumerate(runs) if not all(is_rate(q) for q in run.measured)]
+    start_sims = dict(zip(tube_runs, _start_simulations([start_cases[i] for i in tube_runs])))
+    for i, (run, start_case) in enumerate(zip(runs, start_cases)):
+        if i not in start_sims:  # a differential run: no tube to integrate
             rates = [predicted_rate(NUMPY, start_case, q) for q in run.measured]
             if not np.all(np.isfinite(rates)):
                 out.excluded.append({"row": run.row, "reason": "its rates are not finite at the starting parameters"})
                 continue
             usable.append((run, None))
             continue
-        sim = _start_simulation(start_case)
+        sim = start_sims[i]
         if not sim.ok:
             out.excluded.append({"row": run.row, "reason": f"cannot be simulated at the starting parameters: "
                                  f"{sim.reason}"})
@@ -495,18 +505,14 @@ def _more_starts(m, nlp, usable, place, spec, t_fit, box, first, opts, scaling, 
         drawn += 1
         internal = low + rng.random(len(low)) * (up - low)
         kinetics_values = on_rate_constants(internal, is_k, np.exp)
-        sims = []
-        for run, first_sim in usable:
-            if first_sim is None:  # a differential run: nothing to integrate
-                sims.append(None)
-                continue
-            sim = _start_simulation(with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, kinetics_values,
-                                                                        NUMPY)))
-            if not sim.ok:
-                break
-            sims.append(sim)
-        if len(sims) < len(usable):
+        tube_runs = [k for k, (_, first_sim) in enumerate(usable) if first_sim is not None]
+        drawn_sims = _start_simulations([with_kinetics(usable[k][0].case, kinetics_at(
+            usable[k][0].case, spec, t_fit, kinetics_values, NUMPY)) for k in tube_runs])
+        if not all(sim.ok for sim in drawn_sims):
             continue  # a run cannot be simulated from this start: draw another
+        sims = [None] * len(usable)  # None: a differential run, nothing to integrate
+        for k, sim in zip(tube_runs, drawn_sims):
+            sims[k] = sim
         for k, v in enumerate(m.theta.values()):
             v.set_value(float(internal[k]))
         _load_runs(usable, spec, place, sims)
@@ -542,8 +548,10 @@ def _residuals_and_jacobian(usable, spec, t_fit, theta, jacobian: bool = True):
             r.extend((p - run.measured[q]) / sigma_of(spec, q, run.measured[q]) for p, q in zip(pred, names))
         return np.array(r), None
 
-    r0, failed = residuals_at(theta, JACOBIAN_RTOL if jacobian else MESH_CHECK_RTOL)
-    if failed is not None or not jacobian:
+    if not jacobian:  # the mesh check alone
+        return _mesh_check_residuals(usable, spec, t_fit, theta)
+    r0, failed = residuals_at(theta)
+    if failed is not None:
         return (r0, None), failed
     jac = np.empty((len(r0), len(theta)))
     for k in range(len(theta)):
@@ -557,3 +565,24 @@ def _residuals_and_jacobian(usable, spec, t_fit, theta, jacobian: bool = True):
             return (None, None), failed or failed_down
         jac[:, k] = (r_up - r_down) / (2 * h)
     return (r0, jac), None
+
+
+def _mesh_check_residuals(usable, spec, t_fit, theta):
+    """(The weighted residuals at ``theta`` from the adaptive integrator at MESH_CHECK_RTOL, None), or
+    ((None, None), the row of a run it cannot simulate). The tube runs that differ only in feed and coolant
+    conditions share one integration (models.batch), with every thermocouple position on its grid."""
+    from tubewright.models.batch import simulate_profiles
+
+    cases = [with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, theta, NUMPY)) for run, _ in usable]
+    tube = [k for k, (run, _) in enumerate(usable) if not all(is_rate(q) for q in run.measured)]
+    points = sorted({p for k in tube for p in thermocouple_points(list(usable[k][0].measured), spec.thermocouples)})
+    sims = dict(zip(tube, simulate_profiles([cases[k] for k in tube], MESH_CHECK_RTOL, points)))
+    r = []
+    for k, (run, _) in enumerate(usable):
+        names = list(run.measured)
+        if k in sims and not sims[k].ok:
+            return (None, None), run.row
+        pred = (predictions_from(cases[k], names, spec.thermocouples, sims[k].columns) if k in sims else
+                [float(predicted_rate(NUMPY, cases[k], q)) for q in names])
+        r.extend((p - run.measured[q]) / sigma_of(spec, q, run.measured[q]) for p, q in zip(pred, names))
+    return (np.array(r), None), None

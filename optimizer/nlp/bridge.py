@@ -812,7 +812,7 @@ class CompiledNLP:
                                   lb=self.x_lb[cols], ub=self.x_ub[cols], cl=self.g_lb[rows], cu=self.g_ub[rows])
         opts = {"print_level": 0, "sb": "yes", "tol": 1e-8, "max_iter": 3000}
         if os.environ.get("TUBEWRIGHT_IPOPT_LOG"):  # for developers: IPOPT's own iteration log on stdout
-            opts.update(print_level=5, sb="no")
+            opts.update(print_level=5, sb="no", print_timing_statistics="yes")
         if scaling is not None:
             obj_s, x_s, g_s = scaling
             problem.set_problem_scaling(obj_scaling=obj_s, x_scaling=np.asarray(x_s, float)[cols],

@@ -140,6 +140,22 @@ def test_compact_and_full_problems_agree_on_point_and_every_multiplier():
     assert l1 == pytest.approx(l2, rel=1e-6, abs=1e-9)
 
 
+def test_a_solve_without_multipliers_gives_the_same_point_and_says_so():
+    m = chained_model()
+    nlp = CompiledNLP(m)
+    full = nlp.solve(options={"tol": 1e-10})
+    x_full = [pyo.value(v) for v in (m.x, m.y, m.d, m.e)]
+    lean = nlp.solve(options={"tol": 1e-10}, multipliers=False)
+    assert lean.success and [pyo.value(v) for v in (m.x, m.y, m.d, m.e)] == pytest.approx(x_full, abs=1e-9)
+    removed = nlp.compact.removed_rows
+    assert np.all(np.isnan(lean.multipliers[removed])) and np.all(np.isfinite(full.multipliers))
+    with pytest.raises(RuntimeError, match="multipliers=False"):
+        nlp.multiplier(m.define_d)
+    again = nlp.solve(options={"tol": 1e-10}, warm_start=True)  # nothing to start warm from: a cold start
+    assert again.success and nlp.multiplier(m.define_d) == pytest.approx(full.multipliers[nlp.constraints.index(
+        m.define_d)], rel=1e-6)
+
+
 def test_compact_multiplier_is_the_analytic_sensitivity():
     # min x^2 + y^2 + (e - 1)^2 with d = a x + 3 y + 0.5 = p and e = (d + x)/2: a smooth problem in (x, y);
     # the multiplier of ``fix`` is -df*/dp (IPOPT: L = f + lambda g, g = d - p), checked by a central difference

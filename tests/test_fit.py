@@ -77,6 +77,23 @@ def test_collocation_sensitivities_equal_the_integrators_central_differences(tmp
     assert fitted == pytest.approx([r["fitted"] for r in ref.residuals], abs=1e-2 * SIGMA)
 
 
+def test_sensitivities_of_the_compact_problem_equal_the_whole_models(tmp_path, monkeypatch):
+    # The fit's sensitivities come from the presolve's compact problem (a quarter of the rows); the whole model's
+    # Jacobian gives the same to rounding.
+    import tubewright.optimizer.fitting.sensitivity as sensitivity
+
+    case, data, _ = write_lab(tmp_path)
+    used = []
+    compact = sensitivity._compact_sensitivities
+    monkeypatch.setattr(sensitivity, "_compact_sensitivities", lambda *a: used.append(compact(*a)) or used[-1])
+    out = fit(case, data)
+    assert len(used) == 1 and used[0] is not None
+    monkeypatch.setattr(sensitivity, "_compact_sensitivities", lambda *a: None)
+    whole = fit(case, data)
+    assert out.statistics.covariance == pytest.approx(whole.statistics.covariance, rel=1e-8)
+    assert [r["fitted"] for r in out.residuals] == pytest.approx([r["fitted"] for r in whole.residuals], rel=1e-12)
+
+
 def test_reference_temperature_far_from_the_data_correlates_the_estimates(tmp_path):
     # near +-1 with T_ref far outside the runs, much smaller at the runs' mean reciprocal temperature
     far = {"parameters": {"r1": {"k_ref": True, "activation_energy": True}}, "errors": {"conversion": SIGMA},

@@ -255,7 +255,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None,
             "mumps_scaling": num.mumps_scaling, "mumps_permuting_scaling": num.mumps_permuting_scaling}
     phases["build_and_compile"] = time.perf_counter() - t_phase
     t_phase = time.perf_counter()
-    solved = nlp.solve(options=opts, scaling=scaling)
+    solved = nlp.solve(options=opts, scaling=scaling, multipliers=False)
     if spec.starts > 1:
         solved = _more_starts(m, nlp, usable, place, spec, t_fit, (low_i, up_i, is_k), solved, opts, scaling, out)
     theta = on_rate_constants([v.value for v in m.theta.values()], is_k, np.exp)
@@ -516,7 +516,7 @@ def _more_starts(m, nlp, usable, place, spec, t_fit, box, first, opts, scaling, 
         for k, v in enumerate(m.theta.values()):
             v.set_value(float(internal[k]))
         _load_runs(usable, spec, place, sims)
-        solved = nlp.solve(options=opts, scaling=scaling)
+        solved = nlp.solve(options=opts, scaling=scaling, multipliers=False)
         objectives.append(solved.objective if solved.success else None)
         if solved.success and (not best.success or solved.objective < best.objective):
             best, best_x = solved, [v.value for v in nlp.variables]

@@ -41,20 +41,11 @@ def residual_jacobian(nlp, parameters, residuals):
     if len(states) != nlp.m or np.any(nlp.g_lb != nlp.g_ub):
         return None
     x = nlp.current_point(clip=False)
-    with np.errstate(all="ignore"):
-        values = nlp._jac(x)
-    if not np.all(np.isfinite(values)):
+    dx = _compact_sensitivities(nlp, x, theta)
+    if dx is None:
+        dx = _sensitivities(nlp, x, theta, states)
+    if dx is None or not np.all(np.isfinite(dx)):
         return None
-    jac = sp.csr_matrix((values, (nlp.jac_rows, nlp.jac_cols)), shape=(nlp.m, nlp.n))
-    try:
-        lu = splu(jac[:, states].tocsc())
-    except RuntimeError:  # singular: the rows do not fix the states
-        return None
-    ds = -lu.solve(jac[:, theta].toarray())  # (states, parameters)
-    if not np.all(np.isfinite(ds)):
-        return None
-    state_row = np.full(nlp.n, -1, dtype=np.int64)
-    state_row[states] = np.arange(len(states))
     theta_col = {i: k for k, i in enumerate(theta)}
     r = np.empty(len(residuals))
     out = np.zeros((len(residuals), len(parameters)))
@@ -77,5 +68,61 @@ def residual_jacobian(nlp, parameters, residuals):
                     if i in theta_col:
                         out[row, theta_col[i]] += g
                     else:
-                        out[row] += g * ds[state_row[i]]
+                        out[row] += g * dx[i]
     return r, out
+
+
+def _solve(a, b):
+    """a^-1 b (b dense) by one sparse LU, or None when a is singular."""
+    try:
+        lu = splu(a.tocsc())
+    except RuntimeError:
+        return None
+    return lu.solve(b)
+
+
+def _sensitivities(nlp, x, theta, states):
+    """dx/dtheta (every variable, parameters' rows unused) from the whole model's Jacobian, or None."""
+    with np.errstate(all="ignore"):
+        values = nlp._jac(x)
+    if not np.all(np.isfinite(values)):
+        return None
+    jac = sp.csr_matrix((values, (nlp.jac_rows, nlp.jac_cols)), shape=(nlp.m, nlp.n))
+    ds = _solve(jac[:, states], -jac[:, theta].toarray())
+    if ds is None:
+        return None
+    dx = np.zeros((nlp.n, len(theta)))
+    dx[states] = ds
+    return dx
+
+
+def _compact_sensitivities(nlp, x, theta):
+    """The same from the presolve's compact problem (nlp.presolve: x = T y + t, t free of the parameters),
+    whose square Jacobian in the kept states is a quarter the size: dy_s/dtheta = -J_s^-1 J_theta and
+    dx/dtheta = T dy/dtheta. None when there is no compact problem, it does not hold at x, or it keeps a
+    different number of states than rows."""
+    red = nlp.compact
+    if red is None or not np.allclose(red.full(x[red.kept]), x, rtol=1e-9, atol=1e-12):
+        return None
+    position = np.full(nlp.n, -1, dtype=np.int64)
+    position[red.kept] = np.arange(red.n)
+    kept_theta = position[theta]
+    if np.any(kept_theta < 0):
+        return None
+    is_theta = np.zeros(red.n, dtype=bool)
+    is_theta[kept_theta] = True
+    states = np.flatnonzero(~is_theta)
+    if len(states) != red.m:
+        return None
+    with np.errstate(all="ignore"):
+        values = red.jacobian(x[red.kept])
+    if not np.all(np.isfinite(values)):
+        return None
+    jac = sp.csr_matrix((values, (red.jac_rows, red.jac_cols)), shape=(red.m, red.n))
+    ds = _solve(jac[:, states], -jac[:, kept_theta].toarray())
+    if ds is None:
+        return None
+    dy = np.zeros((red.n, len(theta)))
+    dy[states] = ds
+    dy[kept_theta, np.arange(len(theta))] = 1.0
+    return red.T @ dy

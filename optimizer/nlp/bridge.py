@@ -730,12 +730,14 @@ class CompiledNLP:
             s.x[:] = x[s.first_column:s.first_column + s.x.size].reshape(s.x.shape)
 
     def solve(self, options: dict | None = None, warm_start: bool = False, scaling=None,
-              dangling: bool = True) -> SolveOutcome:
+              dangling: bool = True, multipliers: bool = True) -> SolveOutcome:
         """Solve from the model's current variable values. ``warm_start`` reuses the multipliers of the
         previous solve. ``scaling``: (objective factor, variable factors, constraint factors) or None.
         ``dangling``: leave the compact problem's dangling blocks (nlp.dangling) out of IPOPT's problem; when
         a block cannot be solved from its rows afterwards, or its values leave a bound, the problem is solved
-        again with them (``times["dangling_fallback"]`` says why).
+        again with them (``times["dangling_fallback"]`` says why). ``multipliers=False``: the presolve's
+        removed rows get NaN multipliers instead of their values from stationarity (a caller that reads no
+        multiplier saves a sparse solve), and the next solve cannot start warm from this one.
         Writes the solution back into the model's variables."""
         import cyipopt
 
@@ -843,22 +845,26 @@ class CompiledNLP:
                            "the block's values leave a bound")
                 if problem is not None:
                     self._write(red.full(y))
-                    again = self.solve(options, warm_start=False, scaling=scaling, dangling=False)
+                    again = self.solve(options, warm_start=False, scaling=scaling, dangling=False,
+                                       multipliers=multipliers)
                     again.times["dangling_fallback"] = problem
                     return again
             x = red.full(y)
             mult_g, zl, zu = np.zeros(self.m), np.zeros(self.n), np.zeros(self.n)
             mult_g[rows] = info["mult_g"]
             zl[cols], zu[cols] = info["mult_x_L"], info["mult_x_U"]
-            with np.errstate(all="ignore"):
-                mult_g[red.removed_rows] = red.defining_multipliers(x, mult_g[red.kept_rows])
+            if multipliers:
+                with np.errstate(all="ignore"):
+                    mult_g[red.removed_rows] = red.defining_multipliers(x, mult_g[red.kept_rows])
+            else:
+                mult_g[red.removed_rows] = np.nan
         total = time.perf_counter() - t0
         self._write(x)
         with np.errstate(all="ignore"):
             g = self._cons(x)
         viol = float(np.max(np.concatenate([[0.0], self.g_lb - g, g - self.g_ub]))) if self.m else 0.0
         status = int(info["status"])
-        self._warm = (mult_g, zl, zu)
+        self._warm = (mult_g, zl, zu) if multipliers else None
         msg = info["status_msg"]
         return SolveOutcome(
             status=status, status_name=IPOPT_STATUS.get(status, "unknown"),
@@ -898,4 +904,7 @@ class CompiledNLP:
 
     def multiplier(self, constraint) -> float:
         """IPOPT's multiplier of one constraint after a solve (Lagrangian f + lambda^T g)."""
+        if self._warm is None:
+            raise RuntimeError("no multipliers: nothing solved yet, or the last solve asked for none "
+                               "(multipliers=False)")
         return float(self._warm[0][self.constraints.index(constraint)])

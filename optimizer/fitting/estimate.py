@@ -250,7 +250,9 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None,
     m, nlp, place, observations, weighted, scaling = _fit_model(usable, spec, t_fit, is_k, (low_i, up_i), internal0,
                                                                 (nfe, ncp), share_blocks)
     num = base.numerics
-    opts = {"max_iter": 500, "tol": 1e-9, "mu_strategy": "adaptive", "mumps_pivtol": 1e-4,
+    # constr_mult_init_max 0: the constraint multipliers start at zero instead of from a least-squares estimate
+    # (one factorization fewer, 0.05 s at 20 runs; the same 7 iterations: the start is feasible, from simulations)
+    opts = {"max_iter": 500, "tol": 1e-9, "mu_strategy": "adaptive", "mumps_pivtol": 1e-4, "constr_mult_init_max": 0.0,
             "mumps_pivot_order": num.mumps_pivot_order,
             "mumps_scaling": num.mumps_scaling, "mumps_permuting_scaling": num.mumps_permuting_scaling}
     phases["build_and_compile"] = time.perf_counter() - t_phase
@@ -381,8 +383,10 @@ def _fit_model(usable, spec, t_fit, is_k, box, internal0, mesh, share_blocks):
                     weighted.append((b.residual[j], store if k else None, k))
     for k, v in enumerate(m.theta.values()):
         x_scale[id(v)] = 1.0 / max(abs(internal0[k]), 1.0)
-    x_s = np.array([x_scale.get(id(v), 1.0) for v in nlp.variables])
-    g_s = np.array([g_scale.get(id(c), 1.0) for c in nlp.constraints])
+    n_model, m_model = nlp.model_size  # the copies' factors follow from copy_scales
+    x_s, g_s = np.ones(nlp.n), np.ones(nlp.m)
+    x_s[:n_model] = [x_scale.get(id(v), 1.0) for v in nlp.variables[:n_model]]
+    g_s[:m_model] = [g_scale.get(id(c), 1.0) for c in nlp.constraints[:m_model]]
     for store, k, var_s, con_s in copy_scales:
         x_s[store.columns(k)], g_s[store.rows(k)] = var_s, con_s
     scaling = (1.0 / max(nlp.objective_value(), 1.0), x_s, g_s)

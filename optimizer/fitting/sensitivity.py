@@ -31,7 +31,7 @@ def residual_jacobian(nlp, parameters, residuals):
     from pyomo.core.expr.calculus.derivatives import differentiate
     from pyomo.core.expr.visitor import identify_variables
 
-    position = {id(v): i for i, v in enumerate(nlp.variables)}
+    position = {id(v): i for i, v in enumerate(nlp.variables[:nlp.model_size[0]])}  # copies: store.column
     theta = [position.get(id(p)) for p in parameters]
     if any(i is None for i in theta):
         return None

@@ -675,6 +675,12 @@ class CompiledNLP:
         self.g_lb = np.concatenate([g_lb, *[s.g_lb.reshape(-1) for s in stores]])
         self.g_ub = np.concatenate([g_ub, *[s.g_ub.reshape(-1) for s in stores]])
 
+    @property
+    def model_size(self) -> tuple[int, int]:
+        """(variables, constraints) of the Pyomo model itself: the first entries of ``variables`` and
+        ``constraints``, before the copies' stand-ins (nlp.copies)."""
+        return self._n_real, self._m_real
+
     def equality_rows(self) -> np.ndarray:
         """Per row, whether it is an equality (Pyomo's flag, a copy's from its template row)."""
         return np.concatenate([np.array([c.equality for c in self.constraints[:self._m_real]], dtype=bool),

@@ -200,10 +200,20 @@ class Table:
 
 def load_case(path, overrides: dict | None = None) -> C.Case:
     """Read, merge, override and validate a case file. Raises CaseError for any bad input."""
+    return case_loader(path)(overrides)
+
+
+def case_loader(path):
+    """``load_case`` of one file for many sets of overrides (the runs of a kinetics fit): the file and its
+    includes are read once; each call overrides a copy and validates it."""
     path = Path(path)
     source = str(path)
-    data = apply_overrides(resolve_includes(path), overrides or {}, source)
-    return build_case(data, source)
+    merged = resolve_includes(path)
+
+    def load(overrides: dict | None = None) -> C.Case:
+        return build_case(apply_overrides(merged, overrides or {}, source), source)
+
+    return load
 
 
 def build_case(data: dict, source: str) -> C.Case:

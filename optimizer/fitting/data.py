@@ -123,7 +123,7 @@ def read_table(path):
 def read_runs(data_path, case_path, thermocouples: dict | None = None) -> list[Run]:
     """Read and validate every run of ``data_path`` against the base case ``case_path``; ``thermocouples``
     (name -> position from the tube inlet [m]) are the positions measured.axial_temperature.NAME may name."""
-    from tubewright.models.casefile import load_case
+    from tubewright.models.casefile import case_loader
 
     source = str(data_path)
     names, rows = read_table(data_path)
@@ -138,12 +138,13 @@ def read_runs(data_path, case_path, thermocouples: dict | None = None) -> list[R
     if not any(c.is_measured for c in columns):
         raise CaseError(source, "", "has no measured column (measured.conversion, measured.outlet_temperature, "
                         "measured.outlet_flow.SPECIES or measured.outlet_mole_fraction.SPECIES)")
-    base = load_case(case_path)
+    load = case_loader(case_path)
+    base = load()
     runs, problems = [], []
     for number, values in enumerate(rows, start=1):
         where = f"{source}, row {number}"
         try:
-            runs.append(_run(number, values, columns, where, case_path, base, thermocouples or {}))
+            runs.append(_run(number, values, columns, where, load, base, thermocouples or {}))
         except CaseError as err:
             problems.append(err)
     if problems:
@@ -154,9 +155,8 @@ def read_runs(data_path, case_path, thermocouples: dict | None = None) -> list[R
     return runs
 
 
-def _run(number, values, columns, where, case_path, base, thermocouples) -> Run:
-    from tubewright.models.casefile import load_case
-
+def _run(number, values, columns, where, load, base, thermocouples) -> Run:
+    """One row as a Run; ``load``: the base case file's loader (casefile.case_loader)."""
     overrides, measured = {}, {}
     for column, value in zip(columns, values):
         if isinstance(value, str) and not value.strip():
@@ -173,7 +173,7 @@ def _run(number, values, columns, where, case_path, base, thermocouples) -> Run:
         else:
             overrides[column.key] = f"{number_value!r} {column.unit}" if column.unit else number_value
     try:
-        case = load_case(case_path, overrides)
+        case = load(overrides)
     except CaseError as err:
         column = err.key if err.key in overrides else ""
         raise CaseError(where, column, err.detail if column else str(err)) from None

@@ -5,19 +5,20 @@ the number of forms against the number of runs, and the time of scipy.optimize.l
 adaptive integrator on the same problem (same start, same weighted residuals, 2-point Jacobian) with the
 ratio (the median of PAIRS interleaved pairs, with their range).
 
-Measured here (2 cores), 2026-12-03, at the session's last code (median of three pairs, in a slow phase of
-the machine whose speed drifts by tens of per cent): 5/10/20 runs: fit 0.58 / 0.96 / 1.74 s, compile 0.15 /
-0.21 / 0.37 s with 32 forms at every size (one tube block built, the other runs its copies in the bridge,
-nlp.copies), 7-8 IPOPT iterations on 10,924 variables at 20 runs; least_squares 1.4 / 4.9 / 6.9 s (15-19
-evaluations of every run); ratio 2.5 / 5.05 (4.77-5.45) / 3.94 (3.74-3.96), estimates equal within 4e-4
-relative. Earlier today, in a faster phase, single pairs gave 20 runs: fit 1.34-1.61 s, least_squares
-5.1-5.2 s, ratio 3.2-3.8. The least_squares side got faster this session too (5.4-7.8 s at 20 runs before):
-both sides' simulations now build their summary on the profile grid (simulate(grid=...)). At 20 runs the
-fit spends 0.1 s on the start simulations, 0.4-0.55 s building the template, loading the runs (0.05 s) and
-compiling, 0.6-0.8 s in the estimation (IPOPT with MUMPS about 0.35-0.45 s, callbacks 0.13-0.16 s) and
-0.2 s on the statistics (the collocation model's own sensitivities, one sparse LU, and one integration per
-run to check the mesh). The target (the fit at least 5x faster than least_squares) is met at 10 runs and not
-at 20: the fit costs about 0.06 s per run (0.03 of it IPOPT), least_squares about 0.25-0.35 s.
+Measured here (2 cores), 2026-12-03, after this session's changes (batched start and mesh-check integrations,
+sensitivities from the compact problem, no least-squares multiplier start, no multipliers of the removed
+rows), median of three pairs per line, seven runs of the script over this session's last four commits, in
+phases of the machine whose speed drifts by tens of per cent: 20 runs: ratio 5.65 (5.09-6.56), 5.23, 4.72
+(4.27-5.22), 4.59 (3.11-4.66), 4.37 (4.21-4.49), 4.23, 4.15 (3.80-4.80); fit 0.96-1.52 s, least_squares
+4.6-6.8 s; 10 runs 4.65-5.96; 5 runs 2.0-2.3. Before them (last session's code): 20 runs 3.94 (3.74-3.96), fit
+1.74 s against least_squares 6.9 s in a slow phase. At 20 runs the fit spends 0.03-0.05 s on the start
+simulations, 0.35-0.5 s building the template, loading the runs and compiling (compile 0.2-0.34: structure
+walk 0.05, presolve 0.09, Hessian structure 0.05), 0.52-0.77 s in the estimation (7 IPOPT iterations on 10,924
+variables: MUMPS about 0.3 s, our callbacks 0.12-0.18 s, cyipopt and IPOPT receiving 126,000 Jacobian and
+81,000 Hessian values per call about 0.15 s) and 0.08-0.14 s on the statistics (sensitivities 0.04, the mesh
+check's shared integration 0.04). The fit batches its integrations (models.batch.simulate_profiles: runs that
+differ only in feed and coolant conditions share one); the least_squares baseline simulates run by run with
+simulate, as a user of the simulator would.
 
 Run: .venv/bin/python tests/benchmarks/bench_fit.py"""
 

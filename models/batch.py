@@ -241,7 +241,7 @@ class Profiles:
 
     @property
     def ok(self) -> bool:
-        return True
+        return self.status == Status.OK
 
 
 def sample_values(case) -> dict:
@@ -256,18 +256,32 @@ def sample_values(case) -> dict:
 
 
 def sample_groups(cases) -> list[list[int]]:
-    """The cases (by position) in groups whose members differ only in ``sample_values``: each member equals
-    the group's first case with the member's sample values set (the raw TOML tables aside, which keep the
-    overrides as text). One integration can carry a group."""
-    groups: list[tuple] = []
+    """The cases (by position) in groups whose members differ only in ``sample_values``: the cases with
+    those values set to zero (and the raw TOML tables aside, which keep the overrides as text) are equal, so
+    that each member is the group's first case with the member's sample values set. One integration can
+    carry a group. A field derived from a sample value at loading that is not one itself keeps the cases
+    apart (never together wrongly). The text of the zeroed case sorts the cases into buckets first, so that
+    many groups do not cost a comparison of every pair."""
+    buckets: dict[str, list] = {}
+    groups = []
     for i, case in enumerate(cases):
-        for first, members in groups:
-            if replace(apply(first, sample_values(case)), raw={}) == replace(case, raw={}):
+        zeroed = replace(apply(case, dict.fromkeys(sample_values(case), 0.0)), raw={})
+        bucket = buckets.setdefault(repr(zeroed), [])
+        for first, members in bucket:
+            if _equal(first, zeroed):
                 members.append(i)
                 break
         else:
-            groups.append((case, [i]))
-    return [members for _, members in groups]
+            bucket.append((zeroed, [i]))
+            groups.append(bucket[-1][1])
+    return groups
+
+
+def _equal(a, b) -> bool:
+    try:
+        return bool(a == b)
+    except ValueError:  # an array among the fields: not comparable as a whole, so kept apart
+        return False
 
 
 def simulate_profiles(cases, rtol: float | None = None, points=(), grid: int = PROFILE_POINTS) -> list:

@@ -47,6 +47,8 @@ def test_shared_profiles_follow_the_analytic_first_order_solution():
 def test_cases_differing_beyond_the_sample_values_are_not_shared():
     cases = [*_runs(), make(liquid_case(**{"tube.length": "5 m"})), make(liquid_case(**{"tube.count": 2}))]
     assert sample_groups(cases) == [[0, 1, 2], [3], [4]]
+    short = _runs(**{"tube.length": "5 m"})
+    assert sample_groups([cases[0], short[0], cases[1], short[1], short[2]]) == [[0, 2], [1, 3, 4]]
     out = simulate_profiles(cases)
     assert [type(p) for p in out] == [Profiles] * 3 + [SimulationResult] * 2
 

@@ -148,12 +148,23 @@ def sigma_of(spec, name: str, measured: float) -> float:
     return value if how == "absolute" else value * max(abs(measured), 1e-300)
 
 
-def _start_simulations(run_cases) -> list:
-    """The runs simulated at starting parameters, to start their collocation models from: profiles only
-    (runs that differ only in feed and coolant conditions share one integration, models.batch)."""
+def is_differential(run) -> bool:
+    """A run that measures formation rates only: no tube to integrate."""
+    return all(is_rate(q) for q in run.measured)
+
+
+def _cases_at(runs, spec, t_fit, values) -> list:
+    """Each run's case with the kinetics of the estimator's ``values``."""
+    return [with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, values, NUMPY)) for run in runs]
+
+
+def _simulate_tubes(runs, cases, rtol: float | None = None, points=()) -> dict:
+    """{position: profiles} of the runs with a tube to integrate, from their ``cases``: profiles only, runs
+    that differ only in feed and coolant conditions in one integration (models.batch.simulate_profiles)."""
     from tubewright.models.batch import simulate_profiles
 
-    return simulate_profiles(run_cases, grid=PROFILE_POINTS)
+    tube = [i for i, run in enumerate(runs) if not is_differential(run)]
+    return dict(zip(tube, simulate_profiles([cases[i] for i in tube], rtol, points, PROFILE_POINTS)))
 
 
 def simulate_predictions(run_case, names, thermocouples=None, rtol: float = JACOBIAN_RTOL):
@@ -206,7 +217,7 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None,
                 raise CaseError(str(case_path), f"fit.errors.{name.partition('.')[0]}",
                                 f"missing: the data ({data_path}) measure {name}; state its error (absolute, or "
                                 'relative as "2 %")')
-    # the inputs are read and checked: only now the heavy imports (the simulator, in _start_simulations)
+    # the inputs are read and checked: only now the heavy imports (the simulator, in _simulate_tubes)
     t_fit = spec.reference_temperature or arrhenius_reference_temperature([r.case.feed.temperature for r in runs])
     theta0 = start_values(base, spec, t_fit)
     lower = np.array([p.lower * s if p.is_constant else p.lower for p, s in zip(spec.parameters, theta0)])
@@ -218,9 +229,8 @@ def fit(case_path, data_path, nfe: int | None = None, ncp: int | None = None,
     t_phase = time.perf_counter()
     # the runs that the model can simulate at the start; the others are listed, not fitted
     usable = []
-    start_cases = [with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, theta0, NUMPY)) for run in runs]
-    tube_runs = [i for i, run in enumerate(runs) if not all(is_rate(q) for q in run.measured)]
-    start_sims = dict(zip(tube_runs, _start_simulations([start_cases[i] for i in tube_runs])))
+    start_cases = _cases_at(runs, spec, t_fit, theta0)
+    start_sims = _simulate_tubes(runs, start_cases)
     for i, (run, start_case) in enumerate(zip(runs, start_cases)):
         if i not in start_sims:  # a differential run: no tube to integrate
             rates = [predicted_rate(NUMPY, start_case, q) for q in run.measured]
@@ -509,14 +519,11 @@ def _more_starts(m, nlp, usable, place, spec, t_fit, box, first, opts, scaling, 
         drawn += 1
         internal = low + rng.random(len(low)) * (up - low)
         kinetics_values = on_rate_constants(internal, is_k, np.exp)
-        tube_runs = [k for k, (_, first_sim) in enumerate(usable) if first_sim is not None]
-        drawn_sims = _start_simulations([with_kinetics(usable[k][0].case, kinetics_at(
-            usable[k][0].case, spec, t_fit, kinetics_values, NUMPY)) for k in tube_runs])
-        if not all(sim.ok for sim in drawn_sims):
+        runs = [run for run, _ in usable]
+        drawn_sims = _simulate_tubes(runs, _cases_at(runs, spec, t_fit, kinetics_values))
+        if not all(sim.ok for sim in drawn_sims.values()):
             continue  # a run cannot be simulated from this start: draw another
-        sims = [None] * len(usable)  # None: a differential run, nothing to integrate
-        for k, sim in zip(tube_runs, drawn_sims):
-            sims[k] = sim
+        sims = [drawn_sims.get(k) for k in range(len(usable))]  # None: a differential run
         for k, v in enumerate(m.theta.values()):
             v.set_value(float(internal[k]))
         _load_runs(usable, spec, place, sims)
@@ -575,12 +582,10 @@ def _mesh_check_residuals(usable, spec, t_fit, theta):
     """(The weighted residuals at ``theta`` from the adaptive integrator at MESH_CHECK_RTOL, None), or
     ((None, None), the row of a run it cannot simulate). The tube runs that differ only in feed and coolant
     conditions share one integration (models.batch), with every thermocouple position on its grid."""
-    from tubewright.models.batch import simulate_profiles
-
-    cases = [with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, theta, NUMPY)) for run, _ in usable]
-    tube = [k for k, (run, _) in enumerate(usable) if not all(is_rate(q) for q in run.measured)]
-    points = sorted({p for k in tube for p in thermocouple_points(list(usable[k][0].measured), spec.thermocouples)})
-    sims = dict(zip(tube, simulate_profiles([cases[k] for k in tube], MESH_CHECK_RTOL, points)))
+    runs = [run for run, _ in usable]
+    cases = _cases_at(runs, spec, t_fit, theta)
+    points = sorted({p for run in runs for p in thermocouple_points(list(run.measured), spec.thermocouples)})
+    sims = _simulate_tubes(runs, cases, MESH_CHECK_RTOL, points)
     r = []
     for k, (run, _) in enumerate(usable):
         names = list(run.measured)

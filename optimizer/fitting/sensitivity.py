@@ -72,28 +72,27 @@ def residual_jacobian(nlp, parameters, residuals):
     return r, out
 
 
-def _solve(a, b):
-    """a^-1 b (b dense) by one sparse LU, or None when a is singular."""
-    try:
-        lu = splu(a.tocsc())
-    except RuntimeError:
+def _implicit(values, rows, cols, shape, states, theta):
+    """d(variables)/d(theta) of the square rows J(x) = 0 in ``states`` by the implicit function theorem, from
+    the Jacobian entries ``values`` at (rows, cols) of a (rows, variables) ``shape``: the states' rows
+    -J_s^-1 J_theta, the others zero; None when the values are not finite or J_s is singular."""
+    if not np.all(np.isfinite(values)):
         return None
-    return lu.solve(b)
+    jac = sp.csr_matrix((values, (rows, cols)), shape=shape)
+    try:
+        lu = splu(jac[:, states].tocsc())
+    except RuntimeError:  # singular: the rows do not fix the states
+        return None
+    d = np.zeros((shape[1], len(theta)))
+    d[states] = -lu.solve(jac[:, theta].toarray())
+    return d
 
 
 def _sensitivities(nlp, x, theta, states):
     """dx/dtheta (every variable, parameters' rows unused) from the whole model's Jacobian, or None."""
     with np.errstate(all="ignore"):
         values = nlp._jac(x)
-    if not np.all(np.isfinite(values)):
-        return None
-    jac = sp.csr_matrix((values, (nlp.jac_rows, nlp.jac_cols)), shape=(nlp.m, nlp.n))
-    ds = _solve(jac[:, states], -jac[:, theta].toarray())
-    if ds is None:
-        return None
-    dx = np.zeros((nlp.n, len(theta)))
-    dx[states] = ds
-    return dx
+    return _implicit(values, nlp.jac_rows, nlp.jac_cols, (nlp.m, nlp.n), states, theta)
 
 
 def _compact_sensitivities(nlp, x, theta):
@@ -116,13 +115,8 @@ def _compact_sensitivities(nlp, x, theta):
         return None
     with np.errstate(all="ignore"):
         values = red.jacobian(x[red.kept])
-    if not np.all(np.isfinite(values)):
+    dy = _implicit(values, red.jac_rows, red.jac_cols, (red.m, red.n), states, kept_theta)
+    if dy is None:
         return None
-    jac = sp.csr_matrix((values, (red.jac_rows, red.jac_cols)), shape=(red.m, red.n))
-    ds = _solve(jac[:, states], -jac[:, kept_theta].toarray())
-    if ds is None:
-        return None
-    dy = np.zeros((red.n, len(theta)))
-    dy[states] = ds
     dy[kept_theta, np.arange(len(theta))] = 1.0
     return red.T @ dy

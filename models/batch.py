@@ -310,7 +310,8 @@ def _integrate_group(first, members, points, grid):
     """The profile columns of ``members`` (cases equal to ``first`` but for their sample values) from one
     integration, or None when it fails or stops (the caller simulates them one at a time)."""
     n = len(members)
-    arrays = {path: np.array([sample_values(c)[path] for c in members]) for path in sample_values(first)}
+    values = [sample_values(c) for c in members]
+    arrays = {path: np.array([v[path] for v in values]) for path in values[0]}
     case = apply(first, arrays)
     layout = StateLayout.of(first)
     ns, num, length = layout.size, first.numerics, first.tube.length

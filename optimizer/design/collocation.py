@@ -21,6 +21,7 @@ from tubewright.models.balances import axial_derivatives
 from tubewright.models.correlations import water_saturation_temperature
 from tubewright.models.state import TAIL, StateLayout
 from tubewright.optimizer.design.spec import DESIGN_KEYS, case_value
+from tubewright.optimizer.nlp.families import RowFamily, declare_family
 
 
 def _design_component(model, name, spec):
@@ -120,37 +121,56 @@ def replica_key(case) -> str:
 def build_tube_model(case, spec, nfe: int = 40, ncp: int = 3, block=None, kinetics=None, shared=None):
     """The discretised Pyomo model (without objective or limits), built into ``block`` if given (a fit
     builds one block per run, a robust design one per scenario), else into a new model. Returns (model,
-    parametrised case)."""
+    parametrised case).
+
+    The model holds every state at every point of ``m.xi`` (0, then each element's Radau points, the last
+    one 1.0) and the derivatives at the points after 0, as plain Vars. The balance rows and pyomo.dae's
+    collocation equations are built once, in ``m.element``: one finite element of length 1 / nfe on its
+    own variables, discretised by pyomo.dae; the bridge repeats its rows over the elements as a row family
+    (nlp.families), so that building and compiling hardly grow with the mesh. Its rows are evaluated by the
+    bridge only (in Pyomo they hold the template's own variables)."""
     m = pyo.ConcreteModel(name="tube") if block is None else block
     pcase = parametrised_case(m, case, spec, kinetics, shared)
     names = case.names
     m.S = pyo.Set(initialize=names, ordered=True)
-    m.xi = dae.ContinuousSet(bounds=(0.0, 1.0))
-    m.F = pyo.Var(m.S, m.xi, bounds=(0.0, None), initialize=1e-3)
-    m.T = pyo.Var(m.xi, bounds=(150.0, case.numerics.temperature_ceiling), initialize=case.feed.temperature)
-    m.P = pyo.Var(m.xi, bounds=(case.numerics.min_pressure, None), initialize=case.feed.pressure)
-    m.Tc = pyo.Var(m.xi, bounds=(100.0, None), initialize=case.coolant.temperature or case.feed.temperature)
-    m.Q = pyo.Var(m.xi, initialize=0.0)
-    m.tau = pyo.Var(m.xi, initialize=0.0)
-    m.dF = dae.DerivativeVar(m.F, wrt=m.xi)
-    m.dT = dae.DerivativeVar(m.T, wrt=m.xi)
-    m.dP = dae.DerivativeVar(m.P, wrt=m.xi)
-    m.dTc = dae.DerivativeVar(m.Tc, wrt=m.xi)
-    m.dQ = dae.DerivativeVar(m.Q, wrt=m.xi)
-    m.dtau = dae.DerivativeVar(m.tau, wrt=m.xi)
-    pyo.TransformationFactory("dae.collocation").apply_to(m, wrt=m.xi, nfe=nfe, ncp=ncp, scheme="LAGRANGE-RADAU")
-
+    e = m.element = pyo.Block()
+    e.xi = dae.ContinuousSet(bounds=(0.0, 1.0 / nfe))
+    _state_variables(e, m.S, e.xi, case)
+    for state in ("F", *TAIL):
+        e.add_component(f"d{state}", dae.DerivativeVar(getattr(e, state), wrt=e.xi))
+    pyo.TransformationFactory("dae.collocation").apply_to(e, wrt=e.xi, nfe=1, ncp=ncp, scheme="LAGRANGE-RADAU")
+    local = sorted(e.xi)  # the element's start, then its Radau points (the last one its end)
     pm = pyomo_backend()
     L = pcase.tube.length
-    points = [x for x in m.xi if x > 0.0]
-    m.ode_F = pyo.Constraint(m.S, points)
-    m.ode = pyo.Constraint(TAIL, points)
-    for x in points:
-        d = axial_derivatives(pm, pcase, [m.F[s, x] for s in names], m.T[x], m.P[x], m.Tc[x])
+    e.ode_F = pyo.Constraint(m.S, local[1:])
+    e.ode = pyo.Constraint(TAIL, local[1:])
+    for x in local[1:]:
+        d = axial_derivatives(pm, pcase, [e.F[s, x] for s in names], e.T[x], e.P[x], e.Tc[x])
         for s, rate in zip(names, d.dF):
-            m.ode_F[s, x] = m.dF[s, x] == L * rate
+            e.ode_F[s, x] = e.dF[s, x] == L * rate
         for state, rhs in d.tail.items():
-            m.ode[state, x] = getattr(m, f"d{state}")[x] == L * rhs
+            e.ode[state, x] = getattr(e, f"d{state}")[x] == L * rhs
+
+    m.element_bounds = [k / nfe for k in range(nfe + 1)]  # exact ends: the outlet is m.xi's 1.0
+    at = [[m.element_bounds[k]] + [k / nfe + t for t in local[1:-1]] + [m.element_bounds[k + 1]]
+          for k in range(nfe)]  # per element: its start and Radau points on the tube's axis
+    m.xi = pyo.Set(initialize=[0.0] + [x for points in at for x in points[1:]], ordered=True)
+    m.xi_collocation = pyo.Set(initialize=[x for points in at for x in points[1:]], ordered=True)
+    _state_variables(m, m.S, m.xi, case)
+    for state in ("F", *TAIL):
+        index = (m.S, m.xi_collocation) if state == "F" else (m.xi_collocation,)
+        m.add_component(f"d{state}", pyo.Var(*index, initialize=0.0))
+    template, instances = [], [[] for _ in range(nfe)]
+    for state in ("F", *TAIL):
+        for name, first in ((state, 0), (f"d{state}", 1)):  # a derivative has no row at the element's start
+            t_var, m_var = getattr(e, name), getattr(m, name)
+            for j, x in enumerate(local[first:], start=first):
+                for s in (names if state == "F" else (None,)):
+                    template.append(t_var[s, x] if s is not None else t_var[x])
+                    for k, chosen in enumerate(instances):
+                        chosen.append(m_var[s, at[k][j]] if s is not None else m_var[at[k][j]])
+    declare_family(m, RowFamily(e, template, instances, label="element"))
+
     N = pcase.tube.count
     m.inlet_F = pyo.Constraint(m.S, rule=lambda m, s: m.F[s, 0.0] * N == m.feed_flow[names.index(s)])
     m.inlet_T = pyo.Constraint(expr=m.T[0.0] == pcase.feed.temperature)
@@ -163,13 +183,29 @@ def build_tube_model(case, spec, nfe: int = 40, ncp: int = 3, block=None, kineti
     return m, pcase
 
 
+def _state_variables(b, species, points, case):
+    """The state variables F (per species), T, P, Tc, Q and tau of block ``b`` over ``points``."""
+    b.F = pyo.Var(species, points, bounds=(0.0, None), initialize=1e-3)
+    b.T = pyo.Var(points, bounds=(150.0, case.numerics.temperature_ceiling), initialize=case.feed.temperature)
+    b.P = pyo.Var(points, bounds=(case.numerics.min_pressure, None), initialize=case.feed.pressure)
+    b.Tc = pyo.Var(points, bounds=(100.0, None), initialize=case.coolant.temperature or case.feed.temperature)
+    b.Q = pyo.Var(points, initialize=0.0)
+    b.tau = pyo.Var(points, initialize=0.0)
+
+
+def energy_balance_rows(m) -> list:
+    """The rows of the fluid's energy balance (one per Radau point of the element template: deactivating
+    them drops the balance at every point of the tube)."""
+    return [c for (state, _), c in m.element.ode.items() if state == "T"]
+
+
 def collocation_value(m, var, xi: float):
     """The value at the normalised position ``xi`` of a state ``var`` indexed by m.xi, as its collocation
     polynomial gives it: in the finite element holding xi, the Lagrange polynomial through the element's
     start and its Radau points (a linear expression in the state variables; the exact node where xi is
     one)."""
     points = sorted(m.xi)
-    bounds = sorted(m.xi.get_finite_elements())
+    bounds = m.element_bounds
     k = max(0, min(int(np.searchsorted(bounds, xi, side="left")) - 1, len(bounds) - 2))
     start, end = bounds[k], bounds[k + 1]
     nodes = [start] + [p for p in points if start < p <= end]
@@ -250,17 +286,20 @@ def tube_scale_keys(m, case) -> tuple[dict, dict]:
     species) for a flow, its derivative and its balances, (state,) for the other states, ("feed", species)
     for the inlet flow rows (see ``scale_factor``)."""
     var, con = {}, {}
-    for (sp, x), v in m.F.items():
-        var[id(v)] = var[id(m.dF[sp, x])] = ("F", sp)
+    for name in ("F", "dF"):
+        for (sp, _), v in getattr(m, name).items():
+            var[id(v)] = ("F", sp)
     for state in TAIL:
-        for x in m.xi:
-            var[id(getattr(m, state)[x])] = var[id(getattr(m, f"d{state}")[x])] = (state,)
-    for (sp, _), c in m.ode_F.items():
+        for name in (state, f"d{state}"):
+            for v in getattr(m, name).values():
+                var[id(v)] = (state,)
+    e = m.element  # the balance rows and collocation equations of every element are its rows (nlp.families)
+    for (sp, _), c in e.ode_F.items():
         con[id(c)] = ("F", sp)
-    for (state, _), c in m.ode.items():
+    for (state, _), c in e.ode.items():
         con[id(c)] = (state,)
     for state in ("F", *TAIL):
-        for idx, c in getattr(m, f"d{state}_disc_eq").items():
+        for idx, c in getattr(e, f"d{state}_disc_eq").items():
             con[id(c)] = ("F", idx[0]) if state == "F" else (state,)
     for sp, c in m.inlet_F.items():
         con[id(c)] = ("feed", sp)

@@ -30,6 +30,7 @@ from tubewright.optimizer.design.goals import GOALS
 from tubewright.optimizer.design.outcome import LimitRow
 from tubewright.optimizer.design.spec import DESIGN_KEYS, read_design
 from tubewright.optimizer.nlp.bridge import CompiledNLP
+from tubewright.optimizer.nlp.families import origin
 from tubewright.optimizer.nlp.garbage_collection import paused_collection
 
 
@@ -277,7 +278,7 @@ class DesignProblem:
             if name in self.spec.free:
                 factors[id(comp)] = 1.0 / max(abs(comp.value), 1e-12)
         x_s = np.array([factors.get(id(v), 1.0) for v in self.nlp.variables])
-        g_s = np.array([con_factors.get(id(c), 1.0) for c in self.nlp.constraints])
+        g_s = np.array([con_factors.get(id(origin(c)), 1.0) for c in self.nlp.constraints])
         row = {id(c): i for i, c in enumerate(self.nlp.constraints)}
         for components in [self.limit_components, *(blk[2] for blk in self.scenario_blocks)]:
             for name, comp in components.items():

@@ -341,6 +341,7 @@ def _fit_model(usable, spec, t_fit, is_k, box, internal0, mesh, share_blocks):
     from tubewright.optimizer.design.spec import DesignSpec
     from tubewright.optimizer.nlp.bridge import CompiledNLP
     from tubewright.optimizer.nlp.copies import Copies
+    from tubewright.optimizer.nlp.families import origin
     from tubewright.optimizer.nlp.garbage_collection import paused_collection
 
     (low_i, up_i), (nfe, ncp) = box, mesh
@@ -396,7 +397,7 @@ def _fit_model(usable, spec, t_fit, is_k, box, internal0, mesh, share_blocks):
     n_model, m_model = nlp.model_size  # the copies' factors follow from copy_scales
     x_s, g_s = np.ones(nlp.n), np.ones(nlp.m)
     x_s[:n_model] = [x_scale.get(id(v), 1.0) for v in nlp.variables[:n_model]]
-    g_s[:m_model] = [g_scale.get(id(c), 1.0) for c in nlp.constraints[:m_model]]
+    g_s[:m_model] = [g_scale.get(id(origin(c)), 1.0) for c in nlp.constraints[:m_model]]
     for store, k, var_s, con_s in copy_scales:
         x_s[store.columns(k)], g_s[store.rows(k)] = var_s, con_s
     scaling = (1.0 / max(nlp.objective_value(), 1.0), x_s, g_s)
@@ -463,6 +464,7 @@ def _load_runs(usable, spec, place, sims):
         tube_scale_keys,
     )
     from tubewright.optimizer.design.spec import DesignSpec
+    from tubewright.optimizer.nlp.families import origin
 
     x_scale, g_scale, copy_scales = {}, {}, []
     layouts = {}  # per store: where its template's variables sit among the states, and their scale keys
@@ -488,7 +490,8 @@ def _load_runs(usable, spec, place, sims):
             layouts[id(store)] = (state_positions(b, run.case, store.variables),
                                   np.array([0.0 if v.value is None else v.value for v in store.variables]), keys,
                                   np.array([slot.get(var_keys.get(id(v)), len(keys)) for v in store.variables]),
-                                  np.array([slot.get(con_keys.get(id(c)), len(keys)) for c in store.constraints]))
+                                  np.array([slot.get(con_keys.get(id(origin(c))), len(keys))
+                                            for c in store.constraints]))
         positions, others, keys, var_slot, con_slot = layouts[id(store)]
         values = np.where(positions >= 0, flat_states(simulation_states(b, run.case, sim))[positions], others)
         store.capture(k, values)

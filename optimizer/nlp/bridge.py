@@ -7,7 +7,9 @@ Compilation, once per model:
    share a few dozen forms.
 2. One representative per form is differentiated with Pyomo's reverse symbolic differentiation (first and
    second derivatives, lower triangle); each derivative is printed with the same placeholders and compiled.
-3. Copies of a template block (nlp.copies), if asked for, join the template's forms as more members.
+3. Row families (nlp.families) repeat a template block's rows over sets of the model's variables (the
+   elements of a collocation mesh), and copies of a template block (nlp.copies), if asked for, add new
+   columns and rows: both join the template rows' forms as more members, by index arithmetic.
    Every form is then evaluated vectorised over all its members with numpy. Repeated Hessian coordinates
    are merged once, at build time, through an index for ``numpy.bincount``.
 4. The compact NLP (nlp.presolve): variables that a linear equality defines explicitly (pyomo.dae's
@@ -32,6 +34,7 @@ from pyomo.core.base.constraint import Constraint
 from pyomo.core.base.objective import Objective, maximize
 from pyomo.core.expr.calculus.derivatives import differentiate
 from tubewright.optimizer.nlp.copies import Copies, CopyStore
+from tubewright.optimizer.nlp.families import FamilyRow, families_of, origin
 from tubewright.optimizer.nlp.form_cache import FormCache
 from tubewright.optimizer.nlp.presolve import LinearElimination
 from tubewright.optimizer.nlp.pyomo_rules import install_rules
@@ -358,14 +361,20 @@ class CompiledNLP:
         self.inputs: list = []
         var_ids, input_ids = {}, {}
         groups: dict[tuple, list] = {}
+        families = families_of(model)
+        # a family template's variable is read as its instance 0's (nlp.families): it never becomes a column
+        alias = {id(t): v for fam in families for t, v in zip(fam.variables, fam.instances[0])}
 
         def global_indices(components, ids, pool):
             out = []
             for c in components:
                 k = ids.get(id(c))
                 if k is None:
-                    k = ids[id(c)] = len(pool)
-                    pool.append(c)
+                    c = alias.get(id(c), c) if pool is self.variables else c
+                    k = ids.get(id(c))
+                    if k is None:
+                        k = ids[id(c)] = len(pool)
+                        pool.append(c)
                 out.append(k)
             return out
 
@@ -437,6 +446,7 @@ class CompiledNLP:
         # the model's objective, then (nlp.copies) each template's term over its copies
         self.objective_forms = [_build_form(self.objective.expr, obj_printer, obj_source, [0], [ovars], [oinputs],
                                             cache)]
+        self._add_instances(families, var_ids, global_indices)
         self._n_real, self._m_real, self._p_real = len(self.variables), len(self.constraints), len(self.inputs)
         self.copy_stores = [self._attach(spec, cache) for spec in copies]
         self.sign = -1.0 if self.objective.sense == maximize else 1.0
@@ -457,6 +467,50 @@ class CompiledNLP:
         self._bound_exprs = None
         self._compact_problem = None  # why the last solve could not use the compact problem
 
+    def _add_instances(self, families, var_ids, global_indices):
+        """Every row family's instances beyond the first (nlp.families): new rows taking the template rows'
+        forms, their columns those of the instance's variables, appended to ``constraints`` as FamilyRow."""
+        if not families:
+            return
+        row_of = {id(c): r for r, c in enumerate(self.constraints)}
+        for fam in families:
+            t_cons = list(fam.template.component_data_objects(Constraint, active=True, descend_into=True))
+            t_rows = np.array([row_of[id(c)] for c in t_cons], dtype=np.int64)
+            count = len(fam.instances) - 1
+            if not len(t_rows) or not count:
+                continue
+            # the template's variables that its rows hold: their instance-0 columns, and every instance's
+            col0 = np.array([var_ids.get(id(v), -1) for v in fam.instances[0]], dtype=np.int64)
+            used = np.flatnonzero(col0 >= 0)
+            fixed = next((chosen[j] for chosen in fam.instances for j in used.tolist() if chosen[j].fixed), None)
+            if fixed is not None:
+                raise ValueError(f"the row family of {fam.template.name}: its instance variable {fixed.name} is "
+                                 "fixed, so its rows would not print as the template's")
+            position = np.full(len(self.variables), -1, dtype=np.int64)  # instance-0 column -> used slot
+            position[col0[used]] = np.arange(len(used))
+            cols = np.array([global_indices([chosen[j] for j in used.tolist()], var_ids, self.variables)
+                             for chosen in fam.instances[1:]], dtype=np.int64).reshape(count, len(used))
+            first_row = len(self.constraints)
+            row_local = np.full(first_row, -1, dtype=np.int64)
+            row_local[t_rows] = np.arange(len(t_rows))
+            for f in self.forms:
+                members = np.asarray(f.members, dtype=np.int64)
+                pos = np.flatnonzero(row_local[members] >= 0)
+                if not len(pos):
+                    continue
+                rows = first_row + np.arange(count)[:, None] * len(t_rows) + row_local[members[pos]]
+                t_index = f.var_index[pos]
+                slot = position[t_index]
+                new_index = np.where(slot >= 0, cols[:, np.maximum(slot, 0)], t_index)  # shared columns stay
+                f.members = np.concatenate([members, rows.reshape(-1)])
+                f.var_index = np.concatenate([f.var_index, new_index.reshape(-1, t_index.shape[1])])
+                f.input_index = np.concatenate([f.input_index, np.tile(f.input_index[pos], (count, 1))])
+            parts = [self._bound_part(r) for r in t_rows.tolist()]
+            for k in range(1, count + 1):
+                for j, c in enumerate(t_cons):
+                    self._bound_parts[len(self.constraints)] = parts[j]
+                    self.constraints.append(FamilyRow(c, k, fam.label))
+
     def _attach(self, spec: Copies, cache) -> CopyStore:
         """Add ``spec.count`` copies of the template block: new columns, inputs and rows appended to the
         pools, the template rows' forms extended with the copies' members (nlp.copies)."""
@@ -471,7 +525,7 @@ class CompiledNLP:
         own_rows = {id(c) for c in block.component_data_objects(Constraint, active=True, descend_into=True)}
         t_cols = [j for j, v in enumerate(self.variables[:self._n_real]) if id(v) in own_vars]
         t_inputs = [j for j, p in enumerate(self.inputs[:self._p_real]) if id(p) in own_inputs]
-        t_rows = [r for r, c in enumerate(self.constraints[:self._m_real]) if id(c) in own_rows]
+        t_rows = [r for r, c in enumerate(self.constraints[:self._m_real]) if id(origin(c)) in own_rows]
         if not t_rows:
             raise ValueError(f"copies of {block.name}: the template has no active constraint of the model")
         bound_parts = [self._bound_part(r) for r in t_rows]

@@ -558,3 +558,29 @@ def test_start_values_by_array_are_the_simulation_at_each_point():
             if inner:
                 assert pyo.value(getattr(m, f"d{state}")[x]) == pytest.approx(L * float(d.tail[state]), rel=1e-9,
                                                                               abs=1e-12)
+
+
+def test_a_tube_without_output_states_solves_to_the_same_profiles():
+    # The fit builds its tubes without the heat removed and the residence time (collocation.OUTPUT_STATES: no
+    # balance reads them): the square collocation system of a fixed design then has the same flows,
+    # temperatures and pressures at every point as the whole model. Invented test data (a cooled liquid tube).
+    import pyomo.environ as pyo
+    from builders import make
+    from tubewright.models.simulator import simulate
+    from tubewright.optimizer.design.collocation import OUTPUT_STATES, build_tube_model, initialise_from_simulation
+    from tubewright.optimizer.design.spec import DesignSpec
+    from tubewright.optimizer.nlp.bridge import CompiledNLP
+
+    case = make(liquid_case(**{"numerics.finite_elements": 8, "coolant": {"mode": "constant", "temperature": "340 K"},
+                               "heat_transfer": {"overall": "150 W/m^2/K"}}))
+    sim = simulate(case, checks=False)
+    profiles = []
+    for outputs in (True, False):
+        m, _ = build_tube_model(case, DesignSpec(), 8, 3, outputs=outputs)
+        assert all(hasattr(m, s) == outputs for s in OUTPUT_STATES)
+        initialise_from_simulation(m, case, sim)
+        m.goal = pyo.Objective(expr=0.0 * m.T[1.0])
+        out = CompiledNLP(m).solve(options={"tol": 1e-10})
+        assert out.success, out.message
+        profiles.append([pyo.value(v) for name in ("F", "T", "P", "Tc") for v in getattr(m, name).values()])
+    assert profiles[1] == pytest.approx(profiles[0], rel=1e-9, abs=1e-12)

@@ -118,10 +118,15 @@ def replica_key(case) -> str:
     return repr(neutral)
 
 
-def build_tube_model(case, spec, nfe: int = 40, ncp: int = 3, block=None, kinetics=None, shared=None):
+OUTPUT_STATES = ("Q", "tau")  # the heat removed and the residence time: no balance reads them
+
+
+def build_tube_model(case, spec, nfe: int = 40, ncp: int = 3, block=None, kinetics=None, shared=None,
+                     outputs: bool = True):
     """The discretised Pyomo model (without objective or limits), built into ``block`` if given (a fit
     builds one block per run, a robust design one per scenario), else into a new model. Returns (model,
-    parametrised case).
+    parametrised case). ``outputs=False`` leaves out the states of OUTPUT_STATES, for a caller that reads
+    neither (``m.tail_states`` lists the tail states built).
 
     The model holds every state at every point of ``m.xi`` (0, then each element's Radau points, the last
     one 1.0) and the derivatives at the points after 0, as plain Vars. The balance rows and pyomo.dae's
@@ -132,36 +137,38 @@ def build_tube_model(case, spec, nfe: int = 40, ncp: int = 3, block=None, kineti
     m = pyo.ConcreteModel(name="tube") if block is None else block
     pcase = parametrised_case(m, case, spec, kinetics, shared)
     names = case.names
+    m.tail_states = tail = TAIL if outputs else tuple(s for s in TAIL if s not in OUTPUT_STATES)
     m.S = pyo.Set(initialize=names, ordered=True)
     e = m.element = pyo.Block()
     e.xi = dae.ContinuousSet(bounds=(0.0, 1.0 / nfe))
-    _state_variables(e, m.S, e.xi, case)
-    for state in ("F", *TAIL):
+    _state_variables(e, m.S, e.xi, case, tail)
+    for state in ("F", *tail):
         e.add_component(f"d{state}", dae.DerivativeVar(getattr(e, state), wrt=e.xi))
     pyo.TransformationFactory("dae.collocation").apply_to(e, wrt=e.xi, nfe=1, ncp=ncp, scheme="LAGRANGE-RADAU")
     local = sorted(e.xi)  # the element's start, then its Radau points (the last one its end)
     pm = pyomo_backend()
     L = pcase.tube.length
     e.ode_F = pyo.Constraint(m.S, local[1:])
-    e.ode = pyo.Constraint(TAIL, local[1:])
+    e.ode = pyo.Constraint(tail, local[1:])
     for x in local[1:]:
         d = axial_derivatives(pm, pcase, [e.F[s, x] for s in names], e.T[x], e.P[x], e.Tc[x])
         for s, rate in zip(names, d.dF):
             e.ode_F[s, x] = e.dF[s, x] == L * rate
         for state, rhs in d.tail.items():
-            e.ode[state, x] = getattr(e, f"d{state}")[x] == L * rhs
+            if state in tail:
+                e.ode[state, x] = getattr(e, f"d{state}")[x] == L * rhs
 
     m.element_bounds = [k / nfe for k in range(nfe + 1)]  # exact ends: the outlet is m.xi's 1.0
     at = [[m.element_bounds[k]] + [k / nfe + t for t in local[1:-1]] + [m.element_bounds[k + 1]]
           for k in range(nfe)]  # per element: its start and Radau points on the tube's axis
     m.xi = pyo.Set(initialize=[0.0] + [x for points in at for x in points[1:]], ordered=True)
     m.xi_collocation = pyo.Set(initialize=[x for points in at for x in points[1:]], ordered=True)
-    _state_variables(m, m.S, m.xi, case)
-    for state in ("F", *TAIL):
+    _state_variables(m, m.S, m.xi, case, tail)
+    for state in ("F", *tail):
         index = (m.S, m.xi_collocation) if state == "F" else (m.xi_collocation,)
         m.add_component(f"d{state}", pyo.Var(*index, initialize=0.0))
     template, instances = [], [[] for _ in range(nfe)]
-    for state in ("F", *TAIL):
+    for state in ("F", *tail):
         for name, first in ((state, 0), (f"d{state}", 1)):  # a derivative has no row at the element's start
             t_var, m_var = getattr(e, name), getattr(m, name)
             for j, x in enumerate(local[first:], start=first):
@@ -175,22 +182,25 @@ def build_tube_model(case, spec, nfe: int = 40, ncp: int = 3, block=None, kineti
     m.inlet_F = pyo.Constraint(m.S, rule=lambda m, s: m.F[s, 0.0] * N == m.feed_flow[names.index(s)])
     m.inlet_T = pyo.Constraint(expr=m.T[0.0] == pcase.feed.temperature)
     m.inlet_P = pyo.Constraint(expr=m.P[0.0] == pcase.feed.pressure)
-    m.inlet_Q = pyo.Constraint(expr=m.Q[0.0] == 0.0)
-    m.inlet_tau = pyo.Constraint(expr=m.tau[0.0] == 0.0)
+    if outputs:
+        m.inlet_Q = pyo.Constraint(expr=m.Q[0.0] == 0.0)
+        m.inlet_tau = pyo.Constraint(expr=m.tau[0.0] == 0.0)
     coolant_end = 1.0 if case.coolant.kind.enters_at == "outlet" else 0.0
     tc_in = pcase.coolant.temperature if pcase.coolant.temperature is not None else pcase.feed.temperature
     m.coolant_in = pyo.Constraint(expr=m.Tc[coolant_end] == tc_in)
     return m, pcase
 
 
-def _state_variables(b, species, points, case):
-    """The state variables F (per species), T, P, Tc, Q and tau of block ``b`` over ``points``."""
+def _state_variables(b, species, points, case, tail):
+    """The state variables F (per species) and the ``tail`` states (of T, P, Tc, Q, tau) of block ``b`` over
+    ``points``."""
     b.F = pyo.Var(species, points, bounds=(0.0, None), initialize=1e-3)
     b.T = pyo.Var(points, bounds=(150.0, case.numerics.temperature_ceiling), initialize=case.feed.temperature)
     b.P = pyo.Var(points, bounds=(case.numerics.min_pressure, None), initialize=case.feed.pressure)
     b.Tc = pyo.Var(points, bounds=(100.0, None), initialize=case.coolant.temperature or case.feed.temperature)
-    b.Q = pyo.Var(points, initialize=0.0)
-    b.tau = pyo.Var(points, initialize=0.0)
+    for state in OUTPUT_STATES:
+        if state in tail:
+            b.add_component(state, pyo.Var(points, initialize=0.0))
 
 
 def energy_balance_rows(m) -> list:
@@ -238,7 +248,7 @@ def simulation_states(m, case, result) -> dict:
 
 def initialise_from_simulation(m, case, result):
     """Set every state and derivative variable from an adaptive-integrator solution of the same design."""
-    variables = [v for name in STATES for v in getattr(m, name).values()]
+    variables = [v for name in built_states(m) for v in getattr(m, name).values()]
     values = flat_states(simulation_states(m, case, result))[state_positions(m, case, variables)]
     for v, x in zip(variables, values.tolist()):
         v.set_value(x, skip_validation=True)
@@ -253,7 +263,7 @@ def state_positions(m, case, variables) -> np.ndarray:
     for name in STATES:
         offset[name] = start
         start += (len(species) if name in ("F", "dF") else 1) * len(points)
-    component = {id(getattr(m, name)): name for name in STATES}
+    component = {id(getattr(m, name)): name for name in built_states(m)}
     out = np.full(len(variables), -1, dtype=np.int64)
     for k, v in enumerate(variables):
         name = component.get(id(v.parent_component()))
@@ -263,6 +273,11 @@ def state_positions(m, case, variables) -> np.ndarray:
         elif name is not None:
             out[k] = offset[name] + points[v.index()]
     return out
+
+
+def built_states(m) -> tuple:
+    """The names of STATES that the tube model ``m`` holds (without OUTPUT_STATES when built without them)."""
+    return ("F", "dF", *m.tail_states, *(f"d{state}" for state in m.tail_states))
 
 
 def flat_states(values: dict) -> np.ndarray:
@@ -289,7 +304,7 @@ def tube_scale_keys(m, case) -> tuple[dict, dict]:
     for name in ("F", "dF"):
         for (sp, _), v in getattr(m, name).items():
             var[id(v)] = ("F", sp)
-    for state in TAIL:
+    for state in m.tail_states:
         for name in (state, f"d{state}"):
             for v in getattr(m, name).values():
                 var[id(v)] = (state,)
@@ -298,14 +313,15 @@ def tube_scale_keys(m, case) -> tuple[dict, dict]:
         con[id(c)] = ("F", sp)
     for (state, _), c in e.ode.items():
         con[id(c)] = (state,)
-    for state in ("F", *TAIL):
+    for state in ("F", *m.tail_states):
         for idx, c in getattr(e, f"d{state}_disc_eq").items():
             con[id(c)] = ("F", idx[0]) if state == "F" else (state,)
     for sp, c in m.inlet_F.items():
         con[id(c)] = ("feed", sp)
-    for c, state in ((m.inlet_T, "T"), (m.inlet_P, "P"), (m.coolant_in, "Tc"), (m.inlet_Q, "Q"),
-                     (m.inlet_tau, "tau")):
-        con[id(c)] = (state,)
+    for name, state in (("inlet_T", "T"), ("inlet_P", "P"), ("coolant_in", "Tc"), ("inlet_Q", "Q"),
+                        ("inlet_tau", "tau")):
+        if hasattr(m, name):
+            con[id(getattr(m, name))] = (state,)
     return var, con
 
 

@@ -363,7 +363,8 @@ def _fit_model(usable, spec, t_fit, is_k, box, internal0, mesh, share_blocks):
             b = templates[members[0]] = m.run[g]
             _, pcase = build_tube_model(run.case, DesignSpec(), int(nfe or run.case.numerics.finite_elements),
                                         int(ncp or run.case.numerics.collocation_points), block=b,
-                                        kinetics=kinetics_at(run.case, spec, t_fit, values, pyomo_backend()))
+                                        kinetics=kinetics_at(run.case, spec, t_fit, values, pyomo_backend()),
+                                        outputs=False)  # no measured quantity reads Q or tau
             _add_residuals(b, run, spec, pcase)
         differential = []  # the weighted residuals of the differential runs: rate laws of the parameters
         for run, sim in usable:

@@ -495,7 +495,9 @@ def _load_runs(usable, spec, place, sims):
                                             for c in store.constraints]))
         positions, others, keys, var_slot, con_slot = layouts[id(store)]
         values = np.where(positions >= 0, flat_states(simulation_states(b, run.case, sim))[positions], others)
-        store.capture(k, values)
+        # build_tube_model's variable bounds come from the case's numerics, which replica_key keeps: alike runs
+        # share them, and the copy keeps the template's
+        store.capture(k, values, bounds=False)
         factors = np.array([scale_factor(key, run.case, scales) for key in keys] + [1.0])
         copy_scales.append((store, k, factors[var_slot], factors[con_slot]))
     return x_scale, g_scale, copy_scales

@@ -71,18 +71,22 @@ class CopyStore:
                           [CopyInput(self, c, j) for c in range(k) for j in range(len(inputs))],
                           [CopyConstraint(self, c, j) for c in range(k) for j in range(len(constraints))])
 
-    def _read(self, row: int, values=None):
+    def _read(self, row: int, values=None, bounds: bool = True):
         self.x[row] = [_number(v.value) for v in self.variables] if values is None else values
-        self.lb[row], self.ub[row] = variable_bounds(self.variables)
+        if bounds:
+            self.lb[row], self.ub[row] = variable_bounds(self.variables)
         self.p[row] = [_number(value(p)) for p in self.inputs]
-        for bounds, (rows, exprs) in zip((self.g_lb, self.g_ub), self.live_bounds):
-            bounds[row, rows] = exprs.values()
+        for side, (rows, exprs) in zip((self.g_lb, self.g_ub), self.live_bounds):
+            side[row, rows] = exprs.values()
 
-    def capture(self, k: int, values=None):
+    def capture(self, k: int, values=None, bounds: bool = True):
         """The template's current inputs, variable values and bounds, and input-dependent constraint bounds,
         as copy ``k``'s (1..count). ``values``: the copy's variable values, in the order of ``variables``,
-        instead of the template's (a caller that computes them as arrays need not write them into Pyomo)."""
-        self._read(self._row(k), values)
+        instead of the template's (a caller that computes them as arrays need not write them into Pyomo).
+        ``bounds=False``: the copy keeps the variable bounds it holds (the template's when the store was
+        made, unless captured since), for a caller that changes no variable bound between copies (reading
+        them costs a Pyomo property call per variable)."""
+        self._read(self._row(k), values, bounds)
 
     @contextmanager
     def loaded(self, k: int, variables=None):

@@ -125,7 +125,7 @@ class DesignProblem:
         if not sim.columns:
             raise ComputationFailed(Reason.START_NOT_SIMULATED,
                                     f"the starting design cannot be simulated: {sim.reason}")
-        m, pcase = build_tube_model(self.case, self.spec, self.nfe, self.ncp)
+        m, pcase = build_tube_model(self.case, self.spec, self.nfe, self.ncp, outputs=False)  # no figure reads Q, tau
         for name, comp in m.design.items():
             if name in self.spec.free:
                 comp.set_value(chosen[name])
@@ -173,7 +173,7 @@ class DesignProblem:
         for k, values in enumerate(self.scenarios):
             case_k = apply(self.case, values)
             b = m.scenario[k]
-            _, pcase_k = build_tube_model(case_k, self.spec, self.nfe, self.ncp, block=b, shared=m)
+            _, pcase_k = build_tube_model(case_k, self.spec, self.nfe, self.ncp, block=b, shared=m, outputs=False)
             start_k = design_case(case_k, start)
             sim_k = simulate(start_k, checks=False)
             if not sim_k.ok:

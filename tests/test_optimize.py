@@ -167,23 +167,25 @@ def test_ideal_bound_logsdon_biegler_temperature_profile():
 
 
 def test_output_only_states_are_solved_after_ipopt():
-    # The heat removed and the residence time feed no limit of this problem, and the pressure (no rate reads
-    # it here) nothing: IPOPT solves without them (nlp.dangling) and Newton's method fills them in; the
-    # coolant temperature (held constant here) and the flow of the inert solvent S follow from their own
-    # linear rows alone, determined blocks (nlp.presolve). The reference is the same model with them inside.
+    # The heat removed and the residence time feed no figure of a design: the tube is built without them
+    # (collocation.OUTPUT_STATES). The pressure (no rate reads it here) feeds nothing: IPOPT solves without it
+    # (nlp.dangling) and Newton's method fills it in; the coolant temperature (held constant here) and the
+    # flow of the inert solvent S follow from their own linear rows alone, determined blocks (nlp.presolve).
+    # The reference is the same model with them inside.
     from tubewright.optimizer.design.ideal import free_temperature_profile
 
     p = DesignProblem(make(logsdon_biegler_data(10)))
     p.build(modify=free_temperature_profile(p))
+    assert not hasattr(p.model, "Q") and not hasattr(p.model, "tau")
     nlp = p.nlp
     cut = nlp.compact.dangling
     names = {nlp.variables[nlp.compact.kept[j]].name.split("[")[0] for j in cut.cols}
-    assert names == {"Q", "tau", "P"}
-    # all 31 points of the three: in the block, or eliminated by their inlet rows (Q = tau = 0 at the inlet)
+    assert names == {"P"}
+    # all 31 points of the pressure: in the block, or eliminated by its inlet row
     in_ipopt = {nlp.variables[j].name for j in nlp.compact.kept[np.setdiff1d(np.arange(len(nlp.compact.kept)),
                                                                              cut.cols)]}
-    assert not any(name.startswith(("Q[", "tau[", "P[")) for name in in_ipopt)
-    assert len(cut.cols) >= 3 * 30
+    assert not any(name.startswith("P[") for name in in_ipopt)
+    assert len(cut.cols) >= 30
     blocks = [nlp.variables[j].name for j in nlp.compact.block_cols]
     assert len(blocks) == 2 * (31 + 30) and {b.split("[")[0] for b in blocks} == {"Tc", "dTc", "F", "dF"}
     assert all(b.startswith(("Tc[", "dTc[", "F[S,", "dF[S,")) for b in blocks)

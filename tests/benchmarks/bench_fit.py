@@ -5,20 +5,18 @@ the number of forms against the number of runs, and the time of scipy.optimize.l
 adaptive integrator on the same problem (same start, same weighted residuals, 2-point Jacobian) with the
 ratio (the median of PAIRS interleaved pairs, with their range).
 
-Measured here (2 cores), 2026-12-03, after this session's changes (batched start and mesh-check integrations,
-sensitivities from the compact problem, no least-squares multiplier start, no multipliers of the removed
-rows), median of three pairs per line, seven runs of the script over this session's last four commits, in
-phases of the machine whose speed drifts by tens of per cent: 20 runs: ratio 5.65 (5.09-6.56), 5.23, 4.72
-(4.27-5.22), 4.59 (3.11-4.66), 4.37 (4.21-4.49), 4.23, 4.15 (3.80-4.80); fit 0.96-1.52 s, least_squares
-4.6-6.8 s; 10 runs 4.65-5.96; 5 runs 2.0-2.3. Before them (last session's code): 20 runs 3.94 (3.74-3.96), fit
-1.74 s against least_squares 6.9 s in a slow phase. At 20 runs the fit spends 0.03-0.05 s on the start
-simulations, 0.35-0.5 s building the template, loading the runs and compiling (compile 0.2-0.34: structure
-walk 0.05, presolve 0.09, Hessian structure 0.05), 0.52-0.77 s in the estimation (7 IPOPT iterations on 10,924
-variables: MUMPS about 0.3 s, our callbacks 0.12-0.18 s, cyipopt and IPOPT receiving 126,000 Jacobian and
-81,000 Hessian values per call about 0.15 s) and 0.08-0.14 s on the statistics (sensitivities 0.04, the mesh
-check's shared integration 0.04). The fit batches its integrations (models.batch.simulate_profiles: runs that
-differ only in feed and coolant conditions share one); the least_squares baseline simulates run by run with
-simulate, as a user of the simulator would.
+Measured here (2 cores), 2026-12-03, median of three interleaved pairs per line: with the runs' tubes built
+on a one-element template repeated by the bridge (nlp.families) and without the output-only states Q and tau,
+20 runs: ratio 5.36 (5.05-7.09; fit 0.86 s, least_squares 4.59 s) and 5.92 (5.78-6.27; fit 1.10 s,
+least_squares 6.53 s, a slower phase of the machine); 10 runs 8.8-9.5. Earlier the same day, before those two
+changes: 20 runs 4.15-5.65 over seven runs of the script (median 4.59), fit 0.96-1.52 s. At 20 runs the fit
+now spends 0.03-0.06 s on the start simulations, 0.14-0.22 s building the template, loading the runs and
+compiling, 0.5-0.7 s in the estimation (7 IPOPT iterations on 10,924 variables: MUMPS, our callbacks about
+0.1 s, and cyipopt and IPOPT receiving about 170,000 Jacobian and 81,000 Hessian values per call, which costs
+about 0.1 microseconds per value) and 0.06-0.1 s on the statistics (sensitivities, the mesh check's shared
+integration). The fit batches its integrations (models.batch.simulate_profiles: runs that differ only in
+feed and coolant conditions share one); the least_squares baseline simulates run by run with simulate, as a
+user of the simulator would.
 
 Run: .venv/bin/python tests/benchmarks/bench_fit.py"""
 

@@ -19,6 +19,10 @@ Measured here (2 cores, IPOPT 3.14.11, MUMPS 5.5.1 from cyipopt-wheels):
   differ by less than 25 % once the permutation is off.
 tubewright's default (models.case.Numerics) is "no permuting": MUMPS's automatic ordering and scaling with
 the permutation off, the simplest change from IPOPT's defaults that solves everything here.
+Since the balance rows are built on one element template (nlp.families, 2026-12-03: the same collocation
+coefficients in every element) and the design tube without Q and tau, IPOPT's defaults solve every size too;
+no permuting: demo 0.20/0.53/0.78/1.14 s at 15/30/60/120 elements, A -> B -> C 0.15/0.26/0.37/0.80 s at
+50/100/200/400 (the other settings within 25 %), time per element 0.6-1.3 of the smallest size.
 
 Run: .venv/bin/python tests/benchmarks/bench_linear_solver.py [--quick]"""
 

@@ -183,9 +183,13 @@ def runaway_sensitivity(case, result, resimulate, step: float = SENSITIVITY_STEP
         targets.append(("feed temperature", "feed", case.feed.temperature))
     tight = replace(case.numerics, rtol=min(case.numerics.rtol, 1e-8))
     guess = float(result.columns["Tc_K"][0])
+    centre = None  # the unmoved case at tight tolerances: one run serves every parameter
     for label, which, phi in targets:
         hot = {}
         for sign in (0, +1, -1):
+            if sign == 0 and centre is not None:
+                hot[0] = centre
+                continue
             value = phi + sign * step
             moved = replace(case, numerics=tight)
             if which == "coolant":
@@ -194,6 +198,7 @@ def runaway_sensitivity(case, result, resimulate, step: float = SENSITIVITY_STEP
                 moved = replace(moved, feed=replace(case.feed, temperature=value))
             r = resimulate(moved, coolant_guess=guess)
             hot[sign] = r.summary["max_temperature_K"] if r.ok else math.inf
+        centre = hot[0]
         code = f"runaway_sensitivity_{which}"
         if not math.isfinite(hot[0]):
             out.append(Finding(code, "warning", "the case does not reach the outlet at tight tolerances: "

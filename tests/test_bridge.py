@@ -490,6 +490,36 @@ def test_large_compact_problems_keep_their_hessian_coordinates():
     assert out.success and out.objective == pytest.approx(n, rel=1e-7)
 
 
+def test_copies_stand_ins_are_made_on_first_use_and_keep_their_identity():
+    # The copies' stand-ins (nlp.copies.StandIns) are made when read, not at compilation; a stand-in read
+    # twice is the same object, its position is computed (index), and the pools list the model's own items
+    # then each store's stand-ins copy after copy, as a list would: two templates, 3 and 2 copies.
+    from tubewright.optimizer.nlp.copies import Copies, CopyConstraint, CopyVar
+
+    t = _copied_blocks(2)
+    nlp = CompiledNLP(t, copies=[Copies(t.b[0], 3, objective_term=t.b[0].term),
+                                 Copies(t.b[1], 2, objective_term=t.b[1].term)])
+    first, second = nlp.copy_stores
+    assert all(x is None for s in (first, second) for kind in s.stand_ins for x in kind._made)
+    n_own, m_own = nlp.model_size
+    assert len(nlp.variables) == nlp.n == n_own + 3 * len(first.variables) + 2 * len(second.variables)
+    assert len(nlp.constraints) == nlp.m
+    v = nlp.variables[nlp.n - 1]
+    assert isinstance(v, CopyVar) and v.store is second and (v.k, v.j) == (1, len(second.variables) - 1)
+    assert nlp.variables[-1] is v and nlp.variables.index(v) == nlp.n - 1
+    assert second.columns(2).stop == nlp.n  # the store's own arithmetic agrees with the pool
+    c = first.instance(2, first.constraints[0])
+    assert isinstance(c, CopyConstraint) and nlp.constraints.index(c) == first.rows(2).start
+    assert nlp.constraints[first.rows(2).start] is c
+    listed = list(nlp.constraints)
+    assert len(listed) == nlp.m and listed[:m_own] == nlp.constraints[:m_own]
+    assert [x.name for x in listed[m_own:m_own + len(first.constraints)]] == [
+        f"{r.name} (copy 1)" for r in first.constraints]
+    assert nlp.constraints.index(t.b[1].first) == listed.index(t.b[1].first)
+    with pytest.raises(IndexError):
+        nlp.variables[nlp.n]
+
+
 def test_copies_refuse_a_template_outside_the_model():
     from tubewright.optimizer.nlp.copies import Copies
 

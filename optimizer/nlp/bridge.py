@@ -33,7 +33,7 @@ from pyomo.core import value
 from pyomo.core.base.constraint import Constraint
 from pyomo.core.base.objective import Objective, maximize
 from pyomo.core.expr.calculus.derivatives import differentiate
-from tubewright.optimizer.nlp.copies import Copies, CopyStore
+from tubewright.optimizer.nlp.copies import Copies, CopyStore, Pool
 from tubewright.optimizer.nlp.families import FamilyRow, families_of, origin
 from tubewright.optimizer.nlp.form_cache import FormCache
 from tubewright.optimizer.nlp.presolve import LinearElimination
@@ -448,7 +448,12 @@ class CompiledNLP:
                                             cache)]
         self._add_instances(families, var_ids, global_indices)
         self._n_real, self._m_real, self._p_real = len(self.variables), len(self.constraints), len(self.inputs)
-        self.copy_stores = [self._attach(spec, cache) for spec in copies]
+        self.copy_stores = []
+        for spec in copies:
+            self.copy_stores.append(self._attach(spec, cache))
+        self.variables, self.inputs, self.constraints = (
+            Pool(own, [s.stand_ins[kind] for s in self.copy_stores])
+            for kind, own in enumerate((self.variables, self.inputs, self.constraints)))
         self.sign = -1.0 if self.objective.sense == maximize else 1.0
         self._structure()
         self.n, self.m = len(self.variables), len(self.constraints)
@@ -529,7 +534,10 @@ class CompiledNLP:
         if not t_rows:
             raise ValueError(f"copies of {block.name}: the template has no active constraint of the model")
         bound_parts = [self._bound_part(r) for r in t_rows]
-        first_col, first_input, first_row = len(self.variables), len(self.inputs), len(self.constraints)
+        first_col, first_input, first_row = (  # the stand-ins of the stores attached so far follow the model's
+            own + sum(s.count * width(s) for s in self.copy_stores)
+            for own, width in ((self._n_real, lambda s: len(s.variables)), (self._p_real, lambda s: len(s.inputs)),
+                               (self._m_real, lambda s: len(s.constraints))))
         store = CopyStore(spec, [self.variables[j] for j in t_cols], [self.inputs[j] for j in t_inputs],
                           [self.constraints[r] for r in t_rows], bound_parts, first_col, first_input, first_row,
                           t_cols, t_rows)
@@ -551,9 +559,6 @@ class CompiledNLP:
             f.var_index = np.concatenate([f.var_index, vmap[:, f.var_index[pos]].reshape(n_new, -1)])
             f.input_index = np.concatenate([f.input_index,
                                             imap[:, f.input_index[pos]].reshape(n_new, f.input_index.shape[1])])
-        self.variables.extend(store.stand_ins[0])
-        self.inputs.extend(store.stand_ins[1])
-        self.constraints.extend(store.stand_ins[2])
         if spec.objective_term is not None:
             printer = _Printer()
             source = printer.source("value", [spec.objective_term])

@@ -26,6 +26,7 @@ but what becomes inputs and bounds (see ``optimizer.design.collocation.replica_k
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass
 
@@ -67,9 +68,8 @@ class CopyStore:
             array[1:] = array[0]  # every copy starts as the template is now
         self.variable_position = {id(v): j for j, v in enumerate(variables)}
         self.row_position = {id(c): j for j, c in enumerate(constraints)}
-        self.stand_ins = ([CopyVar(self, c, j) for c in range(k) for j in range(nv)],
-                          [CopyInput(self, c, j) for c in range(k) for j in range(len(inputs))],
-                          [CopyConstraint(self, c, j) for c in range(k) for j in range(len(constraints))])
+        self.stand_ins = (StandIns(self, CopyVar, nv), StandIns(self, CopyInput, len(inputs)),
+                          StandIns(self, CopyConstraint, len(constraints)))
 
     def _read(self, row: int, values=None, bounds: bool = True):
         self.x[row] = [_number(v.value) for v in self.variables] if values is None else values
@@ -158,6 +158,77 @@ def _set_input(p, x):
         p.set_value(x, skip_validation=True)
     else:
         p.set_value(x)
+
+
+class StandIns(Sequence):
+    """The stand-ins of one kind of a store, copy after copy (copy k's of template item j at k * width + j,
+    k counted from 0), each made on first use and kept, so that it keeps its identity: a fit of many runs
+    reads few of its hundreds of thousands."""
+
+    def __init__(self, store, cls, width: int):
+        self.store, self.cls, self.width = store, cls, width
+        self._made = [None] * (store.count * width)
+
+    def __len__(self) -> int:
+        return len(self._made)
+
+    def __getitem__(self, i):
+        if isinstance(i, slice):
+            return [self[j] for j in range(*i.indices(len(self)))]
+        made = self._made[i]  # IndexError beyond the end, as a list
+        if made is None:
+            i %= len(self._made)
+            made = self._made[i] = self.cls(self.store, *divmod(i, self.width))
+        return made
+
+    def position(self, item) -> int | None:
+        """The position of one of these stand-ins, without searching; None for anything else."""
+        if type(item) is not self.cls or item.store is not self.store:
+            return None
+        return item.k * self.width + item.j
+
+
+class Pool(Sequence):
+    """``CompiledNLP.variables``, ``inputs`` or ``constraints``: the model's own items (a list), then the
+    copies' stand-ins (StandIns of each store), as one sequence."""
+
+    def __init__(self, own: list, tails=()):
+        self.own, self.tails = own, list(tails)
+        self._len = len(own) + sum(len(t) for t in self.tails)
+
+    def __len__(self) -> int:
+        return self._len
+
+    def __getitem__(self, i):
+        if isinstance(i, slice):
+            start, stop, step = i.indices(self._len)
+            if step == 1 and stop <= len(self.own):
+                return self.own[start:stop]
+            return [self[j] for j in range(start, stop, step)]
+        if i < 0:
+            i += self._len
+        if 0 <= i < len(self.own):
+            return self.own[i]
+        i -= len(self.own)
+        for tail in self.tails:
+            if 0 <= i < len(tail):
+                return tail[i]
+            i -= len(tail)
+        raise IndexError("pool index out of range")
+
+    def __iter__(self):
+        yield from self.own
+        for tail in self.tails:
+            yield from tail
+
+    def index(self, item, *args) -> int:
+        offset = len(self.own)
+        for tail in self.tails:
+            k = tail.position(item)
+            if k is not None:
+                return offset + k
+            offset += len(tail)
+        return self.own.index(item)
 
 
 class _StandIn:

@@ -495,26 +495,37 @@ class CompiledNLP:
             position[col0[used]] = np.arange(len(used))
             cols = np.array([global_indices([chosen[j] for j in used.tolist()], var_ids, self.variables)
                              for chosen in fam.instances[1:]], dtype=np.int64).reshape(count, len(used))
-            first_row = len(self.constraints)
-            row_local = np.full(first_row, -1, dtype=np.int64)
-            row_local[t_rows] = np.arange(len(t_rows))
-            for f in self.forms:
-                members = np.asarray(f.members, dtype=np.int64)
-                pos = np.flatnonzero(row_local[members] >= 0)
-                if not len(pos):
-                    continue
-                rows = first_row + np.arange(count)[:, None] * len(t_rows) + row_local[members[pos]]
-                t_index = f.var_index[pos]
-                slot = position[t_index]
-                new_index = np.where(slot >= 0, cols[:, np.maximum(slot, 0)], t_index)  # shared columns stay
-                f.members = np.concatenate([members, rows.reshape(-1)])
-                f.var_index = np.concatenate([f.var_index, new_index.reshape(-1, t_index.shape[1])])
-                f.input_index = np.concatenate([f.input_index, np.tile(f.input_index[pos], (count, 1))])
+            def columns(t_index, slot_of=position, cols=cols):
+                slot = slot_of[t_index]
+                return np.where(slot >= 0, cols[:, np.maximum(slot, 0)], t_index)  # shared columns stay
+
+            self._extend_forms(t_rows, count, columns, lambda t_inputs, count=count: np.tile(t_inputs, (count, 1)))
             parts = [self._bound_part(r) for r in t_rows.tolist()]
             for k in range(1, count + 1):
                 for j, c in enumerate(t_cons):
                     self._bound_parts[len(self.constraints)] = parts[j]
                     self.constraints.append(FamilyRow(c, k, fam.label))
+
+    def _extend_forms(self, t_rows, count: int, columns, inputs, first_row: int | None = None):
+        """``count`` more instances of the template rows ``t_rows`` in every form that has them (the rows of a
+        family's elements, of a template's copies): instance k's rows are first_row + k * len(t_rows) + the
+        template row's position (first_row: after every row so far), their columns ``columns(t_index)`` and
+        inputs ``inputs(t_inputs)``, arrays (count, template members, width) or (count * members, width)
+        from the template members' index matrices."""
+        first_row = len(self.constraints) if first_row is None else first_row
+        row_local = np.full(first_row, -1, dtype=np.int64)
+        row_local[t_rows] = np.arange(len(t_rows))
+        for f in self.forms:
+            members = np.asarray(f.members, dtype=np.int64)
+            pos = np.flatnonzero(row_local[members] >= 0)
+            if not len(pos):
+                continue
+            rows = first_row + np.arange(count)[:, None] * len(t_rows) + row_local[members[pos]]
+            f.members = np.concatenate([members, rows.reshape(-1)])
+            n_new = rows.size
+            f.var_index = np.concatenate([f.var_index, columns(f.var_index[pos]).reshape(n_new, -1)])
+            f.input_index = np.concatenate([f.input_index,
+                                            inputs(f.input_index[pos]).reshape(n_new, f.input_index.shape[1])])
 
     def _attach(self, spec: Copies, cache) -> CopyStore:
         """Add ``spec.count`` copies of the template block: new columns, inputs and rows appended to the
@@ -546,19 +557,8 @@ class CompiledNLP:
         vmap[:, t_cols] = first_col + copy * len(t_cols) + np.arange(len(t_cols))
         imap = np.tile(np.arange(first_input, dtype=np.int64), (count, 1))
         imap[:, t_inputs] = first_input + copy * len(t_inputs) + np.arange(len(t_inputs))
-        row_local = np.full(first_row, -1, dtype=np.int64)
-        row_local[t_rows] = np.arange(len(t_rows))
-        for f in self.forms:
-            members = np.asarray(f.members, dtype=np.int64)
-            pos = np.flatnonzero(row_local[members] >= 0)
-            if not len(pos):
-                continue
-            rows = first_row + copy * len(t_rows) + row_local[members[pos]]
-            f.members = np.concatenate([members, rows.reshape(-1)])
-            n_new = count * len(pos)
-            f.var_index = np.concatenate([f.var_index, vmap[:, f.var_index[pos]].reshape(n_new, -1)])
-            f.input_index = np.concatenate([f.input_index,
-                                            imap[:, f.input_index[pos]].reshape(n_new, f.input_index.shape[1])])
+        self._extend_forms(t_rows, count, lambda t_index: vmap[:, t_index], lambda t_inputs: imap[:, t_inputs],
+                           first_row)
         if spec.objective_term is not None:
             printer = _Printer()
             source = printer.source("value", [spec.objective_term])

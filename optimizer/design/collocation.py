@@ -2,10 +2,11 @@
 xi = z / L (so that the length can be a decision variable), built from the same balance functions as the
 simulator (``models.balances.axial_derivatives`` through the Pyomo backend).
 
-States per tube: F_i(xi), T, P, Tc, Q (heat to the coolant, whole reactor), tau. For each state X:
-dX/dxi = L * f_X(state). Design quantities are Pyomo Vars when free and mutable Params when fixed; kinetic
-parameters (k_ref, E_a per reaction) and the U multiplier are mutable Params, so a study changes them and
-re-solves without rebuilding.
+States per tube: F_i(xi), T, P, Tc, Q (heat to the coolant, whole reactor), tau (Q and tau only when asked
+for: OUTPUT_STATES). For each state X: dX/dxi = L * f_X(state), written once on a one-element template that
+the bridge repeats over the elements (nlp.families). Design quantities are Pyomo Vars when free and mutable
+Params when fixed; kinetic parameters (k_ref, E_a per reaction) and the U multiplier are mutable Params, so a
+study changes them and re-solves without rebuilding.
 """
 
 from __future__ import annotations

@@ -70,3 +70,16 @@ def test_screening_defaults_are_the_same_in_a_study_on_the_command_line_and_in_p
         with pytest.raises(SystemExit):
             tw.screen(tw.load_case(DEMO / "oxidation-screen.toml"), method)
     assert seen == [(m, n) for m, n in DEFAULT_SAMPLES.items() for _ in range(2)]
+
+
+def test_the_console_command_returns_mains_exit_code_then_freezes_the_collector(monkeypatch):
+    # `tubewright` (cli.console) runs main() and, only then, moves what is alive out of the garbage
+    # collector's reach, so that interpreter exit does not traverse the models built (a fact of this project)
+    import gc
+
+    from tubewright.optimizer import cli
+
+    calls = []
+    monkeypatch.setattr(cli, "main", lambda: calls.append("main") or 3)
+    monkeypatch.setattr(gc, "freeze", lambda: calls.append("freeze"))
+    assert cli.console() == 3 and calls == ["main", "freeze"]

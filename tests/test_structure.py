@@ -167,4 +167,4 @@ def test_built_wheel_adds_only_the_tubewright_import_name(tmp_path):
     assert "tubewright/models/simulator.py" in modules and "tubewright/optimizer/nlp/bridge.py" in modules
     assert len(modules) == len(_modules())  # every module of the tree is shipped, under tubewright/
     entry = next(n for n in names if n.endswith("entry_points.txt"))
-    assert "tubewright = tubewright.optimizer.cli:main" in zipfile.ZipFile(wheel).read(entry).decode()
+    assert "tubewright = tubewright.optimizer.cli:console" in zipfile.ZipFile(wheel).read(entry).decode()

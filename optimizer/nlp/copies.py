@@ -17,8 +17,8 @@ here the template block alone is built and the bridge adds ``count`` copies of i
   at the copy). The stores are ``CompiledNLP.copy_stores``, in the order of the ``copies`` given.
 
 The rows, columns and inputs of the copies are listed in ``CompiledNLP.constraints``, ``variables`` and
-``inputs`` as light stand-ins (``CopyVar``, ``CopyInput``, ``CopyConstraint``) with the attributes the
-rest of the code reads (value, bounds, equality, name).
+``inputs`` (``Pool``s) as light stand-ins (``CopyVar``, ``CopyInput``, ``CopyConstraint``) with the
+attributes the rest of the code reads (value, bounds, equality, name), each made when first read.
 
 What makes a block a copy is the caller's promise: that the template built from the copy's data would
 print to the same forms. A caller keeps it by grouping only blocks whose construction depends on nothing
@@ -221,7 +221,7 @@ class Pool(Sequence):
         for tail in self.tails:
             yield from tail
 
-    def index(self, item, *args) -> int:
+    def index(self, item) -> int:
         offset = len(self.own)
         for tail in self.tails:
             k = tail.position(item)

@@ -136,6 +136,14 @@ def block_bdf(block: int):
     return BlockBDF
 
 
+def solve_stacked(rhs, span, y0, atol, rtol: float, events=(), first_step=None):
+    """solve_ivp of samples stacked sample after sample: ``y0`` and ``atol`` are (state, sample) arrays,
+    ``rhs`` a batch_rhs; the block BDF and the block complex-step Jacobian, dense output. Raises as solve_ivp."""
+    ns, m = y0.shape
+    return solve_ivp(rhs, span, y0.T.ravel(), method=block_bdf(ns), jac=block_jacobian(rhs, ns, m), rtol=rtol,
+                     atol=atol.T.ravel(), dense_output=True, events=list(events), first_step=first_step)
+
+
 def simulate_batch(base, values: dict, n: int, trap: float | None = None, model: BatchModel | None = None
                    ) -> BatchResult:
     """Integrate ``n`` samples of ``base`` with parameters ``values`` (path -> array of n, see
@@ -173,10 +181,8 @@ def simulate_batch(base, values: dict, n: int, trap: float | None = None, model:
 
         passed_trap.terminal, passed_trap.direction = True, -1
         try:
-            sol = solve_ivp(rhs, (z0, length), y[:, active].T.ravel(), method=block_bdf(ns),
-                            jac=block_jacobian(rhs, ns, m),
-                            rtol=num.rtol, atol=atol_all[:, active].T.ravel(), dense_output=True,
-                            events=[passed_trap], first_step=first_step)
+            sol = solve_stacked(rhs, (z0, length), y[:, active], atol_all[:, active], num.rtol, [passed_trap],
+                                first_step)
         except (ValueError, ArithmeticError, np.linalg.LinAlgError):
             sol = None
         if sol is None or sol.status == -1:
@@ -321,9 +327,7 @@ def _integrate_group(first, members, points, grid):
                          lambda y: np.max(layout.get(y.reshape(n, ns).T, "T")))
     try:
         with np.errstate(all="ignore"):
-            sol = solve_ivp(rhs, (0.0, length), y0.T.ravel(), method=block_bdf(ns), jac=block_jacobian(rhs, ns, n),
-                            rtol=num.rtol, atol=(num.atol * np.maximum(np.abs(y0), 1.0)).T.ravel(),
-                            events=events, dense_output=True)
+            sol = solve_stacked(rhs, (0.0, length), y0, num.atol * np.maximum(np.abs(y0), 1.0), num.rtol, events)
     except (ValueError, ArithmeticError, np.linalg.LinAlgError):
         return None
     if sol.status != 0:  # failed, or an event stopped it short of the outlet

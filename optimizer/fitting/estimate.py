@@ -148,6 +148,11 @@ def sigma_of(spec, name: str, measured: float) -> float:
     return value if how == "absolute" else value * max(abs(measured), 1e-300)
 
 
+def weighted_residuals(run, spec, predictions) -> list:
+    """(predicted - measured) / sigma of each measured quantity of ``run``, in the order of run.measured."""
+    return [(p - y) / sigma_of(spec, q, y) for p, (q, y) in zip(predictions, run.measured.items())]
+
+
 def is_differential(run) -> bool:
     """A run that measures formation rates only: no tube to integrate."""
     return all(is_rate(q) for q in run.measured)
@@ -369,9 +374,9 @@ def _fit_model(usable, spec, t_fit, is_k, box, internal0, mesh, share_blocks):
         differential = []  # the weighted residuals of the differential runs: rate laws of the parameters
         for run, sim in usable:
             if sim is None:
-                kinetics = kinetics_at(run.case, spec, t_fit, values, pyomo_backend())
-                differential += [(predicted_rate(pyomo_backend(), with_kinetics(run.case, kinetics), name) - y)
-                                 / sigma_of(spec, name, y) for name, y in run.measured.items()]
+                case = with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, values, pyomo_backend()))
+                differential += weighted_residuals(run, spec, [predicted_rate(pyomo_backend(), case, name)
+                                                               for name in run.measured])
         m.objective = pyo.Objective(expr=sum(b.objective_term for b in templates.values())
                                     + 0.5 * sum(r**2 for r in differential))
         copied = [members for members in groups.values() if len(members) > 1]
@@ -554,15 +559,15 @@ def _more_starts(m, nlp, usable, place, spec, t_fit, box, first, opts, scaling, 
 def _residuals_and_jacobian(usable, spec, t_fit, theta, jacobian: bool = True):
     """((weighted residuals at ``theta``, their Jacobian by central differences or None), the row of a run
     that could not be simulated or None), both from the adaptive integrator."""
-    def residuals_at(values, rtol=JACOBIAN_RTOL):
+    runs = [run for run, _ in usable]
+
+    def residuals_at(values):
         r = []
-        for run, _ in usable:
-            names = list(run.measured)
-            case = with_kinetics(run.case, kinetics_at(run.case, spec, t_fit, values, NUMPY))
-            pred, _ = simulate_predictions(case, names, spec.thermocouples, rtol)
+        for run, case in zip(runs, _cases_at(runs, spec, t_fit, values)):
+            pred, _ = simulate_predictions(case, list(run.measured), spec.thermocouples, JACOBIAN_RTOL)
             if pred is None:
                 return None, run.row
-            r.extend((p - run.measured[q]) / sigma_of(spec, q, run.measured[q]) for p, q in zip(pred, names))
+            r.extend(weighted_residuals(run, spec, pred))
         return np.array(r), None
 
     if not jacobian:  # the mesh check alone
@@ -599,5 +604,5 @@ def _mesh_check_residuals(usable, spec, t_fit, theta):
             return (None, None), run.row
         pred = (predictions_from(cases[k], names, spec.thermocouples, sims[k].columns) if k in sims else
                 [float(predicted_rate(NUMPY, cases[k], q)) for q in names])
-        r.extend((p - run.measured[q]) / sigma_of(spec, q, run.measured[q]) for p, q in zip(pred, names))
+        r.extend(weighted_residuals(run, spec, pred))
     return (np.array(r), None), None

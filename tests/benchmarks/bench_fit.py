@@ -77,7 +77,7 @@ def least_squares_fit(runs_path: Path):
             pred, _ = estimate.simulate_predictions(case, names)
             if pred is None:
                 return np.full(sum(len(r.measured) for r in runs), 1e3)
-            out += [(p - run.measured[q]) / estimate.sigma_of(spec, q, run.measured[q]) for p, q in zip(pred, names)]
+            out += estimate.weighted_residuals(run, spec, pred)
         return np.array(out)
 
     start = estimate.on_rate_constants(theta0, is_k, np.log)

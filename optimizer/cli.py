@@ -32,7 +32,7 @@ from tubewright.optimizer.output import display
 from tubewright.optimizer.output.caution import CAUTION
 from tubewright.optimizer.output.jsonsafe import finite
 from tubewright.optimizer.output.progress import Phases, ProgressBar
-from tubewright.optimizer.output.text import safe_frame
+from tubewright.optimizer.output.text import write_columns_csv
 from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES, POLICIES
 from tubewright.optimizer.study.spec import MAX_TASKS
 
@@ -107,23 +107,36 @@ def summary_lines(case, result) -> list[str]:
 
 
 def cmd_simulate(args) -> int:
-    case = load_case(args.case, _parse_sets(args.set))
-    if args.radial_points is not None and not args.radial:
-        raise option_error("--radial-points", "applies to --radial only")
+    from tubewright.optimizer.output.figures import FigureWorker
+
+    with FigureWorker(enabled=bool(args.out)) as figures:  # started first: it imports while the case loads
+        case = load_case(args.case, _parse_sets(args.set))
+        if args.radial_points is not None and not args.radial:
+            raise option_error("--radial-points", "applies to --radial only")
+        return _simulate_and_report(args, case, figures)
+
+
+def _simulate_and_report(args, case, figures) -> int:
+    from tubewright.optimizer.output.plots import plot_profiles, plot_radial
+
+    out = Path(args.out) if args.out else None
+    if out is not None:
+        out.mkdir(parents=True, exist_ok=True)
     result = verbs.simulate(case)
+    drawings = {}
+    if out is not None and result.columns:
+        drawings["plot_png"] = figures.draw(plot_profiles, case, result, out / "profiles.png")
     radial = verbs.radial_check(case, args.radial_points, one_d=result) if args.radial else None
     files = {}
-    if args.out:
-        out = Path(args.out)
-        out.mkdir(parents=True, exist_ok=True)
+    if out is not None:
         if result.columns:
             files["profiles_csv"] = str(out / "profiles.csv")
-            safe_frame(result.profiles).to_csv(files["profiles_csv"], index=False)
-            from tubewright.optimizer.output.plots import plot_profiles
-
-            files["plot_png"] = str(plot_profiles(case, result, out / "profiles.png"))
-        if radial is not None:
-            files.update(_radial_files(case, radial, out))
+            write_columns_csv(files["profiles_csv"], result.columns)
+            files["plot_png"] = str(drawings["plot_png"].result())
+        if radial is not None and radial.result.columns:
+            figure = figures.draw(plot_radial, case, radial, out)
+            files.update(_radial_tables(radial, out))
+            files.update(figure.result())
         files["summary_json"] = str(out / "summary.json")
         Path(files["summary_json"]).write_text(json.dumps(_json_answer(case, result, files, radial), indent=2)
                                                + "\n")
@@ -192,20 +205,15 @@ def radial_lines(case, check, limit=None) -> list[str]:
     return lines
 
 
-def _radial_files(case, check, out: Path) -> dict:
-    import pandas as pd
-    from tubewright.optimizer.output.plots import plot_radial
-
+def _radial_tables(check, out: Path) -> dict:
+    """The 2-D model's profiles and temperature map T(z, r) as CSV files."""
     res = check.result
-    files = {}
-    if res.columns:
-        files["radial_profiles_csv"] = str(out / "radial-profiles.csv")
-        safe_frame(pd.DataFrame(res.columns)).to_csv(files["radial_profiles_csv"], index=False)
-        grid = pd.DataFrame(res.temperature_map_K, columns=[f"T_K_at_r_{r:.6g}_m" for r in res.radius_m])
-        grid.insert(0, "z_m", res.columns["z_m"])
-        files["temperature_map_csv"] = str(out / "temperature-map.csv")
-        safe_frame(grid).to_csv(files["temperature_map_csv"], index=False)
-        files.update(plot_radial(case, check, out))
+    files = {"radial_profiles_csv": str(out / "radial-profiles.csv")}
+    write_columns_csv(files["radial_profiles_csv"], res.columns)
+    grid = {"z_m": res.columns["z_m"]}
+    grid.update((f"T_K_at_r_{r:.6g}_m", res.temperature_map_K[:, j]) for j, r in enumerate(res.radius_m))
+    files["temperature_map_csv"] = str(out / "temperature-map.csv")
+    write_columns_csv(files["temperature_map_csv"], grid)
     return files
 
 
@@ -303,11 +311,28 @@ def _optimisation_answer(case, res, files) -> dict:
 
 
 def cmd_optimize(args) -> int:
-    overrides = _parse_sets(args.set)
-    case = load_case(args.case, overrides)
+    from tubewright.optimizer.output.figures import FigureWorker
+
+    with FigureWorker(enabled=bool(args.out)) as figures:  # started first: it imports while the case loads
+        overrides = _parse_sets(args.set)
+        case = load_case(args.case, overrides)
+        return _optimize_and_report(args, case, overrides, figures)
+
+
+def _optimize_and_report(args, case, overrides, figures) -> int:
+    from tubewright.optimizer.design.problem import design_case
+    from tubewright.optimizer.output.plots import plot_front, plot_profiles, plot_robust
+
     progress = Phases(enabled=not args.json)
+    out = Path(args.out) if args.out else None
+    drawings = {}
 
     def show_optimum(res):  # the main optimum as soon as it is known; alternatives follow
+        if out is not None and res.simulation is not None and res.simulation.columns:
+            out.mkdir(parents=True, exist_ok=True)  # its figure is drawn beside the checks that follow
+            best = design_case(res.case, values_by_key(res.design))
+            drawings["plot_png"] = figures.draw(plot_profiles, best, res.simulation, out / "optimal_profiles.png",
+                                                limits=res.limits)
         if args.json:
             return
         progress.close()
@@ -321,18 +346,16 @@ def cmd_optimize(args) -> int:
     progress.close()
     extras = res.extras
     files = {}
-    if args.out:  # written for a failed optimisation too: the report says why
-        out = Path(args.out)
+    if out is not None:  # written for a failed optimisation too: the report says why
         out.mkdir(parents=True, exist_ok=True)
-        if res.simulation is not None and res.simulation.columns:
-            from tubewright.optimizer.design.problem import design_case
-            from tubewright.optimizer.output.plots import plot_profiles
-
+        if "pareto" in extras:
+            drawings["pareto_png"] = figures.draw(plot_front, case, extras["pareto"], out / "pareto.png")
+        if extras.get("robust", {}).get("verification"):
+            drawings["robust_png"] = figures.draw(plot_robust, case, extras["robust"], out / "robust.png")
+        if "plot_png" in drawings:
             files["profiles_csv"] = str(out / "optimal_profiles.csv")
-            safe_frame(res.simulation.profiles).to_csv(files["profiles_csv"], index=False)
-            best = design_case(res.case, values_by_key(res.design))
-            files["plot_png"] = str(plot_profiles(best, res.simulation, out / "optimal_profiles.png",
-                                                  limits=res.limits))
+            write_columns_csv(files["profiles_csv"], res.simulation.columns)
+            files["plot_png"] = str(drawings["plot_png"].result())
         if res.ok:
             from tubewright.optimizer.output.casewriter import write_optimum_case
 
@@ -346,14 +369,9 @@ def cmd_optimize(args) -> int:
             files["radial_case_toml"] = str(write_optimum_case(
                 out / "optimum-2d-checked.toml", res.case, tightened["design"], {**overrides, **more},
                 f"Optimum keeping its hot-spot limit in 2-D: {case.title}"))
-        if "pareto" in extras:
-            from tubewright.optimizer.output.plots import plot_front
-
-            files["pareto_png"] = str(plot_front(case, extras["pareto"], out / "pareto.png"))
-        if extras.get("robust", {}).get("verification"):
-            from tubewright.optimizer.output.plots import plot_robust
-
-            files["robust_png"] = str(plot_robust(case, extras["robust"], out / "robust.png"))
+        for label in ("pareto_png", "robust_png"):
+            if label in drawings:
+                files[label] = str(drawings[label].result())
         files["result_json"] = str(out / "optimum.json")
         Path(files["result_json"]).write_text(json.dumps(_optimisation_answer(case, res, files), indent=2) + "\n")
     if args.json:

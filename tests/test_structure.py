@@ -23,8 +23,6 @@ def _modules() -> dict:
         for path in folder.rglob("*.py"):
             rel = path.relative_to(folder).with_suffix("")
             parts = [p for p in rel.parts if p != "__init__"]
-            if package == "tubewright" and parts:
-                continue  # the top-level folder holds only the façade
             out[".".join([package, *parts])] = path
     return out
 
@@ -108,7 +106,8 @@ def _run(code: str) -> str:
 
 def test_import_is_light_and_changes_nothing_global():
     out = _run("import sys, tubewright as tw; tw.load_case; tw.CaseError; "
-               "print(sorted(m for m in ('pyomo', 'pandas', 'matplotlib', 'SALib', 'cyipopt') if m in sys.modules))")
+               "print(sorted(m for m in ('pyomo', 'pandas', 'matplotlib', 'SALib', 'cyipopt', 'scipy') "
+               "if m in sys.modules))")
     assert out == "[]"
     # importing the bridge and the plotting modules patches nothing: Pyomo's rules and matplotlib's backend stay
     out = _run("import matplotlib; before = matplotlib.get_backend(); "
@@ -137,6 +136,17 @@ def test_pyomo_import_leaves_scipy_stats_unexecuted_until_used():
     assert out == "5.0 module module"
     out = _run("import tubewright, scipy.stats as st; print('norm' in dir(st))")
     assert out == "True"
+
+
+def test_a_figure_after_pyomo_leaves_pyplot_unexecuted_until_used():
+    # Pyomo imports matplotlib.pyplot and pylab whenever matplotlib is imported; the figures need neither
+    out = _run("import sys, tubewright.optimizer.design.optimise; "
+               "from tubewright.optimizer.output.canvas import new_figure; new_figure((1, 1)).savefig('/dev/null', "
+               "format='png'); print(type(sys.modules['matplotlib.pyplot']).__name__, "
+               "type(sys.modules['matplotlib.pylab']).__name__); "
+               "import matplotlib.pyplot as plt; plt.switch_backend('agg'); fig = plt.figure(); "
+               "print(len(plt.get_fignums()), type(sys.modules['matplotlib.pyplot']).__name__)")
+    assert out.split("\n") == ["DeferredModule DeferredModule", "1 module"]
 
 
 def test_optimiser_imports_pyomo_core_and_dae_only():

@@ -5,11 +5,14 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from tubewright.deferred import defer_modules
+
 CAUTION_LINE = "Screening estimate only - verify before use."
 
 
 def new_figure(figsize):
     """A Figure with an Agg canvas attached (``fig.savefig`` then works without pyplot)."""
+    defer_modules(("matplotlib.pyplot", "matplotlib.pylab"))  # Pyomo would import them with matplotlib
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
 

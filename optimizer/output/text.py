@@ -3,6 +3,11 @@ files opened by a spreadsheet (no cell read as a formula)."""
 
 from __future__ import annotations
 
+import csv
+from pathlib import Path
+
+import numpy as np
+
 FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 
 
@@ -31,3 +36,25 @@ def safe_frame(frame):
     if not is_numeric_dtype(out.index):
         out.index = out.index.map(cell)
     return out
+
+
+def write_columns_csv(path, columns: dict) -> Path:
+    """Equal-length columns (name -> array) to a CSV file as pandas' ``DataFrame.to_csv(index=False)``
+    writes them after ``safe_frame`` (shortest round-trip floats, an empty cell for NaN, safe names and
+    text), without importing pandas: the profiles of simulate and optimize, where pandas and the pyarrow it
+    loads would be 0.4-0.5 s of each process."""
+    texts = [_column_texts(np.asarray(values)) for values in columns.values()]
+    path = Path(path)
+    with path.open("w", newline="") as handle:
+        writer = csv.writer(handle, lineterminator="\n")
+        writer.writerow([cell(str(name)) for name in columns])
+        writer.writerows(zip(*texts))
+    return path
+
+
+def _column_texts(values: np.ndarray) -> list:
+    if values.dtype.kind == "f":
+        return ["" if v != v else repr(v) for v in values.tolist()]
+    if values.dtype.kind in "iub":
+        return [str(v) for v in values.tolist()]
+    return [cell(v) if isinstance(v, str) else ("" if v is None else str(v)) for v in values.tolist()]

@@ -166,22 +166,22 @@ def test_dask_cluster_on_loopback_gives_the_local_results(tmp_path):
 class _Collector(HTMLParser):
     def __init__(self):
         super().__init__()
-        self.rows, self.images, self.stack = 0, 0, []
+        self.rows, self.charts, self.stack = 0, 0, []
 
     def handle_starttag(self, tag, attrs):
         if tag not in ("img", "meta", "br"):
             self.stack.append(tag)
         if tag == "tr":
             self.rows += 1
-        if tag == "img" and dict(attrs).get("src", "").startswith("data:image/png;base64,"):
-            self.images += 1
+        if tag == "svg":
+            self.charts += 1
 
     def handle_endtag(self, tag):
         assert self.stack and self.stack[-1] == tag, f"unbalanced </{tag}>"
         self.stack.pop()
 
 
-def test_report_is_valid_html_with_plots_and_every_task(tmp_path):
+def test_report_is_valid_html_with_charts_and_every_task(tmp_path):
     path = write_study(tmp_path, SWEEP)
     run_study(path, tmp_path / "r", workers=2, progress=False)
     files = report(tmp_path / "r")
@@ -190,6 +190,48 @@ def test_report_is_valid_html_with_plots_and_every_task(tmp_path):
     parser.feed(page)
     assert not parser.stack
     assert parser.rows == 1 + 7  # header + every study entry
-    assert parser.images >= 1 and "Screening estimate only" in page
+    assert parser.charts >= 1 and "Screening estimate only" in page
     assert "http://" not in page and "https://" not in page  # opens offline
     assert main(["status", str(tmp_path / "r")]) == 0
+
+
+def test_report_charts_come_from_the_summaries_without_pandas_pyarrow_or_matplotlib(tmp_path, monkeypatch):
+    body = f"""
+[[task]]
+name = "cheapest"
+kind = "optimize"
+case = "{DEMO / "oxidation-design.toml"}"
+
+[[task]]
+name = "front"
+kind = "pareto"
+case = "{DEMO / "oxidation-design.toml"}"
+points = 2
+"""
+    run_study(write_study(tmp_path, body), tmp_path / "r", workers=2, progress=False)
+    import pyarrow.parquet as pq
+    from tubewright.optimizer.study import report as report_module
+
+    rows, _ = report_module.read_store(tmp_path / "r")
+    for row, key, table in ((rows[0], "figure_profile", "profiles"), (rows[1], "front", "front")):
+        stored = pq.read_table(tmp_path / "r" / row["tables"][table]).to_pydict()
+        assert row["summary"][key] == {name: stored[name] for name in row["summary"][key]}
+    code = ("import sys; from tubewright.optimizer.cli import main; main(['report', sys.argv[1]]); "
+            "print(sorted(m for m in ('pandas', 'pyarrow', 'matplotlib', 'pint') if m in sys.modules))")
+    out = subprocess.run([sys.executable, "-c", code, str(tmp_path / "r")], capture_output=True, text=True,
+                         check=True).stdout
+    assert out.strip().endswith("[]")
+    page = (tmp_path / "r" / "report.html").read_text()
+    assert "Optimum: cheapest" in page and "Pareto front: front" in page
+
+    real = report_module.read_store
+
+    def without_figure_data(folder):  # a folder written before the summaries carried the charts' data
+        rows, meta = real(folder)
+        for row in rows:
+            row["summary"].pop("figure_profile", None), row["summary"].pop("front", None)
+        return rows, meta
+
+    monkeypatch.setattr(report_module, "read_store", without_figure_data)
+    report(tmp_path / "r", tmp_path / "from-parquet.html")
+    assert (tmp_path / "from-parquet.html").read_text() == page

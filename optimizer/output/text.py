@@ -43,18 +43,32 @@ def write_columns_csv(path, columns: dict) -> Path:
     writes them after ``safe_frame`` (shortest round-trip floats, an empty cell for NaN, safe names and
     text), without importing pandas: the profiles of simulate and optimize, where pandas and the pyarrow it
     loads would be 0.4-0.5 s of each process."""
-    texts = [_column_texts(np.asarray(values)) for values in columns.values()]
+    texts = [[_cell_text(v) for v in np.asarray(values).tolist()] for values in columns.values()]
+    return _write_csv(path, [cell(str(name)) for name in columns], zip(*texts))
+
+
+def write_records_csv(path, records: list) -> Path:
+    """Rows given as dicts to a CSV file, one column per key (in the order the keys first appear), an empty
+    cell where a row has no value; cells as in ``write_columns_csv``."""
+    names = list(dict.fromkeys(key for record in records for key in record))
+    rows = ([_cell_text(record.get(name)) for name in names] for record in records)
+    return _write_csv(path, [cell(str(name)) for name in names], rows)
+
+
+def _write_csv(path, header, rows) -> Path:
     path = Path(path)
     with path.open("w", newline="") as handle:
         writer = csv.writer(handle, lineterminator="\n")
-        writer.writerow([cell(str(name)) for name in columns])
-        writer.writerows(zip(*texts))
+        writer.writerow(header)
+        writer.writerows(rows)
     return path
 
 
-def _column_texts(values: np.ndarray) -> list:
-    if values.dtype.kind == "f":
-        return ["" if v != v else repr(v) for v in values.tolist()]
-    if values.dtype.kind in "iub":
-        return [str(v) for v in values.tolist()]
-    return [cell(v) if isinstance(v, str) else ("" if v is None else str(v)) for v in values.tolist()]
+def _cell_text(value) -> str:
+    if value is None:
+        return ""
+    if isinstance(value, float):
+        return "" if value != value else repr(value)
+    if isinstance(value, str):
+        return cell(value)
+    return str(value)

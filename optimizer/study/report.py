@@ -1,17 +1,16 @@
 """`tubewright status` and `tubewright report`: what a study folder holds, and one self-contained HTML
-report (plots embedded as PNG data, no network needed) plus tables for pandas."""
+report (charts embedded as SVG, no network needed) plus a table of the tasks as CSV."""
 
 from __future__ import annotations
 
-import base64
 import html
-import io
+import re
 from pathlib import Path
 
 from tubewright.models.outcomes import Status
-from tubewright.optimizer.output.canvas import new_figure
+from tubewright.optimizer.output import svg
 from tubewright.optimizer.output.caution import CAUTION
-from tubewright.optimizer.output.text import plain, safe_frame
+from tubewright.optimizer.output.text import write_records_csv
 from tubewright.optimizer.study.store import Store
 
 KEY_FIELDS = ("conversion", "product_selectivity", "max_temperature_K", "pressure_drop_Pa", "production_rate_mol_s")
@@ -36,24 +35,44 @@ def status(folder) -> dict:
                       for r in rows]}
 
 
-def _png(fig) -> str:
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=90)
-    return f'<img alt="plot" src="data:image/png;base64,{base64.b64encode(buf.getvalue()).decode()}">'
+def _figure_data(folder: Path, row, key: str, table: str, names) -> dict | None:
+    """The columns ``names`` of a figure: from the task's summary (written there for the report since the
+    summaries carry them), else from its Parquet table (folders of earlier versions); None without either."""
+    data = row["summary"].get(key)
+    if data is not None:
+        return data
+    if table not in row["tables"]:
+        return None
+    import pyarrow.parquet as pq
+
+    return pq.read_table(folder / row["tables"][table], columns=list(names)).to_pydict()
 
 
-def _number(text):
+def _axis_values(values) -> tuple[list[float], str]:
+    """Swept values (numbers or "number unit" texts) as numbers and the axis unit: the values as written
+    when they share one unit; else each converted to the first one's unit (pint, only then: it costs 0.1 s)."""
+    parsed = [_split(v) for v in values]
+    units = {p[1] for p in parsed if p is not None}
+    if None not in parsed and len(units) == 1:
+        return [p[0] for p in parsed], units.pop()
     from tubewright.models.units import registry
 
-    if isinstance(text, (int, float)):
-        return float(text), ""
-    q = registry().Quantity(text)
-    return float(q.magnitude), f"{q.units:~}"
+    quantities = [registry().Quantity(v) for v in values]
+    first = quantities[0].units
+    return [float(q.to(first).magnitude) for q in quantities], f"{first:~}"
+
+
+_QUANTITY = re.compile(r"\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
+
+
+def _split(value):
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        return float(value), ""
+    match = _QUANTITY.fullmatch(str(value))
+    return (float(match.group(1)), match.group(2)) if match else None
 
 
 def report(folder, out: Path | None = None) -> dict:
-    import pandas as pd
-
     folder = Path(folder)
     rows, meta = read_store(folder)
     out = Path(out) if out else folder / "report.html"
@@ -77,61 +96,43 @@ def report(folder, out: Path | None = None) -> dict:
             groups.setdefault(r["group"], []).append(r)
     for name, members in groups.items():
         key = next(iter(members[0]["swept"]))
-        xs, unit = zip(*(_number(m["swept"][key]) for m in members))
-        fig = new_figure((12, 3.4))
-        axes = fig.subplots(1, 3)
-        for ax, field in zip(axes, ("max_temperature_K", "conversion", "pressure_drop_Pa")):
-            ys = [m["summary"].get(field) for m in members]
-            ax.plot(xs, ys, "o")
-            ax.set_xlabel(plain(f"{key} [{unit[0]}]" if unit[0] else key))
-            ax.set_ylabel(field)
-        fig.suptitle(plain(f"sweep: {name}"), fontsize=9)
-        fig.tight_layout()
-        parts.append(f"<h2>Sweep: {html.escape(name)}</h2>" + _png(fig))
+        xs, unit = _axis_values([m["swept"][key] for m in members])
+        xlabel = f"{key} [{unit}]" if unit else key
+        charts = [svg.chart([{"x": xs, "y": [m["summary"].get(field) for m in members], "mark": "points"}],
+                            xlabel=xlabel, ylabel=field, width=360)
+                  for field in ("max_temperature_K", "conversion", "pressure_drop_Pa")]
+        parts.append(f"<h2>Sweep: {html.escape(name)}</h2><div class='row'>{''.join(charts)}</div>")
     for r in rows:
         if r["status"] != Status.DONE:
             continue
-        if r["kind"] in ("optimize", "simulate") and "profiles" in r["tables"] and r["kind"] == "optimize":
-            prof = pd.read_parquet(folder / r["tables"]["profiles"])
-            fig = new_figure((6, 3.2))
-            ax = fig.subplots()
-            ax.plot(prof["z_m"], prof["T_K"], label="fluid")
-            ax.plot(prof["z_m"], prof["Tc_K"], "--", label="coolant")
-            for lim in r["summary"].get("limits", []):
-                if lim["limit"] == "max_temperature":
-                    ax.axhline(lim["bound"], color="red", ls=":", label="limit")
-            ax.set_xlabel("z [m]")
-            ax.set_ylabel("T [K]")
-            ax.legend(fontsize=7)
-            fig.tight_layout()
-            design = ", ".join(f"{k}={v:.5g}" for k, v in r["summary"].get("design", {}).items())
-            parts.append(f"<h2>Optimum: {html.escape(r['name'])}</h2><p>{html.escape(design)}</p>" + _png(fig))
-        if r["kind"] == "pareto" and "front" in r["tables"]:
-            front = pd.read_parquet(folder / r["tables"]["front"])
-            fig = new_figure((5, 3.2))
-            ax = fig.subplots()
-            ax.plot(front["selectivity"], front["annual_cost_per_year"], "o-")
-            ax.set_xlabel("selectivity")
-            ax.set_ylabel("annual cost per year")
-            fig.tight_layout()
-            parts.append(f"<h2>Pareto front: {html.escape(r['name'])}</h2>" + _png(fig))
+        if r["kind"] == "optimize":
+            prof = _figure_data(folder, r, "figure_profile", "profiles", ("z_m", "T_K", "Tc_K"))
+            if prof is not None:
+                limits = [(lim["bound"], "limit") for lim in r["summary"].get("limits", [])
+                          if lim["limit"] == "max_temperature"]
+                chart = svg.chart([{"x": prof["z_m"], "y": prof["T_K"], "label": "fluid"},
+                                   {"x": prof["z_m"], "y": prof["Tc_K"], "label": "coolant", "dash": True}],
+                                  xlabel="z [m]", ylabel="T [K]", hlines=limits, width=520)
+                design = ", ".join(f"{k}={v:.5g}" for k, v in r["summary"].get("design", {}).items())
+                parts.append(f"<h2>Optimum: {html.escape(r['name'])}</h2><p>{html.escape(design)}</p>" + chart)
+        if r["kind"] == "pareto":
+            front = _figure_data(folder, r, "front", "front", ("selectivity", "annual_cost_per_year"))
+            if front is not None:
+                chart = svg.chart([{"x": front["selectivity"], "y": front["annual_cost_per_year"], "mark": "both"}],
+                                  xlabel="selectivity", ylabel="annual cost per year", width=440)
+                parts.append(f"<h2>Pareto front: {html.escape(r['name'])}</h2>" + chart)
         if r["kind"] == "screen":
             indices = r["summary"].get("indices", {})
             tables = [(k, v) for k, v in indices.items() if "note" not in v]
             if tables:
-                fig = new_figure((3.2 * len(tables), 3.2))
-                axes = fig.subplots(1, len(tables), squeeze=False)
                 key = "ST" if r["summary"].get("method") == "sobol" else "mu_star"
-                for ax, (name, idx) in zip(axes[0], tables):
-                    ax.barh([plain(f) for f in idx], [v.get(key) or 0.0 for v in idx.values()])
-                    ax.set_title(plain(f"{name} ({key})"), fontsize=8)
-                    ax.tick_params(labelsize=7)
-                fig.tight_layout()
-                parts.append(f"<h2>Screening: {html.escape(r['name'])}</h2>" + _png(fig))
+                charts = [svg.bars(list(idx), [v.get(key) or 0.0 for v in idx.values()], title=f"{name} ({key})")
+                          for name, idx in tables]
+                parts.append(f"<h2>Screening: {html.escape(r['name'])}</h2><div class='row'>{''.join(charts)}</div>")
     style = ("body{font-family:sans-serif;margin:2em;max-width:1100px}table{border-collapse:collapse;font-size:12px}"
              "td,th{border:1px solid #bbb;padding:3px 6px}.caution{background:#fff3cd;padding:8px}"
-             ".done{color:#060}.failed,.error,.timeout,.stopped{color:#a00}img{max-width:100%}"
-             "@media print{img{page-break-inside:avoid}}")
+             ".done{color:#060}.failed,.error,.timeout,.stopped{color:#a00}svg{max-width:100%;height:auto}"
+             ".row{display:flex;flex-wrap:wrap;gap:8px}@media print{svg{page-break-inside:avoid}}")
     page = (f"<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'><title>{html.escape(meta.get('title', ''))}"
             f"</title><style>{style}</style></head><body>{''.join(parts)}</body></html>\n")
     out.write_text(page, encoding="utf-8")
@@ -142,5 +143,5 @@ def report(folder, out: Path | None = None) -> dict:
                      "reason": r["reason"], "seconds": r["seconds"],
                      **{k: r["summary"].get(k) for k in KEY_FIELDS if not isinstance(r["summary"].get(k), dict)},
                      **{f"swept {k}": v for k, v in r["swept"].items()}})
-    safe_frame(pd.DataFrame(flat)).to_csv(tasks_csv, index=False)
+    write_records_csv(tasks_csv, flat)
     return {"report_html": str(out), "tasks_csv": str(tasks_csv), "tasks": len(rows)}

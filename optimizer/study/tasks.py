@@ -70,10 +70,14 @@ def _run(spec) -> dict:
     if kind == "optimize":
         res = verbs.optimize(case, ideal=opts.get("ideal", False), starts=opts.get("starts") or None,
                              seed=opts.get("seed", 0))
-        tables = {"profiles": res.simulation.columns} if res.simulation is not None else {}
+        tables, summary = {}, res.as_dict()
+        if res.simulation is not None and res.simulation.columns:
+            tables["profiles"] = res.simulation.columns
+            # the report's figure, so that it needs no Parquet reader
+            summary["figure_profile"] = {k: res.simulation.columns[k] for k in ("z_m", "T_K", "Tc_K")}
         done = res.status in (Status.OPTIMAL, Status.NOT_OPTIMISED)
         return {"status": Status.DONE if done else res.status, "reason_code": res.reason_code,
-                "reason": res.reason, "summary": res.as_dict(), "tables": tables}
+                "reason": res.reason, "summary": summary, "tables": tables}
     if kind == "robust":
         res = verbs.optimize(case, seed=opts["seed"], scenarios=opts["scenarios"],
                              verify_samples=opts["verify_samples"])
@@ -102,7 +106,8 @@ def _run(spec) -> dict:
                 "reason": "front traced" if ok else f"{len(apart)} of {len(pts) + len(apart)} points did not converge "
                 "(kept out of the front)",
                 "summary": {"cheapest": front["cheapest"], "most_selective": front["most_selective"],
-                            "not_converged": apart},
+                            "not_converged": apart, "front": {k: table[k] for k in ("selectivity",
+                                                                                   "annual_cost_per_year")}},
                 "tables": {"front": table}}
     if kind == "screen":
         res = verbs.screen(case, opts["method"], opts["samples"], opts["seed"], opts["policy"], workers=1)

@@ -12,6 +12,7 @@ $(STAMP): pyproject.toml
 	test -d $(VENV) || $(PYTHON) -m venv $(VENV)
 	$(BIN)/python -m pip install --quiet --upgrade pip
 	$(BIN)/python -m pip install --quiet -e '.[test]'
+	$(BIN)/python -m compileall -q tubewright models optimizer  # as a wheel install would (every verb is a process)
 	touch $(STAMP)
 
 demo: $(STAMP)

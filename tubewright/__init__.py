@@ -17,15 +17,8 @@ The folders ``models/`` (physics) and ``optimizer/`` (design, screening, studies
 from __future__ import annotations
 
 from importlib import import_module
-from importlib.metadata import PackageNotFoundError, version
 
 from tubewright.deferred import defer_modules
-
-try:
-    __version__ = version("tubewright")
-except PackageNotFoundError:  # pragma: no cover - running from a source tree that was never installed
-    __version__ = "0+unknown"
-
 
 # Pyomo imports scipy.stats and scipy.spatial whenever scipy is imported (see tubewright.deferred)
 defer_modules(("scipy.stats", "scipy.spatial"))
@@ -51,7 +44,20 @@ _PUBLIC = {
 __all__ = ["__version__", *_PUBLIC]
 
 
+def _version() -> str:
+    """The installed distribution's version (read on first use: importlib.metadata costs 25-40 ms)."""
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("tubewright")
+    except PackageNotFoundError:  # pragma: no cover - running from a source tree that was never installed
+        return "0+unknown"
+
+
 def __getattr__(name: str):
+    if name == "__version__":
+        globals()[name] = value = _version()
+        return value
     try:
         module, attribute = _PUBLIC[name]
     except KeyError:

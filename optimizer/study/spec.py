@@ -32,7 +32,7 @@ from tubewright.models.errors import CaseError, suggest
 from tubewright.models.units import parse, to_si
 from tubewright.optimizer.screening.analysis import DEFAULT_SAMPLES, METHODS, POLICIES, check_samples
 
-from tubewright import __version__
+import tubewright
 
 MAX_SWEEP = 100_000  # points of one Latin hypercube
 MAX_TASKS = 100_000  # concrete tasks of one study, unless raised (--max-tasks)
@@ -72,7 +72,7 @@ class Study:
 
 
 def task_identity(kind, options, case_data) -> str:
-    payload = json.dumps({"kind": kind, "options": options, "case": case_data, "version": __version__},
+    payload = json.dumps({"kind": kind, "options": options, "case": case_data, "version": tubewright.__version__},
                          sort_keys=True, default=str)
     return hashlib.sha256(payload.encode()).hexdigest()[:20]
 

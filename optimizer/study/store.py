@@ -12,7 +12,7 @@ from pathlib import Path
 from tubewright.models.errors import CaseError
 from tubewright.optimizer.output.jsonsafe import finite
 
-from tubewright import __version__
+import tubewright
 
 SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
@@ -138,8 +138,8 @@ class Store:
             pq.write_table(pa.table({k: list(v) if not hasattr(v, "dtype") else v for k, v in columns.items()}), tmp)
             tmp.replace(path)
             files[name] = str(path.relative_to(self.folder))
-        provenance = {"inputs_hash": task.task_id, "tubewright": __version__, "python": platform.python_version(),
-                      "seed": task.options.get("seed"), "host": platform.node()}
+        provenance = {"inputs_hash": task.task_id, "tubewright": tubewright.__version__,
+                      "python": platform.python_version(), "seed": task.options.get("seed"), "host": platform.node()}
         with self.conn:
             self.conn.execute(
                 "UPDATE tasks SET status = ?, reason_code = ?, reason = ?, summary_json = ?, tables_json = ?, "

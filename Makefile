@@ -35,6 +35,7 @@ test: lint
 	$(BIN)/pytest -q
 
 bench: $(STAMP)
+	$(BIN)/python tests/benchmarks/bench_startup.py
 	$(BIN)/python tests/benchmarks/bench_simulate.py
 	$(BIN)/python tests/benchmarks/bench_optimize.py
 	$(BIN)/python -m pip install -q -e ".[bench]"

@@ -120,14 +120,18 @@ class FigureWorker:
         return False
 
 
-def _warm_up() -> None:
+def _warm_up(channel) -> None:
     """Everything a first figure pays once, paid before the first task arrives: the plotting modules,
-    matplotlib's figure, axes, text and Agg canvas, the font, a PNG written (to memory)."""
+    matplotlib's figure, axes, text and Agg canvas, the font, a PNG written (to memory). The drawing is
+    skipped when a task is already waiting (a short verb): that figure pays it instead."""
     import io
+    import select
 
     import tubewright.optimizer.output.plots  # noqa: F401
     from tubewright.optimizer.output.canvas import new_figure
 
+    if select.select([channel], [], [], 0.0)[0]:
+        return
     fig = new_figure((2.0, 2.0))
     ax = fig.subplots()
     ax.plot([0.0, 1.0], [0.0, 1.0], label="warm-up")
@@ -145,7 +149,7 @@ def serve() -> None:
     channel_out = os.fdopen(os.dup(1), "wb")
     os.dup2(2, 1)  # whatever the figures print goes to standard error, never into the answers
     sys.stdout = sys.stderr
-    _warm_up()
+    _warm_up(channel_in)
     while True:
         try:
             fn, args, kwargs = pickle.load(channel_in)

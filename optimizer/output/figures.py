@@ -130,8 +130,11 @@ def _warm_up(channel) -> None:
     import tubewright.optimizer.output.plots  # noqa: F401
     from tubewright.optimizer.output.canvas import new_figure
 
-    if select.select([channel], [], [], 0.0)[0]:
-        return
+    try:
+        if select.select([channel], [], [], 0.0)[0]:
+            return
+    except (OSError, ValueError):  # pipes cannot be polled on Windows: warm up anyway
+        pass
     fig = new_figure((2.0, 2.0))
     ax = fig.subplots()
     ax.plot([0.0, 1.0], [0.0, 1.0], label="warm-up")

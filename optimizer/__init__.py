@@ -7,4 +7,5 @@ study/      study files, tasks, the results store, runners, status and HTML repo
 output/     plots, progress, JSON safety, cautions (presentation only)
 verbs.py    one function per verb, called by the command line and by study tasks
 cli.py      argument parsing and printing only
+command.py  the installed `tubewright` command around cli.main (thread defaults, gc.freeze)
 """

@@ -774,18 +774,5 @@ def main(argv=None) -> int:
         return EXIT_BUG
 
 
-def console() -> int:
-    """The ``tubewright`` command: ``main()``, after which the process ends. What is still alive then is
-    moved out of the garbage collector's reach first (gc.freeze): the last collection at interpreter exit
-    would otherwise traverse every object of the models built (0.15-0.25 s after an optimisation of the demo)
-    for memory the operating system reclaims anyway. Every file and store is closed by then, and atexit and
-    weakref.finalize callbacks still run. Tests call ``main()``, which leaves the collector alone."""
-    import gc
-
-    code = main()
-    gc.freeze()
-    return code
-
-
-if __name__ == "__main__":
-    sys.exit(console())
+if __name__ == "__main__":  # the installed command is optimizer.command.console (thread defaults, gc.freeze)
+    sys.exit(main())

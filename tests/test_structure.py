@@ -89,7 +89,7 @@ def test_optimizer_rooms_hold_their_jobs_and_models_never_import_optimizer():
     rooms = {p.name for p in (ROOT / "optimizer").iterdir() if p.is_dir() and not p.name.startswith("_")}
     assert rooms >= {"nlp", "design", "screening", "study", "output"}
     flat = {p.name for p in (ROOT / "optimizer").glob("*.py")}
-    assert flat == {"__init__.py", "cli.py", "verbs.py", "processes.py"}
+    assert flat == {"__init__.py", "cli.py", "command.py", "verbs.py", "processes.py"}
     for name, path in _modules().items():
         if name.startswith("tubewright.models"):
             for module, _, _ in _top_level_imports(name, path):
@@ -181,4 +181,4 @@ def test_built_wheel_adds_only_the_tubewright_import_name(tmp_path):
     assert "tubewright/models/simulator.py" in modules and "tubewright/optimizer/nlp/bridge.py" in modules
     assert len(modules) == len(_modules())  # every module of the tree is shipped, under tubewright/
     entry = next(n for n in names if n.endswith("entry_points.txt"))
-    assert "tubewright = tubewright.optimizer.cli:console" in zipfile.ZipFile(wheel).read(entry).decode()
+    assert "tubewright = tubewright.optimizer.command:console" in zipfile.ZipFile(wheel).read(entry).decode()

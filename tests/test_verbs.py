@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 
 import pytest
 from builders import DEMO
@@ -73,13 +74,26 @@ def test_screening_defaults_are_the_same_in_a_study_on_the_command_line_and_in_p
 
 
 def test_the_console_command_returns_mains_exit_code_then_freezes_the_collector(monkeypatch):
-    # `tubewright` (cli.console) runs main() and, only then, moves what is alive out of the garbage
+    # `tubewright` (command.console) runs main() and, only then, moves what is alive out of the garbage
     # collector's reach, so that interpreter exit does not traverse the models built (a fact of this project)
     import gc
 
-    from tubewright.optimizer import cli
+    from tubewright.optimizer import cli, command
 
     calls = []
     monkeypatch.setattr(cli, "main", lambda: calls.append("main") or 3)
     monkeypatch.setattr(gc, "freeze", lambda: calls.append("freeze"))
-    assert cli.console() == 3 and calls == ["main", "freeze"]
+    monkeypatch.setenv("OMP_NUM_THREADS", "2")  # the user's choice stands
+    monkeypatch.delenv("OPENBLAS_NUM_THREADS", raising=False)
+    assert command.console() == 3 and calls == ["main", "freeze"]
+    assert os.environ["OMP_NUM_THREADS"] == "2" and os.environ["OPENBLAS_NUM_THREADS"] == "1"
+
+
+def test_the_command_sets_its_thread_defaults_before_numpy_loads():
+    import subprocess
+    import sys
+
+    out = subprocess.run([sys.executable, "-c", "import sys, tubewright.optimizer.command; "
+                          "print(sorted(m for m in ('numpy', 'tubewright.optimizer.cli') if m in sys.modules))"],
+                         capture_output=True, text=True, check=True).stdout
+    assert out.strip() == "[]"

@@ -189,7 +189,13 @@ def simulate(case, checks: bool = True, coolant_guess: float | None = None, poin
     sol = integrate(case, tc_start)
     status, code, reason = stop_reason(case, sol)
     result = build_result(case, sol, status, code, reason, t0, points, grid)
-    if checks and result.summary:
+    return add_checks(case, result) if checks else result
+
+
+def add_checks(case, result: SimulationResult) -> SimulationResult:
+    """The validity and safety findings of a simulated case, added to its result (none without a summary:
+    nothing was integrated); their time in ``timings["checks_s"]``."""
+    if result.summary:
         t1 = time.perf_counter()
         result.findings = run_checks(case, result, partial(simulate, checks=False))
         result.timings["checks_s"] = time.perf_counter() - t1

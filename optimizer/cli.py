@@ -122,10 +122,13 @@ def _simulate_and_report(args, case, figures) -> int:
     out = Path(args.out) if args.out else None
     if out is not None:
         out.mkdir(parents=True, exist_ok=True)
-    result = verbs.simulate(case)
     drawings = {}
-    if out is not None and result.columns:
-        drawings["plot_png"] = figures.draw(plot_profiles, case, result, out / "profiles.png")
+
+    def draw_profiles(result):  # drawn in the other process while the checks re-simulate
+        if out is not None and result.columns:
+            drawings["plot_png"] = figures.draw(plot_profiles, case, result, out / "profiles.png")
+
+    result = verbs.simulate(case, on_profiles=draw_profiles)
     radial = verbs.radial_check(case, args.radial_points, one_d=result) if args.radial else None
     files = {}
     if out is not None:

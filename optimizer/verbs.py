@@ -22,9 +22,17 @@ DEFAULT_MAX_HOURS = 2.0  # a screening estimated to take longer is refused unles
 PROBE_FREE_ROWS, PROBE_ROWS = 600, 40  # screenings up to this many evaluations are not timed first
 
 
-def simulate(case):
-    """Simulate a case with every validity and safety check: a models.results.SimulationResult."""
-    return _simulate_with_checks(case, checks=True)
+def simulate(case, on_profiles=None):
+    """Simulate a case with every validity and safety check: a models.results.SimulationResult.
+    ``on_profiles(result)`` is called once the profiles are known, before the checks (which re-simulate):
+    the command line hands the figure to its second process then."""
+    if on_profiles is None:
+        return _simulate_with_checks(case, checks=True)
+    from tubewright.models.simulator import add_checks
+
+    result = _simulate_with_checks(case, checks=False)
+    on_profiles(result)
+    return add_checks(case, result)
 
 
 def radial_check(case, points: int | None = None, one_d=None, grid_check: bool = True):

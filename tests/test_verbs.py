@@ -97,3 +97,16 @@ def test_the_command_sets_its_thread_defaults_before_numpy_loads():
                           "print(sorted(m for m in ('numpy', 'tubewright.optimizer.cli') if m in sys.modules))"],
                          capture_output=True, text=True, check=True).stdout
     assert out.strip() == "[]"
+
+
+def test_simulate_hands_over_the_profiles_before_the_checks_and_answers_the_same():
+    from tubewright.models import load_case
+    from tubewright.optimizer import verbs
+
+    case = load_case(DEMO / "oxidation.toml")
+    seen = []
+    result = verbs.simulate(case, on_profiles=lambda r: seen.append((r, len(r.findings), "checks_s" in r.timings)))
+    assert seen == [(result, 0, False)] and result.findings  # before the checks, which then ran
+    plain = verbs.simulate(case)
+    assert [f.as_dict() for f in result.findings] == [f.as_dict() for f in plain.findings]
+    assert result.summary == plain.summary

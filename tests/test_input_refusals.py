@@ -247,7 +247,7 @@ def test_an_unsimulable_starting_design_is_a_failed_optimisation_not_a_traceback
 def test_a_bug_is_one_line_and_a_saved_traceback(capsys, monkeypatch):
     import tubewright.optimizer.verbs as verbs
 
-    def broken(case):
+    def broken(case, **options):
         raise KeyError("a deliberate bug")
 
     monkeypatch.setattr(verbs, "simulate", broken)

@@ -164,9 +164,9 @@ def test_json_output_is_one_document_even_when_something_prints(capsys, monkeypa
 
     real = verbs.simulate
 
-    def chatty(case):
+    def chatty(case, **options):
         print("WARNING: a library talks on stdout")
-        return real(case)
+        return real(case, **options)
 
     monkeypatch.setattr(verbs, "simulate", chatty)
     assert main(["simulate", str(DEMO / "oxidation.toml"), "--json"]) == 0

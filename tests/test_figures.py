@@ -100,3 +100,10 @@ def test_charts_are_well_formed_escape_text_and_break_lines_at_missing_values():
     assert len(set(y_texts)) == len(y_texts)  # ticks 0.2 apart at a million still read apart
     bars = ET.fromstring(svg.bars(["a", "b", "c"], [0.2, float("nan"), 0.05], title="mu_star"))
     assert len(bars.findall("rect")) == 2 and "n/a" in [t.text for t in bars.findall("text")]
+
+
+def test_arguments_that_do_not_travel_are_drawn_here():
+    with FigureWorker() as worker:
+        local = worker.draw(lambda: os.getpid())  # a lambda does not pickle
+        assert local.result() == os.getpid()
+        assert worker.draw(os.getpid).result() == os.getpid()  # and so is every later figure

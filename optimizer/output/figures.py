@@ -74,7 +74,7 @@ class FigureWorker:
                 self._process.stdin.flush()
                 self._waiting.append(drawing)
                 return drawing
-            except (OSError, pickle.PicklingError, AttributeError, TypeError):
+            except Exception:  # a broken pipe, or arguments that do not pickle: this process draws from now on
                 self._lose()
         drawing._draw_here()
         return drawing
@@ -84,7 +84,7 @@ class FigureWorker:
         while not drawing._done:
             try:
                 ok, value = pickle.load(self._process.stdout)
-            except (AttributeError, EOFError, OSError, pickle.UnpicklingError):
+            except Exception:  # the worker ended, or an answer does not unpickle: draw the rest here
                 self._lose()
             else:
                 self._waiting.pop(0)._set(ok, value)

@@ -17,6 +17,7 @@ def _simulate_with_checks(case, checks: bool = True):
 
     return run(case, checks=checks)
 
+
 MIN_STANDARD_INNER, MAX_STANDARD_INNER = 0.01, 0.06  # m: the TEMA tubes ranked by standard_tubes = true
 DEFAULT_MAX_HOURS = 2.0  # a screening estimated to take longer is refused unless the budget is raised
 PROBE_FREE_ROWS, PROBE_ROWS = 600, 40  # screenings up to this many evaluations are not timed first

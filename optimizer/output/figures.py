@@ -121,12 +121,15 @@ class FigureWorker:
 
 
 def _warm_up(channel) -> None:
-    """Everything a first figure pays once, paid before the first task arrives: the plotting modules,
-    matplotlib's figure, axes, text and Agg canvas, the font, a PNG written (to memory). The drawing is
-    skipped when a task is already waiting (a short verb): that figure pays it instead."""
+    """Everything a first figure pays once, paid before the first task arrives: the plotting modules and
+    those of its arguments, matplotlib's figure, axes, text and Agg canvas, the font, a PNG written (to
+    memory). The drawing is skipped when a task is already waiting (a short verb): that figure pays it."""
     import io
     import select
 
+    import tubewright.models.checks  # noqa: F401 - what the figures' arguments unpickle into (20-30 ms)
+    import tubewright.models.results  # noqa: F401
+    import tubewright.optimizer.design.outcome  # noqa: F401
     import tubewright.optimizer.output.plots  # noqa: F401
     from tubewright.optimizer.output.canvas import new_figure
 

@@ -235,3 +235,14 @@ points = 2
     monkeypatch.setattr(report_module, "read_store", without_figure_data)
     report(tmp_path / "r", tmp_path / "from-parquet.html")
     assert (tmp_path / "from-parquet.html").read_text() == page
+
+
+def test_swept_values_on_a_report_axis():
+    from tubewright.optimizer.study.report import _axis_values
+
+    assert _axis_values(["100 bar", "102.5 bar"]) == ([100.0, 102.5], "bar")  # as written, no pint
+    assert _axis_values([3600, 4400]) == ([3600.0, 4400.0], "")
+    xs, unit = _axis_values(["1 bar", "150 kPa"])  # 1 bar = 100 kPa (SI definition)
+    assert unit == "bar" and xs == pytest.approx([1.0, 1.5], rel=1e-12)
+    xs, unit = _axis_values(["100 bar", 3600])  # not one kind of quantity: the numbers, no unit
+    assert xs == [100.0, 3600.0] and unit == ""

@@ -4,6 +4,7 @@ report (charts embedded as SVG, no network needed) plus a table of the tasks as 
 from __future__ import annotations
 
 import html
+import math
 import re
 from pathlib import Path
 
@@ -57,9 +58,12 @@ def _axis_values(values) -> tuple[list[float], str]:
         return [p[0] for p in parsed], units.pop()
     from tubewright.models.units import registry
 
-    quantities = [registry().Quantity(v) for v in values]
-    first = quantities[0].units
-    return [float(q.to(first).magnitude) for q in quantities], f"{first:~}"
+    try:
+        quantities = [registry().Quantity(v) for v in values]
+        first = quantities[0].units
+        return [float(q.to(first).magnitude) for q in quantities], f"{first:~}"
+    except Exception:  # values that are no quantities of one kind: the numbers as written, no unit (a chart only)
+        return [p[0] if p is not None else math.nan for p in parsed], ""
 
 
 _QUANTITY = re.compile(r"\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")

@@ -4,7 +4,7 @@ Runs each command ROUNDS times, interleaved (one of each per round, so that a sl
 falls on all of them alike), and prints the median, the range and the ratio of the median to the target of
 the start-up work (issue "time to optimum": status, report and an input error under 0.3 s, simulate under
 1 s, the demo optimisation with its files under 2 s). The study folder for status and report is the demo
-study, run once first.
+study, run once first. The first row times the heavy imports alone, as a measure of the machine's pace.
 
 Run: .venv/bin/python tests/benchmarks/bench_startup.py [ROUNDS]"""
 
@@ -20,6 +20,10 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "studies" / "demo"
 COMMAND = [str(Path(sys.executable).with_name("tubewright"))]
+PYTHON = "python"  # an argument that starts the interpreter instead of the command (see timed)
+# the machine's pace: the same imports every round, no tubewright code (numpy and scipy.integrate, 0.5-0.7 s
+# here); this machine's speed drifts by tens of per cent within an hour, so read the targets against this row
+REFERENCE = "import numpy, scipy.integrate"
 
 
 def commands(work: Path) -> list:
@@ -27,6 +31,7 @@ def commands(work: Path) -> list:
     bad.write_text(f'include = "{DEMO / "oxidation-design.toml"}"\n[limits]\nmax_temperature = "hot"\n')
     study = work / "study"
     return [  # label, arguments, expected exit code, target [s] or None
+        ("reference: the imports", [PYTHON, "-c", REFERENCE], 0, None),
         ("--help", ["--help"], 0, None),
         ("status of the demo study", ["status", str(study)], 0, 0.3),
         ("report of the demo study", ["report", str(study)], 0, 0.3),
@@ -39,8 +44,9 @@ def commands(work: Path) -> list:
 
 
 def timed(args, code) -> float:
+    command = [sys.executable, *args[1:]] if args[0] == PYTHON else COMMAND + args
     t0 = time.perf_counter()
-    done = subprocess.run(COMMAND + args, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
+    done = subprocess.run(command, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
     seconds = time.perf_counter() - t0
     if done.returncode != code:
         raise SystemExit(f"{' '.join(args)}: exit {done.returncode}, expected {code}\n{done.stderr[-2000:]}")

@@ -11,8 +11,6 @@ import json
 import math
 import os
 import sys
-import tempfile
-import traceback
 import warnings
 from pathlib import Path
 
@@ -770,6 +768,9 @@ def main(argv=None) -> int:
         os.dup2(devnull, sys.stdout.fileno())
         return EXIT_NOT_OK
     except Exception as err:  # a bug: one line and the saved traceback, never a wall of Python
+        import tempfile
+        import traceback
+
         path = Path(tempfile.gettempdir()) / f"tubewright-traceback-{os.getpid()}.txt"
         path.write_text(traceback.format_exc(), encoding="utf-8")
         print(f"internal error: {type(err).__name__}: {err} (traceback saved in {path}; please report it)",

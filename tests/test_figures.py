@@ -11,7 +11,7 @@ from builders import DEMO
 from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 from tubewright.optimizer.output import svg
-from tubewright.optimizer.output.figures import FigureWorker
+from tubewright.optimizer.output.figures import FigureFailed, FigureWorker
 from tubewright.optimizer.output.svg import nice_ticks
 from tubewright.optimizer.output.text import safe_frame, write_columns_csv
 
@@ -34,8 +34,10 @@ def test_figures_are_drawn_by_another_process_and_answers_come_back_in_order():
         failing = worker.draw(int, "not a number")
         assert pid.result() not in (None, os.getpid())
         assert noisy.result() is None
-        with pytest.raises(ValueError, match="not a number"):
+        with pytest.raises(ValueError, match="not a number") as raised:
             failing.result()
+        assert isinstance(raised.value.__cause__, FigureFailed)  # the worker's traceback comes along
+        assert "ValueError" in str(raised.value.__cause__)
 
 
 def test_a_worker_that_dies_or_cannot_start_is_replaced_by_drawing_here(monkeypatch):

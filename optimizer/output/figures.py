@@ -8,8 +8,9 @@ this process loads the case and solves; ``draw`` hands it a figure as soon as th
 The worker is a fresh interpreter running ``serve`` (never a fork: the command may hold IPOPT's and BLAS's
 threads by then; and not multiprocessing's spawn, which runs the caller's main script again). Tasks and
 answers are pickles over its standard input and output; its prints go to standard error. A figure that
-raises raises from ``result()`` as it would here; a worker that cannot start or dies is replaced by drawing
-in this process, so the figures are written either way."""
+raises raises from ``result()`` as it would here (its traceback in the worker as the cause); a figure that a
+worker cannot take (none started, it died, its arguments do not pickle) is drawn in this process when its
+result is asked, so the figures are written either way."""
 
 from __future__ import annotations
 
@@ -18,40 +19,39 @@ import os
 import pickle
 import subprocess
 import sys
+import traceback
 
 _SERVE = "from tubewright.optimizer.output.figures import serve; serve()"
 
 
+class FigureFailed(Exception):
+    """The traceback, in the worker, of a figure that raised: the cause of the exception ``result()`` raises."""
+
+
 class Drawing:
-    """A figure on its way: ``result()`` returns what the plotting function returned (the path written)."""
+    """A figure on its way: ``result()`` returns what the plotting function returned (the path written). A
+    figure not handed over to the worker (none, or lost) is drawn here when its result is asked."""
 
     def __init__(self, worker, call):
         self._worker, self._call = worker, call
-        self._done = False
-        self._ok, self._value = True, None
-
-    def _set(self, ok: bool, value) -> None:
-        self._done, self._ok, self._value = True, ok, value
-
-    def _draw_here(self) -> None:
-        fn, args, kwargs = self._call
-        try:
-            self._set(True, fn(*args, **kwargs))
-        except Exception as error:  # raised by result(), as the worker's would be
-            self._set(False, error)
+        self._answer = None  # (returned, value, worker traceback) once the worker's answer is read
 
     def result(self):
-        if not self._done:
+        if self._answer is None and self in self._worker._waiting:
             self._worker._collect(self)
-        if not self._ok:
-            raise self._value
-        return self._value
+        if self._answer is None:
+            fn, args, kwargs = self._call
+            return fn(*args, **kwargs)
+        returned, value, trace = self._answer
+        if not returned:
+            raise value from FigureFailed(trace)
+        return value
 
 
 class FigureWorker:
     """One process that draws the command's figures (see the module docstring). ``enabled=False`` (or a
-    worker that cannot start) draws each figure in this process, at ``draw``. Use as a context manager, or
-    call ``close()``."""
+    worker that cannot start) draws each figure in this process, when its result is asked. Use as a context
+    manager, or call ``close()``."""
 
     def __init__(self, enabled: bool = True):
         self._process = None
@@ -72,29 +72,26 @@ class FigureWorker:
             try:
                 pickle.dump(drawing._call, self._process.stdin, protocol=pickle.HIGHEST_PROTOCOL)
                 self._process.stdin.flush()
+            except (OSError, pickle.PicklingError, TypeError, AttributeError):
+                self._lose()  # a broken pipe, or arguments that do not pickle: this process draws from now on
+            else:
                 self._waiting.append(drawing)
-                return drawing
-            except Exception:  # a broken pipe, or arguments that do not pickle: this process draws from now on
-                self._lose()
-        drawing._draw_here()
         return drawing
 
     def _collect(self, drawing: Drawing) -> None:
         """Read answers in order until ``drawing`` has its own."""
-        while not drawing._done:
+        while drawing in self._waiting:
             try:
-                ok, value = pickle.load(self._process.stdout)
-            except Exception:  # the worker ended, or an answer does not unpickle: draw the rest here
-                self._lose()
+                answer = pickle.load(self._process.stdout)
+            except (EOFError, OSError, pickle.UnpicklingError, AttributeError, ImportError, TypeError):
+                self._lose()  # the worker ended, or an answer does not unpickle: the rest is drawn here
             else:
-                self._waiting.pop(0)._set(ok, value)
+                self._waiting.pop(0)._answer = answer
 
     def _lose(self) -> None:
-        """The worker is gone: every figure still waiting is drawn here, and the later ones too."""
-        waiting, self._waiting = self._waiting, []
+        """The worker is gone: every figure still waiting, and every later one, is drawn here."""
+        self._waiting = []
         self._end()
-        for drawing in waiting:
-            drawing._draw_here()
 
     def close(self) -> None:
         """Collects the figures handed over, then ends the worker."""
@@ -150,7 +147,8 @@ def _warm_up(channel) -> None:
 
 def serve() -> None:
     """The worker's loop: import the plotting modules, then draw each task read from standard input and
-    answer (True, result) or (False, exception) on standard output, until standard input closes."""
+    answer (True, result, None) or (False, exception, traceback) on standard output, until standard input
+    closes."""
     channel_in = os.fdopen(os.dup(0), "rb")
     channel_out = os.fdopen(os.dup(1), "wb")
     os.dup2(2, 1)  # whatever the figures print goes to standard error, never into the answers
@@ -162,13 +160,13 @@ def serve() -> None:
         except EOFError:
             break
         try:
-            answer = (True, fn(*args, **kwargs))
-        except Exception as error:
-            answer = (False, error)
+            answer = (True, fn(*args, **kwargs), None)
+        except Exception as error:  # whatever the figure raises travels back, with its traceback, and raises there
+            answer = (False, error, traceback.format_exc())
         try:
             data = pickle.dumps(answer, protocol=pickle.HIGHEST_PROTOCOL)
-        except Exception as error:  # an answer that cannot travel: its text does
-            data = pickle.dumps((False, RuntimeError(f"{type(error).__name__}: {error}")))
+        except (pickle.PicklingError, TypeError, AttributeError) as error:  # an answer that cannot travel: its text
+            data = pickle.dumps((False, RuntimeError(f"{type(error).__name__}: {error}"), answer[2]))
         channel_out.write(data)
         channel_out.flush()
     channel_out.close()

@@ -51,19 +51,24 @@ def _figure_data(folder: Path, row, key: str, table: str, names) -> dict | None:
 
 def _axis_values(values) -> tuple[list[float], str]:
     """Swept values (numbers or "number unit" texts) as numbers and the axis unit: the values as written
-    when they share one unit; else each converted to the first one's unit (pint, only then: it costs 0.1 s)."""
+    when they share one unit; else each converted to the first one's unit when all are quantities of one kind
+    (models.units.parse, only then: pint costs 0.1 s); else the numbers as written, without a unit."""
     parsed = [_split(v) for v in values]
     units = {p[1] for p in parsed if p is not None}
     if None not in parsed and len(units) == 1:
         return [p[0] for p in parsed], units.pop()
-    from tubewright.models.units import registry
+    as_written = [p[0] if p is not None else math.nan for p in parsed], ""
+    from tubewright.models.errors import CaseError
+    from tubewright.models.units import parse
 
     try:
-        quantities = [registry().Quantity(v) for v in values]
-        first = quantities[0].units
-        return [float(q.to(first).magnitude) for q in quantities], f"{first:~}"
-    except Exception:  # values that are no quantities of one kind: the numbers as written, no unit (a chart only)
-        return [p[0] if p is not None else math.nan for p in parsed], ""
+        quantities = [parse(str(v)) for v in values]
+    except CaseError:  # a value that is no quantity
+        return as_written
+    first = quantities[0]
+    if any(q.dimensionality != first.dimensionality for q in quantities):
+        return as_written
+    return [float(q.to(first.units).magnitude) for q in quantities], f"{first.units:~}"
 
 
 _QUANTITY = re.compile(r"\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")

@@ -142,6 +142,20 @@ def test_pyomo_import_leaves_scipy_stats_unexecuted_until_used():
     assert out == "True"
 
 
+@pytest.mark.parametrize("numpy_first", [False, True], ids=["tubewright first", "numpy first"])
+def test_numpy_submodules_that_scipy_and_pyomo_import_stay_unexecuted_until_used(numpy_first):
+    # scipy's "from numpy import *" and Pyomo's numpy.testing execute f2py, ma, polynomial and testing
+    extras = ("numpy.f2py", "numpy.ma", "numpy.polynomial", "numpy.testing")
+    out = _run(("import numpy; " if numpy_first else "") +
+               "import sys, tubewright, tubewright.optimizer.design.optimise, tubewright.models.simulator, "
+               f"tubewright.models.radial_grid; print([type(sys.modules[m]).__name__ for m in {extras!r}]); "
+               "import numpy as np; np.testing.assert_allclose(1.0, 1.0); from numpy.polynomial import Polynomial; "
+               "print(float(np.ma.masked_array([1, 2], [0, 1]).sum()), Polynomial([1, 2])(2), "
+               f"[type(sys.modules[m]).__name__ for m in {extras[1:]!r}], np.testing is sys.modules['numpy.testing'], "
+               "type(np.__loader__).__name__)")
+    assert out.split("\n") == [str(["DeferredModule"] * 4), f"1.0 5.0 {['module'] * 3} True SourceFileLoader"]
+
+
 def test_a_figure_after_pyomo_leaves_pyplot_unexecuted_until_used():
     # Pyomo imports matplotlib.pyplot and pylab whenever matplotlib is imported; the figures need neither
     out = _run("import sys, tubewright.optimizer.design.optimise; "

@@ -18,10 +18,12 @@ from __future__ import annotations
 
 from importlib import import_module
 
-from tubewright.deferred import defer_modules
+from tubewright.deferred import after_import, defer_modules, defer_submodules
 
-# Pyomo imports scipy.stats and scipy.spatial whenever scipy is imported (see tubewright.deferred)
+# Pyomo imports scipy.stats and scipy.spatial whenever scipy is imported; scipy and Pyomo execute numpy
+# submodules that tubewright does not use (see tubewright.deferred)
 defer_modules(("scipy.stats", "scipy.spatial"))
+after_import("numpy", lambda numpy: defer_submodules(numpy, ("f2py", "ma", "polynomial", "testing")))
 
 # public name -> (module, attribute)
 _PUBLIC = {

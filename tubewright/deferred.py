@@ -5,10 +5,17 @@ imports scipy.stats and scipy.spatial "to assume they are present" (0.5-0.8 s pe
 its distributions' docstrings at import), and importing matplotlib also imports matplotlib.pyplot and
 matplotlib.pylab (0.1-0.3 s). tubewright uses scipy.stats only in screening, fitting and robust verification,
 scipy.spatial and pyplot not at all (its figures are drawn on an Agg canvas). A deferred stand-in makes those
-import statements find the module and execute nothing; whoever uses the module gets the real one."""
+import statements find the module and execute nothing; whoever uses the module gets the real one.
+
+numpy's submodules f2py, ma, polynomial and testing are in ``numpy.__all__``, so scipy's array-API layer
+(imported by scipy.special, hence by scipy.integrate and scipy.optimize) executes them all with its ``from numpy
+import *``, and Pyomo imports numpy.testing (which imports unittest): 0.06-0.1 s per process for modules
+tubewright never uses. Their stand-ins must also be attributes of numpy (its module ``__getattr__`` would
+otherwise import them), so they are set right after numpy itself is executed (``after_import``)."""
 
 from __future__ import annotations
 
+import importlib.abc
 import importlib.machinery
 import importlib.util
 import sys
@@ -71,3 +78,59 @@ def defer_modules(names) -> None:
         spec = find_spec_unexecuted(name)
         if spec is not None and spec.loader is not None:
             sys.modules[name] = DeferredModule(spec)
+
+
+def defer_submodules(package, names) -> None:
+    """Stand a DeferredModule in for each submodule ``names`` of the imported module ``package``, also as its
+    attribute (for a package whose module ``__getattr__`` imports its submodules); skipped as defer_modules."""
+    for name in names:
+        full = f"{package.__name__}.{name}"
+        if full in sys.modules or name in package.__dict__:
+            continue
+        spec = find_spec_unexecuted(full)
+        if spec is not None and spec.loader is not None:
+            sys.modules[full] = stand_in = DeferredModule(spec)
+            setattr(package, name, stand_in)
+
+
+def after_import(name: str, then) -> None:
+    """Call ``then(module)`` once the top-level module ``name`` is imported: at once if it is, else right after
+    its first execution (a finder first in ``sys.meta_path`` that wraps the module's loader, then leaves)."""
+    module = sys.modules.get(name)
+    if module is not None:
+        then(module)
+    elif not any(isinstance(f, _AfterImport) and f.name == name for f in sys.meta_path):
+        sys.meta_path.insert(0, _AfterImport(name, then))
+
+
+class _AfterImport(importlib.abc.MetaPathFinder):
+    def __init__(self, name, then):
+        self.name, self.then = name, then
+
+    def find_spec(self, fullname, path=None, target=None):
+        if fullname != self.name or self not in sys.meta_path:
+            return None
+        later = sys.meta_path[sys.meta_path.index(self) + 1:]  # the finders that would have found it
+        sys.meta_path.remove(self)
+        for finder in later:
+            spec = finder.find_spec(fullname, path, target) if hasattr(finder, "find_spec") else None
+            if spec is not None:
+                if spec.loader is not None and hasattr(spec.loader, "exec_module"):
+                    spec.loader = _LoaderThen(spec.loader, self.then)
+                return spec
+        return None
+
+
+class _LoaderThen(importlib.abc.Loader):
+    """A module's own loader, followed by ``then(module)``; the module keeps its own loader afterwards."""
+
+    def __init__(self, loader, then):
+        self._loader, self._then = loader, then
+
+    def create_module(self, spec):
+        return self._loader.create_module(spec)
+
+    def exec_module(self, module):
+        module.__loader__ = module.__spec__.loader = self._loader
+        self._loader.exec_module(module)
+        self._then(module)

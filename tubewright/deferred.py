@@ -99,7 +99,7 @@ def after_import(name: str, then) -> None:
     module = sys.modules.get(name)
     if module is not None:
         then(module)
-    elif not any(isinstance(f, _AfterImport) and f.name == name for f in sys.meta_path):
+    else:
         sys.meta_path.insert(0, _AfterImport(name, then))
 
 

@@ -328,12 +328,15 @@ def _optimize_and_report(args, case, overrides, figures) -> int:
     out = Path(args.out) if args.out else None
     drawings = {}
 
+    def draw_profiles(best, simulation, limits):  # drawn beside the checks and the 2-D check that follow
+        out.mkdir(parents=True, exist_ok=True)
+        drawings["plot_png"] = figures.draw(plot_profiles, best, simulation, out / "optimal_profiles.png",
+                                            limits=limits)
+
     def show_optimum(res):  # the main optimum as soon as it is known; alternatives follow
-        if out is not None and res.simulation is not None and res.simulation.columns:
-            out.mkdir(parents=True, exist_ok=True)  # its figure is drawn beside the checks that follow
-            best = design_case(res.case, values_by_key(res.design))
-            drawings["plot_png"] = figures.draw(plot_profiles, best, res.simulation, out / "optimal_profiles.png",
-                                                limits=res.limits)
+        if (out is not None and "plot_png" not in drawings and res.simulation is not None
+                and res.simulation.columns):  # a design that did not converge: its best point
+            draw_profiles(design_case(res.case, values_by_key(res.design)), res.simulation, res.limits)
         if args.json:
             return
         progress.close()
@@ -343,7 +346,8 @@ def _optimize_and_report(args, case, overrides, figures) -> int:
 
     res = verbs.optimize(case, ideal=args.ideal, starts=args.starts, seed=args.seed, pareto=args.pareto,
                          progress=progress, on_optimum=show_optimum, scenarios=args.scenarios,
-                         verify_samples=args.verify_samples, radial_tighten=args.radial_tighten)
+                         verify_samples=args.verify_samples, radial_tighten=args.radial_tighten,
+                         on_profiles=draw_profiles if out is not None else None)
     progress.close()
     extras = res.extras
     files = {}

@@ -59,13 +59,15 @@ def fit(case_path, data_path):
 
 def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0, pareto: int | None = None,
              progress=None, on_optimum=None, scenarios: int | None = None, verify_samples: int | None = None,
-             radial_tighten: bool = False):
+             radial_tighten: bool = False, on_profiles=None):
     """The cheapest (or best) layout of a case: an OptimizationResult whose ``extras`` hold, as asked, the
     ranking of standard tubes (``[design] standard_tubes = true``: the best tube is then optimised), the
     ideal bound with its gap (``ideal``), a multi-start (``starts``, ``seed``) and a cost-selectivity front
     (``pareto`` points). ``result.case`` is the case that was optimised (with the chosen standard tube).
     ``progress``: see output.progress.Phases; ``on_optimum(result)`` is called as soon as the main optimum
-    is known, before the alternatives are computed (the command line prints it then). ``scenarios``: also
+    is known, before the alternatives are computed (the command line prints it then); ``on_profiles(design
+    case, simulation, limit rows)`` as soon as its profiles are, before its checks (see design.optimise.optimise:
+    the command line hands the figure to its second process then). ``scenarios``: also
     a robust design over that many scenarios of [uncertain] (optimizer.design.robust), verified on
     ``verify_samples`` fresh samples. When the radial criterion warns at the optimum (or ``radial_tighten``
     asks), the 2-D model checks it (optimizer.design.radial_check); ``radial_tighten`` re-optimises with the
@@ -95,7 +97,7 @@ def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0
             if "inner_diameter" in case.raw.get("design", {}):  # a fixed design diameter would override the tube
                 chosen["design.inner_diameter"] = diameter
             case = build_case(apply_overrides(case.raw, chosen, case.source), case.source)
-    res = optimise(case, progress=progress)
+    res = optimise(case, progress=progress, on_profiles=on_profiles)
     res.extras["base"] = base_design(case)
     res.case = case
     if on_optimum is not None:

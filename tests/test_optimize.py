@@ -35,6 +35,17 @@ def test_min_volume_first_order_isothermal():
     assert res.verification["max_relative_deviation"] < 1e-5
 
 
+def test_the_optimum_profiles_are_handed_over_before_the_checks():
+    # the command line draws the figure beside the checks: the same simulation and limits, findings to come
+    seen = []
+    res = optimise(min_volume_case(), on_profiles=lambda *a: seen.append((*a, len(a[1].findings))))
+    assert res.ok, res.reason
+    ((design, simulation, limits, findings_then),) = seen
+    assert simulation is res.simulation and limits is res.limits
+    assert findings_then == 0 and res.simulation.findings
+    assert design.tube.length == pytest.approx(res.design["length_m"], rel=1e-12)
+
+
 def test_consecutive_reactions_optimal_length():
     # Analytic, A -> B -> C first order at constant T: tau* = ln(k2/k1)/(k2 - k1) and the maximum yield
     # Y_B = (k1/k2)^(k2/(k2 - k1)) (Levenspiel 1999, Ch. 8).

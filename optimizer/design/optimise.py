@@ -21,12 +21,14 @@ from tubewright.optimizer.design.spec import DESIGN_FIELDS
 
 
 def optimise(case, nfe=None, ncp=None, progress=None, scenarios=None, start=None,
-             scenario_goal="nominal", shells: int | None = None) -> OptimizationResult:
+             scenario_goal="nominal", shells: int | None = None, on_profiles=None) -> OptimizationResult:
     """The whole `optimize` verb: solve, round the tube count and re-solve, verify (refining the mesh once
     if needed), and report. ``scenarios`` ([{parameter path: value}]): every limit must also hold in each
     (a robust design; the goal stays the nominal one); the result's extras then carry the scenario rows.
     ``start``: the starting design {design key: SI value} (default: the starts of [design]); ``shells``: the
-    number of shells to start with (a known optimum's; solve_nlp corrects it if the area says otherwise)."""
+    number of shells to start with (a known optimum's; solve_nlp corrects it if the area says otherwise).
+    ``on_profiles(design case, simulation, limit rows)`` is called once a converged design's profiles are
+    known, before its checks (which re-simulate): the command line hands the figure to its second process then."""
     t0 = time.perf_counter()
     problem = DesignProblem(case, nfe, ncp, progress=progress, scenarios=scenarios, scenario_goal=scenario_goal)
     spec = problem.spec
@@ -105,6 +107,8 @@ def optimise(case, nfe=None, ncp=None, progress=None, scenarios=None, start=None
         sim = simulate(design_case(case, values))
     elif sim is not None and sim.summary:  # every check of the final design, as simulate reports it
         final = design_case(case, values)
+        if on_profiles is not None and sim.columns:
+            on_profiles(final, sim, limits)
         sim.findings = run_checks(final, sim, partial(simulate, checks=False))
     if outcome.success:
         status, code = Status.OPTIMAL, Reason.CONVERGED

@@ -99,6 +99,13 @@ _POWER = re.compile(r"(?:\*\*|\^)\s*\(?\s*([+-]?\d+(?:\.\d+)?)(?:\s*/\s*(\d+))?\
 _POWER_OF_POWER = re.compile(r"(?:\*\*|\^)[\s\d.()+-]*(?:\*\*|\^)")
 
 
+def split_quantity(text: str):
+    """(number, unit text) of "number unit" text (the unit text may be empty), or None when the text does not
+    begin with a number or is longer than MAX_TEXT. Nothing is evaluated and pint is not needed."""
+    match = _NUMBER.match(text) if len(text) <= MAX_TEXT else None
+    return (float(match.group(1)), match.group(2)) if match else None
+
+
 def parse(text: str, source: str = "", key: str = "", difference: bool = False):
     """A pint Quantity from ``text`` = a number followed by a unit, and nothing else: no arithmetic is
     evaluated (pint's own expression parser would evaluate "9**9**9 m" for ever), the text is at most
@@ -110,11 +117,11 @@ def parse(text: str, source: str = "", key: str = "", difference: bool = False):
     ureg = registry()
     if len(text) > MAX_TEXT:
         raise CaseError(source, key, f"a quantity of {len(text)} characters; allowed: at most {MAX_TEXT}")
-    match = _NUMBER.match(text)
-    if match is None:
+    split = split_quantity(text)
+    if split is None:
         raise CaseError(source, key, f'cannot read "{text}" as a quantity: write a number and a unit, for example '
                         '"6 m" (no arithmetic)')
-    magnitude, unit_text = float(match.group(1)), match.group(2)
+    magnitude, unit_text = split
     if not math.isfinite(magnitude):
         raise CaseError(source, key, f'"{text}" is not a finite number')
     if not unit_text:

@@ -68,28 +68,27 @@ def find_spec_unexecuted(name: str):
     return importlib.machinery.PathFinder.find_spec(name, parent_spec.submodule_search_locations)
 
 
-def defer_modules(names) -> None:
+def defer_modules(names) -> dict:
     """Stand a DeferredModule in for each of these modules; skipped for a module already imported (or
-    standing in), or one not installed."""
+    standing in), or one not installed. Returns {name: stand-in} of those stood in now."""
+    placed = {}
     for name in names:
         if name in sys.modules:
             continue
         spec = find_spec_unexecuted(name)
         if spec is not None and spec.loader is not None:
-            sys.modules[name] = DeferredModule(spec)
+            sys.modules[name] = placed[name] = DeferredModule(spec)
+    return placed
 
 
 def defer_submodules(package, names) -> None:
-    """Stand a DeferredModule in for each submodule ``names`` of the imported module ``package``, also as its
-    attribute (for a package whose module ``__getattr__`` imports its submodules); skipped as defer_modules."""
-    for name in names:
-        full = f"{package.__name__}.{name}"
-        if full in sys.modules or name in package.__dict__:
-            continue
-        spec = find_spec_unexecuted(full)
-        if spec is not None and spec.loader is not None:
-            sys.modules[full] = stand_in = DeferredModule(spec)
-            setattr(package, name, stand_in)
+    """defer_modules for submodules ``names`` of the imported module ``package``, each stand-in also set as its
+    attribute (for a package whose module ``__getattr__`` imports its submodules); skipped for an attribute
+    the package has."""
+    prefix = f"{package.__name__}."
+    placed = defer_modules(prefix + name for name in names if name not in package.__dict__)
+    for full, stand_in in placed.items():
+        setattr(package, full[len(prefix):], stand_in)
 
 
 def after_import(name: str, then) -> None:

@@ -5,14 +5,12 @@ from __future__ import annotations
 
 import math
 import time
-from functools import partial
 
 import pyomo.core as pyo
-from tubewright.models.checks import run_checks
 from tubewright.models.errors import ComputationFailed
 from tubewright.models.limits import LIMITS
 from tubewright.models.outcomes import Reason, Status
-from tubewright.models.simulator import simulate
+from tubewright.models.simulator import add_checks, simulate
 from tubewright.optimizer.design.goals import GOALS
 from tubewright.optimizer.design.outcome import LimitRow, OptimizationResult
 from tubewright.optimizer.design.precheck import infeasible_duties
@@ -109,7 +107,7 @@ def optimise(case, nfe=None, ncp=None, progress=None, scenarios=None, start=None
         final = design_case(case, values)
         if on_profiles is not None and sim.columns:
             on_profiles(final, sim, limits)
-        sim.findings = run_checks(final, sim, partial(simulate, checks=False))
+        add_checks(final, sim)
     if outcome.success:
         status, code = Status.OPTIMAL, Reason.CONVERGED
     elif outcome.status in (2, -2):

@@ -58,8 +58,9 @@ def _text(x, y, text, anchor="middle", extra="") -> str:
             "</text>")
 
 
-def _finite(points):
-    return [(x, y) for x, y in points if x is not None and y is not None and math.isfinite(x) and math.isfinite(y)]
+def _finite(xs, ys):
+    """The finite points of a series (those of its runs)."""
+    return [point for run in _runs(xs, ys) for point in run]
 
 
 def chart(series, *, xlabel: str = "", ylabel: str = "", title: str = "", hlines=(), width: int = 420,
@@ -69,8 +70,8 @@ def chart(series, *, xlabel: str = "", ylabel: str = "", title: str = "", hlines
     dotted in red."""
     left, right, top, bottom = 64, 12, 26 if title else 12, 42
     pw, ph = width - left - right, height - top - bottom
-    xs = [x for s in series for x, _ in _finite(zip(s["x"], s["y"]))]
-    ys = [y for s in series for _, y in _finite(zip(s["x"], s["y"]))] + [y for y, _ in hlines if math.isfinite(y)]
+    xs = [x for s in series for x, _ in _finite(s["x"], s["y"])]
+    ys = [y for s in series for _, y in _finite(s["x"], s["y"])] + [y for y, _ in hlines if math.isfinite(y)]
     pad = 0.04 if any(s.get("mark", "line") != "line" for s in series) else 0.0  # no point on the frame
     xt = nice_ticks(*_padded(min(xs, default=0.0), max(xs, default=1.0), pad))
     yt = nice_ticks(*_padded(min(ys, default=0.0), max(ys, default=1.0), pad))
@@ -112,7 +113,7 @@ def chart(series, *, xlabel: str = "", ylabel: str = "", title: str = "", hlines
                 out.append(f"<polyline points='{points}' fill='none' stroke='{colour}' stroke-width='1.5'{dash}/>")
         if mark in ("points", "both"):
             out += [f"<circle cx='{px(x):.1f}' cy='{py(y):.1f}' r='3' fill='{colour}'/>"
-                    for x, y in _finite(zip(s["x"], s["y"]))]
+                    for x, y in _finite(s["x"], s["y"])]
         if s.get("label"):
             legend.append((s["label"], colour, dash))
     legend += [(label, "#c00", " stroke-dasharray='2 3'") for y, label in hlines if label and math.isfinite(y)]

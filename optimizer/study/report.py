@@ -5,10 +5,10 @@ from __future__ import annotations
 
 import html
 import math
-import re
 from pathlib import Path
 
 from tubewright.models.outcomes import Status
+from tubewright.models.units import split_quantity
 from tubewright.optimizer.output import svg
 from tubewright.optimizer.output.caution import CAUTION
 from tubewright.optimizer.output.text import write_records_csv
@@ -71,14 +71,10 @@ def _axis_values(values) -> tuple[list[float], str]:
     return [float(q.to(first.units).magnitude) for q in quantities], f"{first.units:~}"
 
 
-_QUANTITY = re.compile(r"\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
-
-
 def _split(value):
     if isinstance(value, (int, float)) and not isinstance(value, bool):
         return float(value), ""
-    match = _QUANTITY.fullmatch(str(value))
-    return (float(match.group(1)), match.group(2)) if match else None
+    return split_quantity(str(value))
 
 
 def report(folder, out: Path | None = None) -> dict:

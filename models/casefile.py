@@ -17,7 +17,7 @@ from .errors import CaseError, suggest
 from .limits import LIMITS, PAIRS
 from .reactions import Adsorption, Reaction, adsorption_units, parse_equation, rate_units
 from .thermo import ConstantCp, Nasa7, Shomate, Species, cp_problem
-from .units import DIMENSIONS, LARGEST, quantity, to_si
+from .units import DIMENSIONS, LARGEST, quantity, to_si, to_si_one_of
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -699,12 +699,8 @@ def _limits(t: Table | None, species, product, coolant, bed, source) -> dict:
 def _production_rate(value, species, product, source, key) -> float:
     """A molar rate, or a mass rate converted with the product's molar mass."""
     try:
-        return to_si(value, "mol/s", source, key)
-    except CaseError:
-        pass
-    try:
-        mass = to_si(value, "kg/s", source, key)
+        unit, rate = to_si_one_of(value, ("mol/s", "kg/s"), source, key)
     except CaseError as err:
         raise CaseError(source, key, f'"{value}" must be a molar rate ("mol/s") or a mass rate ("t/year", '
                         '"kg/h")') from err
-    return mass / next(s for s in species if s.name == product).molar_mass
+    return rate if unit == "mol/s" else rate / next(s for s in species if s.name == product).molar_mass

@@ -7,6 +7,7 @@ import math
 import re
 from functools import lru_cache
 
+from . import quantity_memo
 from .errors import CaseError
 
 
@@ -76,17 +77,39 @@ def to_si(text, unit: str, source: str, key: str, difference: bool = False) -> f
     return _to_si(text, unit, source, key, difference)
 
 
+def to_si_one_of(text, units: tuple, source: str, key: str) -> tuple:
+    """(unit, value in SI) for the first of ``units`` (pint unit strings of different dimensions, such as a
+    molar and a mass rate) that the quantity converts to; the last unit's CaseError when none does. A quantity
+    remembered under any of the units is found without trying the others (a refused try needs pint)."""
+    if isinstance(text, str):
+        for unit in units:
+            value = quantity_memo.lookup(text, unit, False)
+            if value is not None:
+                return unit, value
+    for unit in units[:-1]:
+        try:
+            return unit, to_si(text, unit, source, key)
+        except CaseError:
+            pass
+    return units[-1], to_si(text, units[-1], source, key)
+
+
 class _Unparsed(Exception):
     pass
 
 
 @lru_cache(maxsize=4096)
 def _parsed(text: str, unit: str, difference: bool) -> float:
-    """Cached conversion of well-formed text (studies parse the same strings for every task)."""
-    try:
-        return _to_si(text, unit, "", "", difference)
-    except CaseError as err:
-        raise _Unparsed from err
+    """Cached conversion of well-formed text (studies parse the same strings for every task), remembered on
+    disk across processes (quantity_memo: a case read before loads without pint)."""
+    value = quantity_memo.lookup(text, unit, difference)
+    if value is None:
+        try:
+            value = _to_si(text, unit, "", "", difference)
+        except CaseError as err:
+            raise _Unparsed from err
+        quantity_memo.remember(text, unit, difference, value)
+    return value
 
 
 MAX_TEXT = 80  # characters of one quantity
@@ -114,7 +137,6 @@ def parse(text: str, source: str = "", key: str = "", difference: bool = False):
     Temperatures: inside a compound unit (W/m^2/degC, Btu/lb/degF) a degree Celsius or Fahrenheit is an
     interval (pint's delta units), so 1 Btu/(h ft^2 degF) = 5.678 W/(m^2 K) (NIST SP 811). A lone degC or
     degF is an absolute temperature, unless ``difference`` says the quantity is a temperature difference."""
-    ureg = registry()
     if len(text) > MAX_TEXT:
         raise CaseError(source, key, f"a quantity of {len(text)} characters; allowed: at most {MAX_TEXT}")
     split = split_quantity(text)
@@ -125,13 +147,14 @@ def parse(text: str, source: str = "", key: str = "", difference: bool = False):
     if not math.isfinite(magnitude):
         raise CaseError(source, key, f'"{text}" is not a finite number')
     if not unit_text:
-        return ureg.Quantity(magnitude)
+        return registry().Quantity(magnitude)
     if not _UNIT_CHARS.match(unit_text) or _POWER_OF_POWER.search(unit_text):
         raise CaseError(source, key, f'cannot read the unit of "{text}": write a unit such as "m", "kJ/mol", '
                         '"W/m^2/K" (no arithmetic)')
     for power, denominator in _POWER.findall(unit_text):
         if abs(float(power) / float(denominator or 1)) > MAX_POWER:
             raise CaseError(source, key, f'"{text}": unit exponents are at most {MAX_POWER}')
+    ureg = registry()
     try:
         units = ureg.parse_units(unit_text, as_delta=True)  # offset units inside compounds become intervals
     except Exception as err:  # pint raises several types for unknown or malformed units
@@ -145,7 +168,6 @@ def parse(text: str, source: str = "", key: str = "", difference: bool = False):
 
 
 def _to_si(text, unit: str, source: str, key: str, difference: bool = False) -> float:
-    ureg = registry()
     if isinstance(text, bool):
         raise CaseError(source, key, f"expected a quantity in units of {unit or 'one'}, got {text!r}")
     if isinstance(text, (int, float)):
@@ -156,6 +178,7 @@ def _to_si(text, unit: str, source: str, key: str, difference: bool = False) -> 
         raise CaseError(source, key, f"expected a string with units such as \"1 {unit}\", got {text!r}")
     else:
         q = parse(text, source, key, difference)
+        ureg = registry()
         target = ureg.Quantity(1.0, unit) if unit else ureg.Quantity(1.0)
         if q.dimensionality == target.dimensionality:
             value = float(q.to(unit).magnitude) if unit else float(q.to("").magnitude)

@@ -10,11 +10,12 @@ import tempfile
 import pytest
 from builders import DEMO
 
-# The tests never write to the user's form cache: one empty directory per test session (child processes
-# inherit it), removed at exit.
-_FORM_CACHE = tempfile.mkdtemp(prefix="tubewright-forms-")
-os.environ["TUBEWRIGHT_FORM_CACHE"] = _FORM_CACHE
-atexit.register(shutil.rmtree, _FORM_CACHE, True)
+# The tests never write to the user's caches (compiled forms, converted quantities): one empty directory per
+# cache and test session (child processes inherit them), removed at exit.
+for _variable, _prefix in (("TUBEWRIGHT_FORM_CACHE", "tubewright-forms-"),
+                           ("TUBEWRIGHT_QUANTITY_CACHE", "tubewright-quantities-")):
+    os.environ[_variable] = tempfile.mkdtemp(prefix=_prefix)
+    atexit.register(shutil.rmtree, os.environ[_variable], True)
 
 
 @pytest.fixture

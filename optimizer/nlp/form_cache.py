@@ -11,10 +11,10 @@ version number, never reads an entry an older one wrote. Every entry also holds 
 reading.
 
 Where: ``$TUBEWRIGHT_FORM_CACHE`` when set (``off`` or an empty value turns the cache off), else
-``$XDG_CACHE_HOME/tubewright/forms`` or ``~/.cache/tubewright/forms``. Entries are written atomically
-(a temporary file renamed), so parallel workers may share the directory. A directory that cannot be
-written, or an unreadable entry, never stops a solve: the form is compiled as without the cache and the
-problem is counted in ``CompiledNLP.times["form_cache"]``.
+``$XDG_CACHE_HOME/tubewright/forms`` or ``~/.cache/tubewright/forms`` (``tubewright.cache_dirs``). Entries
+are written atomically (a temporary file renamed), so parallel workers may share the directory. A directory
+that cannot be written, or an unreadable entry, never stops a solve: the form is compiled as without the cache
+and the problem is counted in ``CompiledNLP.times["form_cache"]``.
 
 Entries are Python ``marshal`` data, like the interpreter's own ``__pycache__``: the directory is trusted
 as much as the installed code is.
@@ -36,6 +36,8 @@ import sys
 import tempfile
 from pathlib import Path
 
+from tubewright.cache_dirs import cache_root
+
 FORMAT = 1  # raise when the record layout below changes
 _SOURCES = ("bridge.py", "pyomo_rules.py", "form_cache.py")
 KEEP_OTHER = 3  # directories of other software versions kept when a new one is created
@@ -45,20 +47,8 @@ _ENTRY_NAME = re.compile(r"[0-9a-f]{64}|\.tmp-\w+")
 
 def cache_directory() -> Path | None:
     """The directory of this software's entries, or None when the cache is off."""
-    setting = os.environ.get("TUBEWRIGHT_FORM_CACHE")
-    if setting is not None:
-        if setting.strip().lower() in ("", "off", "0", "no", "false"):
-            return None
-        root = Path(setting).expanduser()
-    else:
-        base = os.environ.get("XDG_CACHE_HOME")
-        if not base:
-            try:
-                base = str(Path.home() / ".cache")
-            except (RuntimeError, KeyError):  # no home directory (a service account): no cache
-                return None
-        root = Path(base) / "tubewright" / "forms"
-    return root / _software_tag()
+    root = cache_root("forms", "TUBEWRIGHT_FORM_CACHE")
+    return None if root is None else root / _software_tag()
 
 
 _TAG: list = []

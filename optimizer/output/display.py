@@ -6,7 +6,6 @@ only absolute temperatures are shifted)."""
 from __future__ import annotations
 
 import math
-import re
 
 KELVIN_OFFSET = 273.15
 
@@ -81,25 +80,25 @@ def limit_value(row, value, duty=None) -> str:
 def duty_unit(case):
     """A formatter of production rates [mol/s] in the unit the duty was given in (``limits.production_rate``,
     e.g. "20 t/year" or "3 mol/s"), or None without a duty. The unit is read by the project's quantity
-    parser (units.parse), never evaluated."""
+    parser (units.to_si_one_of: the size of one such unit in mol/s or kg/s), never evaluated."""
     text = case.raw.get("limits", {}).get("production_rate")
     if not isinstance(text, str) or not case.product:
         return None
-    from tubewright.models.units import parse, registry
+    from tubewright.models.errors import CaseError
+    from tubewright.models.units import split_quantity, to_si_one_of
 
-    given = parse(text, case.source, "limits.production_rate")  # accepted by the case reader already
-    ureg = registry()
-    unit = given.units
-    label = re.sub(r"^\s*[-+0-9.eE]+\s*", "", text).strip() or f"{unit:~}"  # as the user wrote it
-    molar_mass = case.species_map[case.product].molar_mass
-    if given.check("[substance] / [time]"):
-        def fmt(v):
-            return f"{_g(ureg.Quantity(v, 'mol/s').to(unit).magnitude)} {label}"
-    elif given.check("[mass] / [time]"):
-        def fmt(v):
-            return f"{_g(ureg.Quantity(v * molar_mass, 'kg/s').to(unit).magnitude)} {label}"
-    else:
+    split = split_quantity(text)
+    if split is None:
         return None
+    label = split[1]  # as the user wrote it
+    try:
+        unit, one = to_si_one_of(f"1 {label}", ("mol/s", "kg/s"), case.source, "limits.production_rate")
+    except CaseError:  # accepted by the case reader already; only an edge of the length limit comes here
+        return None
+    per_mol_s = 1.0 if unit == "mol/s" else case.species_map[case.product].molar_mass
+
+    def fmt(v):
+        return f"{_g(v * per_mol_s / one)} {label}"
     return fmt
 
 

@@ -105,16 +105,16 @@ def summary_lines(case, result) -> list[str]:
 
 
 def cmd_simulate(args) -> int:
-    from tubewright.optimizer.output.figures import FigureWorker
+    from tubewright.optimizer.output.second_process import SecondProcess
 
-    with FigureWorker(enabled=bool(args.out)) as figures:  # started first: it imports while the case loads
+    with SecondProcess(enabled=bool(args.out)) as helper:  # started first: it imports while the case loads
         case = load_case(args.case, _parse_sets(args.set))
         if args.radial_points is not None and not args.radial:
             raise option_error("--radial-points", "applies to --radial only")
-        return _simulate_and_report(args, case, figures)
+        return _simulate_and_report(args, case, helper)
 
 
-def _simulate_and_report(args, case, figures) -> int:
+def _simulate_and_report(args, case, helper) -> int:
     from tubewright.optimizer.output.plots import plot_profiles, plot_radial
 
     out = Path(args.out) if args.out else None
@@ -124,7 +124,7 @@ def _simulate_and_report(args, case, figures) -> int:
 
     def draw_profiles(result):  # drawn in the other process while the checks re-simulate
         if out is not None and result.columns:
-            drawings["plot_png"] = figures.draw(plot_profiles, case, result, out / "profiles.png")
+            drawings["plot_png"] = helper.run(plot_profiles, case, result, out / "profiles.png")
 
     result = verbs.simulate(case, on_profiles=draw_profiles)
     radial = verbs.radial_check(case, args.radial_points, one_d=result) if args.radial else None
@@ -135,7 +135,7 @@ def _simulate_and_report(args, case, figures) -> int:
             write_columns_csv(files["profiles_csv"], result.columns)
             files["plot_png"] = str(drawings["plot_png"].result())
         if radial is not None and radial.result.columns:
-            figure = figures.draw(plot_radial, case, radial, out)
+            figure = helper.run(plot_radial, case, radial, out)
             files.update(_radial_tables(radial, out))
             files.update(figure.result())
         files["summary_json"] = str(out / "summary.json")
@@ -312,15 +312,16 @@ def _optimisation_answer(case, res, files) -> dict:
 
 
 def cmd_optimize(args) -> int:
-    from tubewright.optimizer.output.figures import FigureWorker
+    from tubewright.optimizer.output.second_process import SecondProcess
 
-    with FigureWorker(enabled=bool(args.out)) as figures:  # started first: it imports while the case loads
-        overrides = _parse_sets(args.set)
-        case = load_case(args.case, overrides)
-        return _optimize_and_report(args, case, overrides, figures)
+    overrides = _parse_sets(args.set)
+    case = load_case(args.case, overrides)
+    # it imports while this process builds and solves; it draws the figures, or without them runs the 2-D check
+    with SecondProcess(enabled=bool(args.out) or case.radial is not None, figures=bool(args.out)) as helper:
+        return _optimize_and_report(args, case, overrides, helper)
 
 
-def _optimize_and_report(args, case, overrides, figures) -> int:
+def _optimize_and_report(args, case, overrides, helper) -> int:
     from tubewright.optimizer.design.problem import design_case
     from tubewright.optimizer.output.plots import plot_front, plot_profiles, plot_robust
 
@@ -330,7 +331,7 @@ def _optimize_and_report(args, case, overrides, figures) -> int:
 
     def draw_profiles(best, simulation, limits):  # drawn beside the checks and the 2-D check that follow
         out.mkdir(parents=True, exist_ok=True)
-        drawings["plot_png"] = figures.draw(plot_profiles, best, simulation, out / "optimal_profiles.png",
+        drawings["plot_png"] = helper.run(plot_profiles, best, simulation, out / "optimal_profiles.png",
                                             limits=limits)
 
     def show_optimum(res):  # the main optimum as soon as it is known; alternatives follow
@@ -347,16 +348,17 @@ def _optimize_and_report(args, case, overrides, figures) -> int:
     res = verbs.optimize(case, ideal=args.ideal, starts=args.starts, seed=args.seed, pareto=args.pareto,
                          progress=progress, on_optimum=show_optimum, scenarios=args.scenarios,
                          verify_samples=args.verify_samples, radial_tighten=args.radial_tighten,
-                         on_profiles=draw_profiles if out is not None else None)
+                         on_profiles=draw_profiles if out is not None else None,
+                         run_elsewhere=helper.run if out is None else None)
     progress.close()
     extras = res.extras
     files = {}
     if out is not None:  # written for a failed optimisation too: the report says why
         out.mkdir(parents=True, exist_ok=True)
         if "pareto" in extras:
-            drawings["pareto_png"] = figures.draw(plot_front, case, extras["pareto"], out / "pareto.png")
+            drawings["pareto_png"] = helper.run(plot_front, case, extras["pareto"], out / "pareto.png")
         if extras.get("robust", {}).get("verification"):
-            drawings["robust_png"] = figures.draw(plot_robust, case, extras["robust"], out / "robust.png")
+            drawings["robust_png"] = helper.run(plot_robust, case, extras["robust"], out / "robust.png")
         if "plot_png" in drawings:
             files["profiles_csv"] = str(out / "optimal_profiles.csv")
             write_columns_csv(files["profiles_csv"], res.simulation.columns)

@@ -59,7 +59,7 @@ def fit(case_path, data_path):
 
 def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0, pareto: int | None = None,
              progress=None, on_optimum=None, scenarios: int | None = None, verify_samples: int | None = None,
-             radial_tighten: bool = False, on_profiles=None):
+             radial_tighten: bool = False, on_profiles=None, run_elsewhere=None):
     """The cheapest (or best) layout of a case: an OptimizationResult whose ``extras`` hold, as asked, the
     ranking of standard tubes (``[design] standard_tubes = true``: the best tube is then optimised), the
     ideal bound with its gap (``ideal``), a multi-start (``starts``, ``seed``) and a cost-selectivity front
@@ -71,7 +71,9 @@ def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0
     a robust design over that many scenarios of [uncertain] (optimizer.design.robust), verified on
     ``verify_samples`` fresh samples. When the radial criterion warns at the optimum (or ``radial_tighten``
     asks), the 2-D model checks it (optimizer.design.radial_check); ``radial_tighten`` re-optimises with the
-    hot-spot limit tightened until the 2-D hot spot meets it."""
+    hot-spot limit tightened until the 2-D hot spot meets it. ``run_elsewhere(fn, *args)``: runs a function in
+    another process and returns an object whose ``result()`` is its answer (output.second_process.SecondProcess.run);
+    given, the 2-D check runs there beside the checks of the optimum."""
     from tubewright.optimizer.design.alternatives import multistart, pareto_front, rank_standard_tubes
     from tubewright.optimizer.design.ideal import ideal_bound
     from tubewright.optimizer.design.optimise import optimise
@@ -97,14 +99,22 @@ def optimize(case, ideal: bool = False, starts: int | None = None, seed: int = 0
             if "inner_diameter" in case.raw.get("design", {}):  # a fixed design diameter would override the tube
                 chosen["design.inner_diameter"] = diameter
             case = build_case(apply_overrides(case.raw, chosen, case.source), case.source)
-    res = optimise(case, progress=progress, on_profiles=on_profiles)
+    from tubewright.optimizer.design.radial_check import radial_design_check, start_early
+
+    started = {}
+
+    def profiles(design, simulation, limits):
+        if on_profiles is not None:
+            on_profiles(design, simulation, limits)
+        if run_elsewhere is not None:
+            started["check"] = start_early(design, simulation, radial_tighten, run_elsewhere)
+
+    res = optimise(case, progress=progress, on_profiles=profiles)
     res.extras["base"] = base_design(case)
     res.case = case
     if on_optimum is not None:
         on_optimum(res)
-    from tubewright.optimizer.design.radial_check import radial_design_check
-
-    radial = radial_design_check(res, radial_tighten, progress)
+    radial = radial_design_check(res, radial_tighten, progress, started.get("check"))
     if radial is not None:
         extras["radial_check"] = radial
     if ideal and res.ok:

@@ -1,4 +1,4 @@
-"""The figures' second process (optimizer.output.figures), the report's SVG charts and the CSV writers."""
+"""The second process of a command (optimizer.output.second_process), the report's SVG charts and the CSV writers."""
 
 from __future__ import annotations
 
@@ -11,7 +11,7 @@ from builders import DEMO
 from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 from tubewright.optimizer.output import svg
-from tubewright.optimizer.output.figures import FigureFailed, FigureWorker
+from tubewright.optimizer.output.second_process import SecondProcess, TaskFailed
 from tubewright.optimizer.output.svg import nice_ticks
 from tubewright.optimizer.output.text import safe_frame, write_columns_csv
 
@@ -28,33 +28,33 @@ def test_columns_csv_is_what_pandas_writes(tmp_path):
 
 
 def test_figures_are_drawn_by_another_process_and_answers_come_back_in_order():
-    with FigureWorker() as worker:
-        noisy = worker.draw(print, "a figure that talks on stdout")  # its text must not enter the answers
-        pid = worker.draw(os.getpid)
-        failing = worker.draw(int, "not a number")
+    with SecondProcess() as helper:
+        noisy = helper.run(print, "a figure that talks on stdout")  # its text must not enter the answers
+        pid = helper.run(os.getpid)
+        failing = helper.run(int, "not a number")
         assert pid.result() not in (None, os.getpid())
         assert noisy.result() is None
         with pytest.raises(ValueError, match="not a number") as raised:
             failing.result()
-        assert isinstance(raised.value.__cause__, FigureFailed)  # the worker's traceback comes along
+        assert isinstance(raised.value.__cause__, TaskFailed)  # the worker's traceback comes along
         assert "ValueError" in str(raised.value.__cause__)
 
 
 def test_a_worker_that_dies_or_cannot_start_is_replaced_by_drawing_here(monkeypatch):
-    with FigureWorker() as worker:
-        handed = worker.draw(time.sleep, 0.05)
-        worker._process.kill()  # still importing matplotlib: it answers nothing
+    with SecondProcess() as helper:
+        handed = helper.run(time.sleep, 0.05)
+        helper._process.kill()  # still importing matplotlib: it answers nothing
         assert handed.result() is None  # drawn here instead
-        assert worker.draw(os.getpid).result() == os.getpid()
-    with FigureWorker(enabled=False) as worker:
-        assert worker.draw(os.getpid).result() == os.getpid()
+        assert helper.run(os.getpid).result() == os.getpid()
+    with SecondProcess(enabled=False) as helper:
+        assert helper.run(os.getpid).result() == os.getpid()
 
     def no_processes(*args, **kwargs):
         raise OSError("no more processes")
 
     monkeypatch.setattr("subprocess.Popen", no_processes)
-    with FigureWorker() as worker:
-        assert worker.draw(os.getpid).result() == os.getpid()
+    with SecondProcess() as helper:
+        assert helper.run(os.getpid).result() == os.getpid()
 
 
 def test_the_worker_writes_the_same_figure_as_this_process(tmp_path):
@@ -65,8 +65,8 @@ def test_the_worker_writes_the_same_figure_as_this_process(tmp_path):
     case = load_case(DEMO / "oxidation.toml")
     result = verbs.simulate(case)
     here = plot_profiles(case, result, tmp_path / "here.png")
-    with FigureWorker() as worker:
-        there = worker.draw(plot_profiles, case, result, tmp_path / "there.png").result()
+    with SecondProcess() as helper:
+        there = helper.run(plot_profiles, case, result, tmp_path / "there.png").result()
     assert there == tmp_path / "there.png"
     assert there.read_bytes() == here.read_bytes()
 
@@ -105,7 +105,7 @@ def test_charts_are_well_formed_escape_text_and_break_lines_at_missing_values():
 
 
 def test_arguments_that_do_not_travel_are_drawn_here():
-    with FigureWorker() as worker:
-        local = worker.draw(lambda: os.getpid())  # a lambda does not pickle
+    with SecondProcess() as helper:
+        local = helper.run(lambda: os.getpid())  # a lambda does not pickle
         assert local.result() == os.getpid()
-        assert worker.draw(os.getpid).result() == os.getpid()  # and so is every later figure
+        assert helper.run(os.getpid).result() == os.getpid()  # and so is every later figure

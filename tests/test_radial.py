@@ -341,6 +341,27 @@ def test_optimize_without_radial_warning_or_request_skips_the_2d_check():
     assert res.ok and "radial_check" not in res.extras
 
 
+def test_the_2d_check_run_by_the_second_process_gives_the_same_answer():
+    # the command line without --out hands the optimum's 2-D check to its second process, beside the checks
+    from tubewright.optimizer import verbs
+    from tubewright.optimizer.output.second_process import SecondProcess
+
+    case = load_case(DEMO / "oxidation-design.toml")
+    here = verbs.optimize(case).extras["radial_check"]
+    handed = []
+    with SecondProcess(figures=False) as helper:
+        def run(fn, *args):
+            handed.append((fn.__name__, helper.run(fn, *args)))
+            return handed[-1][1]
+
+        there = verbs.optimize(case, run_elsewhere=run).extras["radial_check"]
+        assert [name for name, _ in handed] == ["two_d_check"] and handed[0][1]._answer is not None  # answered there
+        assert there == here and there["run"] and there["violated"]
+        handed.clear()
+        verbs.optimize(_tightening_case(), run_elsewhere=run)  # the radial criterion does not warn: nothing started
+        assert handed == []
+
+
 @pytest.mark.slow
 def test_demo_optimum_fails_in_2d_and_the_lumped_pass_fixes_it(capsys, tmp_path):
     # The demo's 1-D optimum uses Leva's bed-to-wall coefficient; with the radial data (correlations of

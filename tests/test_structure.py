@@ -4,6 +4,7 @@ effects at import. Facts about this project itself (no outside source needed).""
 from __future__ import annotations
 
 import ast
+import shutil
 import subprocess
 import sys
 import zipfile
@@ -186,7 +187,12 @@ def test_version_is_read_from_the_distribution():
 
 @pytest.mark.slow
 def test_built_wheel_adds_only_the_tubewright_import_name(tmp_path):
-    subprocess.run([sys.executable, "-m", "pip", "wheel", "--quiet", "--no-deps", "-w", str(tmp_path), str(ROOT)],
+    # built from a copy of the sources: setuptools would reuse an earlier build/ folder of the tree, which keeps
+    # modules since renamed or removed
+    source = tmp_path / "source"
+    shutil.copytree(ROOT, source, ignore=shutil.ignore_patterns(".*", "build", "dist", "*.egg-info", "__pycache__",
+                                                                 "demo-output", "tests"))
+    subprocess.run([sys.executable, "-m", "pip", "wheel", "--quiet", "--no-deps", "-w", str(tmp_path), str(source)],
                    check=True, capture_output=True)
     (wheel,) = tmp_path.glob("tubewright-*.whl")
     names = zipfile.ZipFile(wheel).namelist()

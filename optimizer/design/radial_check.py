@@ -21,9 +21,8 @@ MAX_PASSES = 6
 MARGIN_K = 0.01  # the passes aim this far below the limit, so that the last one keeps it strictly
 
 
-def _radial_warns(simulation) -> bool:
-    return simulation is not None and any(f.code == "radial_gradient" and f.level == "warning"
-                                          for f in simulation.findings)
+def _radial_warns(findings) -> bool:
+    return any(f.code == "radial_gradient" and f.level == "warning" for f in findings)
 
 
 def _hot_spot_limit(res):
@@ -33,22 +32,40 @@ def _hot_spot_limit(res):
     return None
 
 
-def _check(case, res):
+def two_d_check(design, simulation):
+    """The 2-D model at a design case already simulated in 1-D (``simulation``): a models.radial.RadialCheck
+    without the grid check. A module-level function: the command line runs it in its second process."""
     from tubewright.models.radial import radial_check
+
+    return radial_check(design, one_d=simulation, grid_check=False)
+
+
+def _check(case, res):
     from tubewright.optimizer.design.problem import design_case
     from tubewright.optimizer.design.spec import values_by_key
 
-    best = design_case(case, values_by_key(res.design))
-    return radial_check(best, one_d=res.simulation, grid_check=False)
+    return two_d_check(design_case(case, values_by_key(res.design)), res.simulation)
 
 
-def radial_design_check(res, tighten: bool = False, progress=None) -> dict | None:
+def start_early(design, simulation, tighten: bool, run_elsewhere):
+    """The 2-D check of a converged design started in another process (``run_elsewhere(fn, *args)`` returns
+    an object whose ``result()`` is fn's answer) as soon as its 1-D profiles are known, when
+    ``radial_design_check`` will ask for it (the radial criterion warns, or ``tighten``); else None."""
+    from tubewright.models.checks import radial_gradient
+
+    if design.radial is None or not (tighten or _radial_warns(radial_gradient(design, simulation))):
+        return None
+    return run_elsewhere(two_d_check, design, simulation)
+
+
+def radial_design_check(res, tighten: bool = False, progress=None, started=None) -> dict | None:
     """The 2-D check of an optimisation result ``res`` (its ``case`` and final ``simulation``): None when the
     radial criterion does not warn and no tightening is asked; else a dict with ``run`` (False with a
     ``reason`` when the case has no [radial] table), the 2-D ``figures``, the ``limit_K``, ``violated`` and,
-    with ``tighten``, the ``passes`` and the ``tightened`` design."""
+    with ``tighten``, the ``passes`` and the ``tightened`` design. ``started``: the check of ``res``'s design
+    begun elsewhere (``start_early``)."""
     case = res.case
-    if not res.ok or (not tighten and not _radial_warns(res.simulation)):
+    if not res.ok or res.simulation is None or (not tighten and not _radial_warns(res.simulation.findings)):
         return None
     if case.radial is None:
         return {"run": False, "reason": "the radial criterion warns but the case has no [radial] table (the data of "
@@ -56,7 +73,7 @@ def radial_design_check(res, tighten: bool = False, progress=None) -> dict | Non
     if progress is not None:
         progress("two-dimensional check of the optimum")
     limit = _hot_spot_limit(res)
-    check = _check(case, res)
+    check = started.result() if started is not None else _check(case, res)
     out = {"run": True, "figures": check.figures(), "limit_K": limit, "status_2d": check.result.status,
            "violated": _violated(check, limit), "objective_1d": res.objective}
     if tighten and limit is not None and out["violated"]:

@@ -42,7 +42,8 @@ _SOURCES = ("units.py", "quantity_memo.py")
 _FILE_NAME = re.compile(r"v\d+-py\d+-pint[\w.+!-]*-[0-9a-f]{8}\.memo")
 _DIST_INFO = re.compile(r"pint-([^-]+)\.dist-info", re.IGNORECASE)
 
-_state: dict = {}  # "path": Path | None, "entries": {key: float}, "new": {key: float}, "problems": [str]
+# "path": Path | None, "entries": {key: float}, "new": {key: float}, "problems": [str], "at_exit": save once registered
+_state: dict = {}
 
 
 def lookup(text: str, unit: str, difference: bool) -> float | None:
@@ -56,9 +57,9 @@ def remember(text: str, unit: str, difference: bool, value: float) -> None:
         return
     key = (text, unit, difference)
     _entries()[key] = value
-    if not _state["new"]:
-        atexit.register(save)
     _state["new"][key] = value
+    if not _state["at_exit"]:
+        _state["at_exit"] = atexit.register(save)
 
 
 def save() -> None:
@@ -108,7 +109,7 @@ def _entries() -> dict:
 
 def _path() -> Path | None:
     if "path" not in _state:
-        _state.update(new={}, problems=[])
+        _state.update(new={}, problems=[], at_exit=None)
         root = cache_root("quantities", VARIABLE)
         version = _pint_version() if root is not None else None
         _state["path"] = None if version is None else root / _file_name(version)

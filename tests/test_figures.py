@@ -36,11 +36,11 @@ def test_figures_are_drawn_by_another_process_and_answers_come_back_in_order():
         assert noisy.result() is None
         with pytest.raises(ValueError, match="not a number") as raised:
             failing.result()
-        assert isinstance(raised.value.__cause__, TaskFailed)  # the worker's traceback comes along
+        assert isinstance(raised.value.__cause__, TaskFailed)  # the helper's traceback comes along
         assert "ValueError" in str(raised.value.__cause__)
 
 
-def test_a_worker_that_dies_or_cannot_start_is_replaced_by_drawing_here(monkeypatch):
+def test_a_helper_that_dies_or_cannot_start_is_replaced_by_running_here(monkeypatch):
     with SecondProcess() as helper:
         handed = helper.run(time.sleep, 0.05)
         helper._process.kill()  # still importing matplotlib: it answers nothing
@@ -57,7 +57,7 @@ def test_a_worker_that_dies_or_cannot_start_is_replaced_by_drawing_here(monkeypa
         assert helper.run(os.getpid).result() == os.getpid()
 
 
-def test_the_worker_writes_the_same_figure_as_this_process(tmp_path):
+def test_the_helper_writes_the_same_figure_as_this_process(tmp_path):
     from tubewright.models import load_case
     from tubewright.optimizer import verbs
     from tubewright.optimizer.output.plots import plot_profiles

@@ -32,7 +32,7 @@ import sys
 import zlib
 from pathlib import Path
 
-from tubewright.cache_dirs import cache_root
+from tubewright.cache_dirs import all_but_newest, cache_root, write_atomically
 
 FORMAT = 1  # raise when the record layout changes
 LIMIT = 5000  # entries kept (a study's swept values add a few each); the file stays under 0.5 MB
@@ -67,8 +67,6 @@ def save() -> None:
     path, new = _path(), _state.get("new")
     if path is None or not new:
         return
-    import tempfile
-
     merged = {key: value for key, value in _read(path).items() if key not in new}
     merged.update(new)
     if len(merged) > LIMIT:  # the newest are last: dicts keep the order of insertion
@@ -76,14 +74,7 @@ def save() -> None:
     try:
         fresh = not path.exists()
         path.parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=".tmp-")
-        try:
-            with os.fdopen(fd, "wb") as fh:
-                fh.write(marshal.dumps((FORMAT, path.name, merged)))
-            os.replace(tmp, path)
-        except BaseException:
-            os.unlink(tmp)
-            raise
+        write_atomically(path, marshal.dumps((FORMAT, path.name, merged)))
         if fresh:
             _prune_others(path)
     except OSError as exc:
@@ -153,6 +144,5 @@ def _read(path: Path) -> dict:
 
 def _prune_others(path: Path) -> None:
     others = [p for p in path.parent.iterdir() if p != path and _FILE_NAME.fullmatch(p.name)]
-    others.sort(key=lambda p: p.stat().st_mtime, reverse=True)
-    for old in others[KEEP_OTHER:]:
+    for old in all_but_newest(others, KEEP_OTHER):
         old.unlink()

@@ -30,19 +30,17 @@ from __future__ import annotations
 
 import hashlib
 import marshal
-import os
 import re
 import sys
-import tempfile
 from pathlib import Path
 
-from tubewright.cache_dirs import cache_root
+from tubewright.cache_dirs import TEMPORARY_PREFIX, all_but_newest, cache_root, write_atomically
 
 FORMAT = 1  # raise when the record layout below changes
 _SOURCES = ("bridge.py", "pyomo_rules.py", "form_cache.py")
 KEEP_OTHER = 3  # directories of other software versions kept when a new one is created
 _TAG_NAME = re.compile(r"v\d+-py\d+-pyomo[\w.+-]*-[0-9a-f]{16}")
-_ENTRY_NAME = re.compile(r"[0-9a-f]{64}|\.tmp-\w+")
+_ENTRY_NAME = re.compile(rf"[0-9a-f]{{64}}|{re.escape(TEMPORARY_PREFIX)}\w+")
 
 
 def cache_directory() -> Path | None:
@@ -119,14 +117,7 @@ class FormCache:
                     self.directory.mkdir(parents=True, exist_ok=True)
                     self._prune_others()
                 self._ready = True
-            fd, tmp = tempfile.mkstemp(dir=self.directory, prefix=".tmp-")
-            try:
-                with os.fdopen(fd, "wb") as fh:
-                    fh.write(marshal.dumps(record))
-                os.replace(tmp, self.directory / _key(text, nx, npar))
-            except BaseException:
-                os.unlink(tmp)
-                raise
+            write_atomically(self.directory / _key(text, nx, npar), marshal.dumps(record))
         except OSError as exc:
             self.problems.append(f"writing to {self.directory}: {exc}; nothing more written by this compilation")
             self._writable = False
@@ -139,8 +130,7 @@ class FormCache:
         try:
             others = [d for d in self.directory.parent.iterdir()
                       if d != self.directory and d.is_dir() and _TAG_NAME.fullmatch(d.name)]
-            others.sort(key=lambda d: d.stat().st_mtime, reverse=True)
-            for old in others[KEEP_OTHER:]:
+            for old in all_but_newest(others, KEEP_OTHER):
                 for entry in old.iterdir():
                     if entry.is_file() and _ENTRY_NAME.fullmatch(entry.name):
                         entry.unlink()
